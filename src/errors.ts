@@ -1,0 +1,89 @@
+/**
+ * The few error classes kinhue raises. Each has a fixed `code`, names the file it is about
+ * (when there is one) and carries the next step for the person running the tool.
+ * The CLI maps them to exit codes; core modules only throw them.
+ */
+
+/** Fixed error codes. Documented in the README; never renumber or rename one. */
+export const ErrorCodes = {
+  /** The command line is wrong (unknown option, missing input, bad value). */
+  USAGE: 'KH_USAGE',
+  /** A file or folder could not be found or read. */
+  UNREADABLE: 'KH_UNREADABLE',
+  /** A zero-byte file. */
+  EMPTY_FILE: 'KH_EMPTY_FILE',
+  /** The file is not an image kinhue can decode (wrong format, text named .jpg, ...). */
+  NOT_AN_IMAGE: 'KH_NOT_AN_IMAGE',
+  /** The image data ends early or is corrupt. */
+  CORRUPT_IMAGE: 'KH_CORRUPT_IMAGE',
+  /** The image is larger than the pixel limit (decompression-bomb guard). */
+  TOO_LARGE: 'KH_TOO_LARGE',
+  /** A model folder is missing, not a kinhue model, or its weights fail their hash. */
+  BAD_MODEL: 'KH_BAD_MODEL',
+  /** Training data is unusable: empty, unreadable, too few colour photos. */
+  BAD_DATA: 'KH_BAD_DATA',
+  /** A hints or reference file is malformed. */
+  BAD_HINTS: 'KH_BAD_HINTS',
+  /** An output could not be written. */
+  WRITE_FAILED: 'KH_WRITE_FAILED',
+} as const;
+
+export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];
+
+export interface KinhueErrorOptions {
+  /** The file or folder the error is about. */
+  file?: string;
+  /** What the person should do next, one sentence. */
+  hint?: string;
+  cause?: unknown;
+}
+
+/** Base class: a problem with the input or the environment that the user can fix. */
+export class KinhueError extends Error {
+  readonly code: ErrorCode;
+  readonly file?: string;
+  readonly hint?: string;
+
+  constructor(code: ErrorCode, message: string, options: KinhueErrorOptions = {}) {
+    super(message, options.cause === undefined ? undefined : { cause: options.cause });
+    this.name = 'KinhueError';
+    this.code = code;
+    this.file = options.file;
+    this.hint = options.hint;
+  }
+
+  /** One or two lines for people: "<file>: <message>\n  next step: <hint>". */
+  describe(): string {
+    const head = this.file ? `${this.file}: ${this.message}` : this.message;
+    return this.hint ? `${head}\n  next step: ${this.hint}` : head;
+  }
+}
+
+/** The command line itself is wrong. Exit code 2. */
+export class UsageError extends KinhueError {
+  constructor(message: string, hint?: string) {
+    super(ErrorCodes.USAGE, message, { hint });
+    this.name = 'UsageError';
+  }
+}
+
+/** An input image cannot be used. Recorded per file; a batch goes on. */
+export class InputError extends KinhueError {
+  constructor(code: ErrorCode, message: string, options: KinhueErrorOptions = {}) {
+    super(code, message, options);
+    this.name = 'InputError';
+  }
+}
+
+/** A model folder cannot be used. */
+export class ModelError extends KinhueError {
+  constructor(message: string, options: KinhueErrorOptions = {}) {
+    super(ErrorCodes.BAD_MODEL, message, options);
+    this.name = 'ModelError';
+  }
+}
+
+/** True for errors kinhue raised on purpose (as opposed to bugs). */
+export function isKinhueError(error: unknown): error is KinhueError {
+  return error instanceof KinhueError;
+}
