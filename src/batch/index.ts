@@ -1,0 +1,10 @@
+// Batch restore: discovery, output naming, the manifest, the worker queue, per-file restore, and the
+// in-memory colourisation shared with scoring. Re-exports only.
+export * from './options.js';
+export * from './discovery.js';
+export * from './naming.js';
+export * from './manifest.js';
+export * from './colourise.js';
+export * from './restore-file.js';
+export * from './restore.js';
+export { readModelInfo, type ModelInfo } from './model-info.js';

@@ -1,0 +1,75 @@
+/**
+ * What a restore run is asked to do, its defaults, and the settings that decide whether an earlier
+ * result can be kept (the manifest compares their key).
+ */
+import { createHash } from 'node:crypto';
+import { availableParallelism } from 'node:os';
+import type { OutputFormat } from '../image/index.js';
+
+/** `same` keeps each source's own format (falling back to PNG for formats kinhue does not write). */
+export type FormatChoice = 'same' | OutputFormat;
+
+export const FORMAT_CHOICES: readonly FormatChoice[] = ['same', 'jpeg', 'png', 'tiff', 'webp'];
+
+/** The manifest's file name inside the output folder. */
+export const MANIFEST_NAME = 'kinhue-run.jsonl';
+
+export interface RestoreOptions {
+  /** Files, folders (searched recursively) and glob patterns. */
+  inputs: string[];
+  /** Output folder; created when missing. */
+  out: string;
+  /** Model folder. Default: the shipped model. */
+  model?: string;
+  /** Files processed at once, each in its own worker thread with its own model. Default: the number of cores. */
+  jobs?: number;
+  /** Long side in pixels at which the model runs. Default: the model's working size (512 for the shipped one). */
+  workSize?: number;
+  /** Annealed-mean temperature. Default: the model's own. */
+  temperature?: number;
+  /** Output format. Default 'same'. */
+  format?: FormatChoice;
+  /** JPEG/WebP quality 1-100. Default: the encoder's. */
+  quality?: number;
+  /** Write `<name>.confidence.png`. Default true. */
+  confidence?: boolean;
+  /** Redo files the manifest says are finished. */
+  force?: boolean;
+  /** Plan only: discover, name outputs, read the manifest, but run nothing and write nothing. */
+  dryRun?: boolean;
+  /** Pixel limit per image (decompression-bomb guard); default from KINHUE_MAX_PIXELS or the image module's. */
+  maxPixels?: number;
+  /** Stops the run: no new file starts; files being restored finish. */
+  signal?: AbortSignal;
+  /** Stops the run at once: workers are ended and temporary files removed; unfinished files stay unfinished. */
+  hardSignal?: AbortSignal;
+}
+
+/**
+ * The settings that shape a result. Two runs with equal settings (and an unchanged source) make the same
+ * file, so the manifest skips it. Add new output-shaping options (hints, reference photos) here.
+ */
+export interface RestoreSettings {
+  model: string;
+  weightsSha256: string;
+  workSize: number;
+  temperature: number;
+  format: FormatChoice;
+  quality: number | null;
+  confidence: boolean;
+}
+
+/**
+ * A short stable key of the settings (SHA-256 of their JSON with sorted keys, first 16 hex digits).
+ * @example
+ *   settingsKey(settings); // '3f2a9c...'
+ */
+export function settingsKey(settings: RestoreSettings): string {
+  const sorted = Object.fromEntries(Object.entries(settings).sort(([x], [y]) => (x < y ? -1 : x > y ? 1 : 0)));
+  return createHash('sha256').update(JSON.stringify(sorted)).digest('hex').slice(0, 16);
+}
+
+/** Default for --jobs: every core. */
+export function defaultJobs(): number {
+  return Math.max(1, availableParallelism());
+}

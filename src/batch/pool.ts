@@ -1,0 +1,107 @@
+/**
+ * Worker threads for a restore run: up to `size` of them, each with its own model, started on first
+ * need. The caller keeps at most `size` jobs in flight (p-limit), so a job always finds a free worker.
+ * A worker that dies takes only its current file with it; the next job starts a fresh one.
+ */
+import { existsSync } from 'node:fs';
+import { fileURLToPath } from 'node:url';
+import { Worker } from 'node:worker_threads';
+import type { FileJob, FileOutcome } from './restore-file.js';
+import { reviveError, type FromWorker, type WorkerInit } from './worker-protocol.js';
+
+/** The built worker script. src/batch and dist/batch are both two levels below the package root. */
+export const WORKER_SCRIPT = new URL('../../dist/batch/worker.js', import.meta.url);
+
+interface Slot {
+  worker: Worker;
+  ready: Promise<void>;
+  pending?: { id: number; resolve: (o: FileOutcome) => void; reject: (e: Error) => void };
+  dead: boolean;
+}
+
+export class WorkerPool {
+  private readonly slots: Slot[] = [];
+  private readonly idle: Slot[] = [];
+  private nextId = 1;
+  private closed = false;
+  /** The backend the workers run, once one has started. */
+  backend?: string;
+  /** A warning from the backend choice (e.g. the slow fallback), once one has started. */
+  backendWarning?: string;
+
+  constructor(
+    private readonly size: number,
+    private readonly init: WorkerInit,
+  ) {
+    if (!existsSync(fileURLToPath(WORKER_SCRIPT))) {
+      throw new Error(`kinhue is not built (${fileURLToPath(WORKER_SCRIPT)} is missing): run npm run build`);
+    }
+  }
+
+  /** Restores one file on a free worker. Rejects with the file's error, or with the model's if no worker can start. */
+  async run(job: FileJob): Promise<FileOutcome> {
+    if (this.closed) throw new Error('the worker pool is closed');
+    const slot = this.idle.pop() ?? this.spawn();
+    await slot.ready;
+    const id = this.nextId++;
+    try {
+      return await new Promise<FileOutcome>((resolve, reject) => {
+        slot.pending = { id, resolve, reject };
+        slot.worker.postMessage({ type: 'job', id, job });
+      });
+    } finally {
+      slot.pending = undefined;
+      if (!slot.dead && !this.closed) this.idle.push(slot);
+    }
+  }
+
+  /** Ends every worker at once; jobs in flight reject. */
+  async terminate(): Promise<void> {
+    this.closed = true;
+    await Promise.all(this.slots.map((s) => s.worker.terminate()));
+  }
+
+  /** Ends idle workers after the run. */
+  async close(): Promise<void> {
+    await this.terminate();
+  }
+
+  private spawn(): Slot {
+    if (this.slots.filter((s) => !s.dead).length >= this.size) throw new Error('more jobs in flight than workers');
+    const worker = new Worker(WORKER_SCRIPT, { workerData: this.init });
+    const slot: Slot = { worker, ready: Promise.resolve(), dead: false };
+    slot.ready = new Promise<void>((resolve, reject) => {
+      const fail = (error: Error): void => {
+        if (slot.dead) return;
+        slot.dead = true;
+        reject(error);
+        slot.pending?.reject(error);
+      };
+      worker.on('message', (message: FromWorker) => {
+        switch (message.type) {
+          case 'ready':
+            this.backend = message.backend;
+            this.backendWarning = message.warning;
+            resolve();
+            break;
+          case 'init-failed':
+            fail(reviveError(message.error));
+            void worker.terminate();
+            break;
+          case 'done':
+            if (slot.pending?.id === message.id) slot.pending.resolve(message.outcome);
+            break;
+          case 'failed':
+            if (slot.pending?.id === message.id) slot.pending.reject(reviveError(message.error));
+            break;
+        }
+      });
+      worker.on('error', (error) => fail(new Error(`a restore worker failed: ${error.message}`)));
+      worker.on('exit', (code) => fail(new Error(`a restore worker stopped (exit code ${code})`)));
+    });
+    // A failed start is reported through run(); keep Node from calling it unhandled meanwhile.
+    slot.ready.catch(() => undefined);
+    this.slots.push(slot);
+    return slot;
+  }
+}

@@ -1,0 +1,271 @@
+/**
+ * Restoring one scan: decode; L* at full resolution and depth; tone report; the model at the working
+ * size; colour carried to full resolution edge-aware; the scan's own L* with the new a*b* converted to
+ * sRGB at the scan's bit depth; the result, its confidence map and its provenance record written
+ * atomically. Full-resolution stages run in strips of rows, so a 100-megapixel scan never exists as
+ * float planes.
+ */
+import { stat, mkdir } from 'node:fs/promises';
+import { dirname, relative, sep } from 'node:path';
+import {
+  PlaneShrinker, greyToLightness, labToSrgb, limitChroma, resizeRows, sliceRows, srgbToLab,
+} from '../colour/index.js';
+import {
+  classifyTone, decodeImage, encodeImage, estimateStatement, provenanceXmp, supports16Bit, writeFileAtomic,
+  type BitDepth, type Pixels, type ToneReport,
+} from '../image/index.js';
+import type { KinhueModel } from '../model/index.js';
+import { VERSION } from '../version.js';
+import { fullSizeGrid, mean, workingColour, workingSize, type RefineStep } from './colourise.js';
+import { underFolder } from './discovery.js';
+import { fileSha256 } from './hash.js';
+import type { PlannedOutputs } from './naming.js';
+import type { RestoreSettings } from './options.js';
+
+/** One file's work, as the queue hands it to a worker (plain data: it crosses a thread boundary). */
+export interface FileJob {
+  /** Absolute source path. */
+  source: string;
+  /** Source path relative to the inputs' common base ('/'-separated). */
+  rel: string;
+  /** Absolute output folder. */
+  outDir: string;
+  outputs: PlannedOutputs;
+  settings: RestoreSettings;
+  maxPixels?: number;
+}
+
+/** The `<name>.kinhue.json` provenance record. Field names are a stable contract (the review sheet reads them). */
+export interface ProvenanceRecord {
+  kinhue: string;
+  /** Says the colour is estimated, not recorded. */
+  statement: string;
+  created: string;
+  source: {
+    path: string;
+    relative: string;
+    bytes: number;
+    sha256: string;
+    format: string;
+    width: number;
+    height: number;
+    bitDepth: BitDepth;
+    channels: number;
+    pages: number;
+  };
+  tone: { kind: ToneReport['kind']; tint: { a: number; b: number }; name: string | null };
+  result: { image: string; format: string; bitDepth: BitDepth; confidenceMap: string | null };
+  model: { name: string; weightsSha256: string; folder: string };
+  settings: RestoreSettings;
+  backend: string;
+  /** Mean model confidence over the image, 0-1. */
+  meanConfidence: number;
+  /** Milliseconds per stage. */
+  timings: { hash: number; decode: number; lightness: number; model: number; colour: number; encode: number; total: number };
+  warnings: string[];
+}
+
+export interface FileOutcome {
+  record: ProvenanceRecord;
+  size: number;
+  mtimeMs: number;
+  sha256: string;
+  seconds: number;
+}
+
+export interface RestoreFileOptions {
+  /** The backend name for the record. */
+  backend: string;
+  /** Applied to the working-size colour before upsampling (hints, reference photos). */
+  refine?: RefineStep;
+}
+
+/** Rows per strip: about a million pixels, so strip buffers stay near 20 MB whatever the image size. */
+function stripRows(width: number): number {
+  return Math.max(1, Math.floor((1 << 20) / width));
+}
+
+/**
+ * Restores one scan and writes its three outputs. Throws KinhueErrors for bad input or failed writes.
+ * @example
+ *   const outcome = await restoreFile(job, model, { backend: 'wasm' });
+ */
+export async function restoreFile(job: FileJob, model: KinhueModel, options: RestoreFileOptions): Promise<FileOutcome> {
+  const t0 = performance.now();
+  const clock = (() => {
+    let last = t0;
+    return () => {
+      const now = performance.now();
+      const d = now - last;
+      last = now;
+      return Math.round(d);
+    };
+  })();
+  const { settings, outputs } = job;
+  const info = await stat(job.source).catch(() => undefined);
+  const sha256 = await fileSha256(job.source);
+  const tHash = clock();
+
+  const decoded = await decodeImage(job.source, { maxPixels: job.maxPixels });
+  const px = decoded.pixels;
+  const { width: W, height: H, channels } = px;
+  const tDecode = clock();
+
+  // Pass 1: L* (and a*b* for the tone report) averaged down to the working size, strip by strip.
+  const ws = workingSize(W, H, settings.workSize);
+  const shrinkL = new PlaneShrinker(W, H, ws.width, ws.height);
+  const shrinkA = new PlaneShrinker(W, H, ws.width, ws.height);
+  const shrinkB = new PlaneShrinker(W, H, ws.width, ws.height);
+  const rowsPer = stripRows(W);
+  for (let y = 0; y < H; y += rowsPer) {
+    const rows = Math.min(rowsPer, H - y);
+    const strip = stripOf(px, y, rows);
+    if (channels >= 3) {
+      const lab = srgbToLab(strip, channels);
+      shrinkL.addRows(lab.L, y, rows);
+      shrinkA.addRows(lab.a, y, rows);
+      shrinkB.addRows(lab.b, y, rows);
+    } else {
+      shrinkL.addRows(greyToLightness(strip, channels), y, rows);
+    }
+  }
+  const Lwork = shrinkL.result();
+  const tone = classifyTone({ L: Lwork, a: shrinkA.result(), b: shrinkB.result() });
+  const warnings = [...decoded.warnings];
+  if (tone.kind === 'colour') warnings.push('the source is a colour photograph: only its lightness was used and its colours were replaced');
+  const tLightness = clock();
+
+  const work = await workingColour(Lwork, ws.width, ws.height, model, {
+    temperature: settings.temperature,
+    refine: options.refine,
+  });
+  const tModel = clock();
+
+  // Pass 2: the source's own L* with the new a*b*, to sRGB at the output depth; the confidence map beside it.
+  const grid = fullSizeGrid(work);
+  const outDepth: BitDepth = px.depth === 16 && supports16Bit(outputs.format) ? 16 : 8;
+  const alpha = channels === 2 || channels === 4;
+  const outChannels = alpha ? 4 : 3;
+  const out = outDepth === 16 ? new Uint16Array(W * H * outChannels) : new Uint8Array(W * H * outChannels);
+  const conf = settings.confidence ? new Uint8Array(W * H) : undefined;
+  const a = new Float32Array(rowsPer * W);
+  const b = new Float32Array(rowsPer * W);
+  const c = new Float32Array(rowsPer * W);
+  for (let y = 0; y < H; y += rowsPer) {
+    const rows = Math.min(rowsPer, H - y);
+    const n = rows * W;
+    const strip = stripOf(px, y, rows);
+    const L = greyToLightness(strip, channels);
+    const sa = a.subarray(0, n);
+    const sb = b.subarray(0, n);
+    sliceRows(grid, L, W, H, y, rows, sa, sb);
+    limitChroma(L, sa, sb);
+    const target = out.subarray(y * W * outChannels, (y + rows) * W * outChannels);
+    labToSrgb({ L, a: sa, b: sb }, target, outChannels);
+    if (alpha) copyAlpha(strip, channels, px.depth, target, outDepth);
+    if (conf) {
+      const sc = c.subarray(0, n);
+      resizeRows(work.confidence, work.confidenceWidth, work.confidenceHeight, W, H, y, rows, sc);
+      const o = y * W;
+      for (let i = 0; i < n; i++) conf[o + i] = Math.round(Math.min(1, Math.max(0, sc[i]!)) * 255);
+    }
+  }
+  const tColour = clock();
+
+  const imagePath = underFolder(job.outDir, outputs.image);
+  await mkdir(dirname(imagePath), { recursive: true });
+  const sourceFromOutput = relative(dirname(imagePath), job.source).split(sep).join('/');
+  const meanConfidence = mean(work.confidence);
+  const xmp = provenanceXmp({
+    sourceFile: sourceFromOutput,
+    derivedFromHash: sha256,
+    extra: {
+      model: settings.model,
+      meanConfidence: meanConfidence.toFixed(3),
+      ...(conf ? { confidenceMap: baseName(outputs.confidence) } : {}),
+      record: baseName(outputs.record),
+    },
+  });
+  const encoded = await encodeImage(
+    { width: W, height: H, channels: outChannels, depth: outDepth, data: out } as Pixels,
+    imagePath,
+    { format: outputs.format, quality: settings.quality ?? undefined, exif: decoded.exif, icc: decoded.icc, xmp },
+  );
+  warnings.push(...encoded.warnings);
+  if (conf) {
+    await encodeImage({ width: W, height: H, channels: 1, depth: 8, data: conf }, underFolder(job.outDir, outputs.confidence), {
+      format: 'png',
+    });
+  }
+  const tEncode = clock();
+
+  const record: ProvenanceRecord = {
+    kinhue: VERSION,
+    statement: estimateStatement(job.source),
+    created: new Date().toISOString(),
+    source: {
+      path: job.source,
+      relative: job.rel,
+      bytes: info?.size ?? 0,
+      sha256,
+      format: decoded.format,
+      width: W,
+      height: H,
+      bitDepth: decoded.bitDepth,
+      channels,
+      pages: decoded.pageCount,
+    },
+    tone: { kind: tone.kind, tint: { a: round2(tone.tint.a), b: round2(tone.tint.b) }, name: tone.name ?? null },
+    result: {
+      image: baseName(outputs.image),
+      format: outputs.format,
+      bitDepth: encoded.depth,
+      confidenceMap: conf ? baseName(outputs.confidence) : null,
+    },
+    model: { name: settings.model, weightsSha256: settings.weightsSha256, folder: model.dir ?? '' },
+    settings,
+    backend: options.backend,
+    meanConfidence: Number(meanConfidence.toFixed(4)),
+    timings: {
+      hash: tHash, decode: tDecode, lightness: tLightness, model: tModel, colour: tColour, encode: tEncode,
+      total: 0,
+    },
+    warnings,
+  };
+  record.timings.total = Math.round(performance.now() - t0);
+  await writeFileAtomic(underFolder(job.outDir, outputs.record), `${JSON.stringify(record, null, 2)}\n`);
+  return {
+    record,
+    size: info?.size ?? 0,
+    mtimeMs: info?.mtimeMs ?? 0,
+    sha256,
+    seconds: (performance.now() - t0) / 1000,
+  };
+}
+
+/** Rows y to y + rows of the interleaved samples, without copying. */
+function stripOf(px: Pixels, y: number, rows: number): Uint8Array | Uint16Array {
+  const per = px.width * px.channels;
+  return px.data.subarray(y * per, (y + rows) * per);
+}
+
+/** Copies the source's alpha into the last channel of the output strip, converting depth if needed. */
+function copyAlpha(
+  src: Uint8Array | Uint16Array,
+  channels: number,
+  srcDepth: BitDepth,
+  out: Uint8Array | Uint16Array,
+  outDepth: BitDepth,
+): void {
+  const n = src.length / channels;
+  const scale = srcDepth === outDepth ? 1 : outDepth === 8 ? 255 / 65535 : 65535 / 255;
+  for (let i = 0; i < n; i++) out[i * 4 + 3] = Math.round(src[i * channels + channels - 1]! * scale);
+}
+
+function baseName(rel: string): string {
+  return rel.slice(rel.lastIndexOf('/') + 1);
+}
+
+function round2(v: number): number {
+  return Math.round(v * 100) / 100;
+}

@@ -1,0 +1,149 @@
+/**
+ * `kinhue restore <inputs...> --out <dir>`: the batch colourisation run over folders of scans.
+ */
+import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
+import { FORMAT_CHOICES, restore, type FormatChoice, type RestoreEvent } from '../../batch/index.js';
+import { UsageError } from '../../errors.js';
+import { ExitCode } from '../exit-codes.js';
+import { Progress } from '../progress.js';
+import { formatPlan, formatSummary, progressText, summaryToJson } from '../restore-report.js';
+
+const EXAMPLE = 'kinhue restore demo-photos/scans --out demo-restored';
+
+/** Exit code of a run stopped with Ctrl-C (128 + SIGINT, the shell convention). */
+export const INTERRUPTED_EXIT_CODE = 130;
+
+/** The `restore` command line as yargs parses it. */
+export interface RestoreArgs {
+  inputs: string[];
+  out: string;
+  model?: string;
+  jobs?: number;
+  'work-size'?: number;
+  temperature?: number;
+  format: FormatChoice;
+  quality?: number;
+  confidence: boolean;
+  force: boolean;
+  'dry-run': boolean;
+  json: boolean;
+}
+
+/**
+ * Checks a parsed `restore` command line. Pure: throws UsageError with an example.
+ * @example
+ *   check({ inputs: ['scans/'], out: 'restored/' }); // true
+ */
+export function check(argv: Partial<RestoreArgs>): true {
+  const fail = (message: string): never => {
+    throw new UsageError(`${message}\nExample usage: ${EXAMPLE}`);
+  };
+  const inputs = argv.inputs ?? [];
+  if (inputs.length === 0 || inputs.some((p) => typeof p !== 'string' || p.trim() === '')) fail('name at least one scan, folder or glob pattern');
+  if (typeof argv.out !== 'string' || argv.out.trim() === '') fail('--out needs the folder to write results into');
+  if (argv.model !== undefined && (typeof argv.model !== 'string' || argv.model.trim() === '')) fail('--model needs a model folder');
+  const { jobs, temperature, quality, format } = argv;
+  const size = argv['work-size'];
+  if (jobs !== undefined && !(Number.isInteger(jobs) && jobs >= 1 && jobs <= 256)) fail(`--jobs must be a whole number from 1 to 256, got ${jobs}`);
+  if (size !== undefined && !(Number.isInteger(size) && size >= 64 && size <= 4096)) fail(`--work-size must be a whole number from 64 to 4096, got ${size}`);
+  if (temperature !== undefined && !(Number.isFinite(temperature) && temperature > 0 && temperature <= 1)) {
+    fail(`--temperature must be above 0 and at most 1 (lower is more vivid), got ${temperature}`);
+  }
+  if (quality !== undefined && !(Number.isInteger(quality) && quality >= 1 && quality <= 100)) fail(`--quality must be a whole number from 1 to 100, got ${quality}`);
+  if (format !== undefined && !FORMAT_CHOICES.includes(format)) fail(`--format must be one of ${FORMAT_CHOICES.join(', ')}, got ${format}`);
+  return true;
+}
+
+export const command: CommandModule<object, RestoreArgs> = {
+  command: 'restore <inputs...>',
+  describe: 'colourise scans in batches: results keep each scan\'s lightness, size and bit depth',
+  builder: (yargs: Argv) =>
+    (yargs
+      .positional('inputs', { type: 'string', array: true, describe: 'scans: files, folders (searched recursively) and glob patterns' })
+      .option('out', { type: 'string', demandOption: true, describe: 'folder for results, confidence maps, records and the run manifest' })
+      .option('model', { type: 'string', describe: 'model folder (default: the shipped model, models/kinhue-base)' })
+      .option('jobs', { type: 'number', describe: 'files restored at once, each on its own core (default: the number of cores)' })
+      .option('work-size', { type: 'number', describe: 'long side in pixels at which the model runs (default 512)' })
+      .option('temperature', { type: 'number', describe: 'colour decoding temperature, above 0 to 1; lower is more vivid (default: the model\'s)' })
+      .option('format', { type: 'string', choices: FORMAT_CHOICES as string[], default: 'same', describe: 'output format; same keeps each scan\'s own' })
+      .option('quality', { type: 'number', describe: 'JPEG and WebP quality 1-100' })
+      .option('confidence', { type: 'boolean', default: true, describe: 'write <name>.confidence.png (white = confident); --no-confidence to skip' })
+      .option('force', { type: 'boolean', default: false, describe: 'redo files an earlier run finished' })
+      .option('dry-run', { type: 'boolean', default: false, describe: 'list what would run; write nothing' })
+      .option('json', { type: 'boolean', default: false, describe: 'print a machine-readable summary on stdout' })
+      .example(EXAMPLE, 'restore the demo album with the shipped model')
+      .example('kinhue restore "archive/**/*.tif" --out restored --format png --jobs 2', 'TIFF scans found by a glob, written as PNG on two cores')
+      .epilog('Run the same command again to finish an interrupted run: finished files are skipped, failed ones retried.\n' +
+        'Exit codes: 0 all done, 1 some files failed (listed), 2 usage error, 3 internal error, 130 stopped with Ctrl-C.') as unknown as Argv<RestoreArgs>)
+      .check((argv) => check(argv as Partial<RestoreArgs>)),
+  handler: async (argv: ArgumentsCamelCase<RestoreArgs>) => {
+    const progress = new Progress({ plainInterval: 0 });
+    const soft = new AbortController();
+    const hard = new AbortController();
+    let interrupts = 0;
+    const onSigint = (): void => {
+      interrupts++;
+      if (interrupts === 1) {
+        progress.log('stopping: no new file starts, files in progress finish (Ctrl-C again to stop at once)');
+        soft.abort();
+      } else hard.abort();
+    };
+    let runStart = 0;
+    const onEvent = (event: RestoreEvent): void => {
+      switch (event.type) {
+        case 'plan':
+          for (const note of event.notes) progress.log(`note: ${note}`);
+          if (!argv['dry-run']) progress.log(`restoring ${event.toRun} of ${event.files.length} files into ${event.outDir}${event.skipped ? ` (${event.skipped} finished earlier)` : ''}`);
+          runStart = performance.now();
+          break;
+        case 'backend':
+          if (event.warning) progress.log(`warning: ${event.warning}`);
+          break;
+        case 'done':
+        case 'failed': {
+          const text = progressText(event.done, event.failed, event.total, (performance.now() - runStart) / 1000);
+          if (event.type === 'failed') progress.log(`failed: ${event.rel}: ${event.failure.code} ${event.failure.message}`);
+          else if (!process.stderr.isTTY) progress.log(`done: ${event.rel} -> ${event.output} (${event.seconds.toFixed(1)} s)`);
+          if (event.type === 'done') for (const w of event.warnings) progress.log(`  ${event.rel}: ${w}`);
+          if (process.stderr.isTTY) progress.update((event.done + event.failed) / event.total, text, true);
+          else progress.log(text);
+          break;
+        }
+        case 'start':
+        case 'stopping':
+          break;
+      }
+    };
+    process.on('SIGINT', onSigint);
+    let summary;
+    try {
+      summary = await restore(
+        {
+          inputs: argv.inputs,
+          out: argv.out,
+          model: argv.model,
+          jobs: argv.jobs,
+          workSize: argv['work-size'],
+          temperature: argv.temperature,
+          format: argv.format,
+          quality: argv.quality,
+          confidence: argv.confidence,
+          force: argv.force,
+          dryRun: argv['dry-run'],
+          signal: soft.signal,
+          hardSignal: hard.signal,
+        },
+        onEvent,
+      );
+    } finally {
+      process.off('SIGINT', onSigint);
+      progress.done();
+    }
+    if (argv.json) process.stdout.write(summaryToJson(summary));
+    else {
+      if (summary.dryRun) console.log(formatPlan(summary.files));
+      console.log(formatSummary(summary));
+    }
+    process.exitCode = summary.interrupted ? INTERRUPTED_EXIT_CODE : summary.failed.length ? ExitCode.SOME_FAILED : ExitCode.OK;
+  },
+};

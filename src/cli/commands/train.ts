@@ -1,0 +1,33 @@
+/**
+ * `kinhue train <photos...> --out <dir>`: trains a new model from scratch on folders of colour
+ * photographs, within a time and/or step budget, resumable.
+ */
+import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
+import { fit } from '../../training/index.js';
+import { ExitCode } from '../exit-codes.js';
+import { checkFitArgs, fitOptions, fitOptionsFrom, runWithProgress, type FitArgs } from '../training-report.js';
+
+const EXAMPLE = 'kinhue train photos/ --out models/mine --hours 2 --seed 1';
+
+/**
+ * Checks a parsed `train` command line. Pure: throws UsageError with an example.
+ * @example
+ *   check({ photos: ['photos/'], out: 'models/mine', hours: 1 }); // true
+ */
+export function check(argv: Partial<FitArgs>): true {
+  return checkFitArgs(argv, EXAMPLE);
+}
+
+export const command: CommandModule<object, FitArgs> = {
+  command: 'train <photos...>',
+  describe: 'train a new model on folders of colour photographs (time budget, resumable)',
+  builder: (yargs: Argv) =>
+    fitOptions(yargs)
+      .example(EXAMPLE, 'train for two hours; add --resume after an interruption')
+      .example('kinhue train photos/ --out models/mine --steps 2000 --batch 8 --crop 96', 'a fixed number of smaller steps')
+      .check((argv) => check(argv as Partial<FitArgs>)),
+  handler: async (argv: ArgumentsCamelCase<FitArgs>) => {
+    await runWithProgress('train', (signal, onEvent) => fit({ ...fitOptionsFrom(argv), mode: 'train', signal }, onEvent));
+    process.exitCode = ExitCode.OK;
+  },
+};

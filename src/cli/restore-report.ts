@@ -1,0 +1,79 @@
+/**
+ * What `kinhue restore` prints: the dry-run plan, per-file lines and the progress text, the final
+ * summary for people, and the JSON summary for machines. Pure functions returning text.
+ */
+import type { PlannedFile, RestoreSummary } from '../batch/index.js';
+import { formatDuration } from './progress.js';
+
+/**
+ * One line per discovered file: what a run would do with it.
+ * @example
+ *   formatPlan(summary.files); // "run    scans/a.jpg -> a.jpg\nskip   scans/b.tif -> b.tif (finished)"
+ */
+export function formatPlan(files: PlannedFile[]): string {
+  const label = { run: 'run  ', retry: 'retry', skip: 'skip ' } as const;
+  return files
+    .map((f) => `${label[f.action]}  ${f.rel} -> ${f.outputs.image}${f.action === 'skip' ? '  (finished earlier, same settings)' : f.action === 'retry' ? '  (failed earlier)' : ''}`)
+    .join('\n');
+}
+
+/**
+ * The progress text: files done of all, rate and time left.
+ * @example
+ *   progressText(3, 1, 40, 90); // "4/40 files  2.7/min  ~14m 00s left"
+ */
+export function progressText(done: number, failed: number, total: number, elapsedSeconds: number): string {
+  const finished = done + failed;
+  const perMinute = elapsedSeconds > 0 ? (finished * 60) / elapsedSeconds : 0;
+  const left = finished > 0 ? ((total - finished) * elapsedSeconds) / finished : NaN;
+  const rate = finished > 0 ? `  ${perMinute.toFixed(1)}/min  ~${formatDuration(left)} left` : '';
+  return `${finished}/${total} files${failed ? ` (${failed} failed)` : ''}${rate}`;
+}
+
+/**
+ * The summary for people: counts, time, the failures with their messages and next steps, and where
+ * the manifest is.
+ * @example
+ *   console.log(formatSummary(summary));
+ */
+export function formatSummary(summary: RestoreSummary): string {
+  const lines: string[] = [];
+  if (summary.dryRun) {
+    const run = summary.files.filter((f) => f.action !== 'skip').length;
+    lines.push(`dry run: ${run} of ${summary.total} files would be restored into ${summary.outDir}; nothing was written`);
+    return lines.join('\n');
+  }
+  const parts = [`${summary.done} restored`];
+  if (summary.skipped) parts.push(`${summary.skipped} skipped (finished earlier)`);
+  if (summary.failed.length) parts.push(`${summary.failed.length} failed`);
+  if (summary.notRun) parts.push(`${summary.notRun} not run`);
+  lines.push(`kinhue restore: ${parts.join(', ')} of ${summary.total} files in ${formatDuration(summary.seconds)} -> ${summary.outDir}`);
+  if (summary.interrupted) lines.push('stopped early: run the same command again to finish the rest');
+  if (summary.failed.length) {
+    lines.push('failed:');
+    for (const f of summary.failed) {
+      lines.push(`  ${f.rel}: ${f.code} ${f.message}`);
+      if (f.hint) lines.push(`    next step: ${f.hint}`);
+    }
+  }
+  lines.push(`manifest: ${summary.manifest}`);
+  if (summary.done) lines.push('The colours are estimates by a model, not a record: keep the scans as the originals.');
+  return lines.join('\n');
+}
+
+/**
+ * The summary as JSON (one object, newline-terminated), for --json.
+ * @example
+ *   process.stdout.write(summaryToJson(summary));
+ */
+export function summaryToJson(summary: RestoreSummary): string {
+  const files = summary.files.map((f) => ({
+    source: f.source,
+    relative: f.rel,
+    action: f.action,
+    output: f.outputs.image,
+    confidenceMap: summary.settings.confidence ? f.outputs.confidence : null,
+    record: f.outputs.record,
+  }));
+  return `${JSON.stringify({ ...summary, files }, null, 2)}\n`;
+}

@@ -1,0 +1,166 @@
+/**
+ * What `train` and `tune` share on the command line: their common options, checks, the progress
+ * display wired to the fit loop's events, and the closing table of held-out figures.
+ */
+import type { Argv } from 'yargs';
+import { UsageError } from '../errors.js';
+import type { Evaluation, FitEvent, FitOptions, FitResult } from '../training/index.js';
+import { formatDuration, Progress } from './progress.js';
+
+/** Options both verbs take, as yargs parses them. */
+export interface FitArgs {
+  photos: string[];
+  out?: string;
+  hours?: number;
+  steps?: number;
+  batch: number;
+  crop: number;
+  seed: number;
+  holdout: number;
+  resume: boolean;
+  'learning-rate'?: number;
+  'eval-every': number;
+  'checkpoint-minutes': number;
+}
+
+/** Adds the shared option table. */
+export function fitOptions<T>(yargs: Argv<T>): Argv<T & FitArgs> {
+  return yargs
+    .positional('photos', { type: 'string', array: true, describe: 'colour photos: files and folders (searched recursively)' })
+    .option('out', { type: 'string', describe: 'model folder to write (created if missing)' })
+    .option('hours', { type: 'number', describe: 'time budget in hours (all resumed sessions together)' })
+    .option('steps', { type: 'number', describe: 'step budget (all resumed sessions together)' })
+    .option('batch', { type: 'number', default: 16, describe: 'crops per step' })
+    .option('crop', { type: 'number', default: 128, describe: 'crop side in pixels, a multiple of 16' })
+    .option('seed', { type: 'number', default: 1, describe: 'seed of every random choice (same seed, same model)' })
+    .option('holdout', { type: 'number', default: 0.1, describe: 'fraction of the photos held out for evaluation (at least 2 photos)' })
+    .option('resume', { type: 'boolean', default: false, describe: 'continue the run whose checkpoint is in --out' })
+    .option('learning-rate', { type: 'number', describe: 'optimiser learning rate' })
+    .option('eval-every', { type: 'number', default: 100, describe: 'evaluate on the held-out photos every this many steps' })
+    .option('checkpoint-minutes', { type: 'number', default: 5, describe: 'minutes between checkpoints' }) as unknown as Argv<T & FitArgs>;
+}
+
+/** The checks both verbs share; `example` is the verb's example command. Pure: throws UsageError. */
+export function checkFitArgs(argv: Partial<FitArgs>, example: string): true {
+  const fail = (message: string): never => {
+    throw new UsageError(`${message}\nExample usage: ${example}`);
+  };
+  const photos = argv.photos ?? [];
+  if (photos.length === 0) fail('name at least one photo folder or file');
+  if (!argv.out) fail('--out <model folder> is required');
+  if (argv.hours === undefined && argv.steps === undefined) fail('give a budget: --hours, --steps or both');
+  if (argv.hours !== undefined && !(argv.hours > 0)) fail(`--hours must be above 0, got ${argv.hours}`);
+  if (argv.steps !== undefined && !(Number.isInteger(argv.steps) && argv.steps >= 1)) fail(`--steps must be a whole number of at least 1, got ${argv.steps}`);
+  if (argv.batch !== undefined && !(Number.isInteger(argv.batch) && argv.batch >= 1 && argv.batch <= 256)) fail(`--batch must be a whole number from 1 to 256, got ${argv.batch}`);
+  if (argv.crop !== undefined && !(Number.isInteger(argv.crop) && argv.crop >= 32 && argv.crop <= 512 && argv.crop % 16 === 0)) {
+    fail(`--crop must be a multiple of 16 from 32 to 512, got ${argv.crop}`);
+  }
+  if (argv.seed !== undefined && !(Number.isInteger(argv.seed) && argv.seed >= 0)) fail(`--seed must be a whole number of 0 or more, got ${argv.seed}`);
+  if (argv.holdout !== undefined && !(argv.holdout > 0 && argv.holdout <= 0.5)) fail(`--holdout must be a fraction above 0 and at most 0.5, got ${argv.holdout}`);
+  const lr = argv['learning-rate'];
+  if (lr !== undefined && !(lr > 0 && lr < 1)) fail(`--learning-rate must be between 0 and 1, got ${lr}`);
+  const every = argv['eval-every'];
+  if (every !== undefined && !(Number.isInteger(every) && every >= 1)) fail(`--eval-every must be a whole number of at least 1, got ${every}`);
+  const minutes = argv['checkpoint-minutes'];
+  if (minutes !== undefined && !(minutes > 0)) fail(`--checkpoint-minutes must be above 0, got ${minutes}`);
+  return true;
+}
+
+/** The fit options the shared arguments stand for. */
+export function fitOptionsFrom(argv: FitArgs): FitOptions {
+  return {
+    photos: argv.photos,
+    out: argv.out!,
+    hours: argv.hours,
+    steps: argv.steps,
+    batch: argv.batch,
+    crop: argv.crop,
+    seed: argv.seed,
+    holdout: argv.holdout,
+    resume: argv.resume,
+    learningRate: argv['learning-rate'],
+    evalEvery: argv['eval-every'],
+    checkpointMinutes: argv['checkpoint-minutes'],
+  };
+}
+
+/**
+ * Runs `run` with a progress display and Ctrl-C handling (the first Ctrl-C stops after the current
+ * step and writes a checkpoint), then prints the held-out table.
+ */
+export async function runWithProgress(
+  verb: string,
+  run: (signal: AbortSignal, onEvent: (event: FitEvent) => void) => Promise<FitResult>,
+): Promise<FitResult> {
+  const progress = new Progress();
+  const controller = new AbortController();
+  const onSigint = (): void => {
+    progress.log(`kinhue ${verb}: stopping after this step and writing a checkpoint (Ctrl-C again to quit at once)`);
+    controller.abort();
+    process.off('SIGINT', onSigint);
+  };
+  process.on('SIGINT', onSigint);
+  const onEvent = (event: FitEvent): void => {
+    switch (event.type) {
+      case 'reading':
+        progress.update(event.done / event.total, `reading photos ${event.done}/${event.total}`, event.done === event.total);
+        break;
+      case 'data':
+        progress.log(
+          `${event.train + event.holdout} colour photos: ${event.train} to learn from, ${event.holdout} held out` +
+            (event.grey ? `; ${event.grey} grey or toned skipped` : '') +
+            (event.unreadable.length ? `; ${event.unreadable.length} unreadable skipped` : ''),
+        );
+        for (const u of event.unreadable) progress.log(`  skipped ${u.file}: ${u.reason}`);
+        break;
+      case 'resumed':
+        progress.log(`resuming at step ${event.step} (${formatDuration(event.seconds)} trained so far)`);
+        break;
+      case 'baseline':
+        progress.log(`held-out CIEDE2000: grey ${event.grey.ciede2000.toFixed(2)}, model at start ${event.start.ciede2000.toFixed(2)}`);
+        break;
+      case 'step':
+        progress.update(
+          event.fraction,
+          `step ${event.step}  loss ${event.loss.toFixed(3)}` +
+            (event.heldOut === undefined ? '' : `  held-out CIEDE2000 ${event.heldOut.toFixed(2)}`) +
+            `  ${formatDuration(event.secondsLeft)} left`,
+        );
+        break;
+      case 'evaluation':
+        progress.log(
+          `step ${event.step}: loss ${event.loss.toFixed(3)}, held-out CIEDE2000 ${event.evaluation.ciede2000.toFixed(2)}, ` +
+            `PSNR ${event.evaluation.psnr.toFixed(2)} dB, colourfulness ${event.evaluation.colourfulness.toFixed(1)}${event.best ? ' (best so far)' : ''}`,
+        );
+        break;
+      case 'checkpoint':
+      case 'model':
+        break;
+    }
+  };
+  try {
+    const result = await run(controller.signal, onEvent);
+    progress.done();
+    console.log(summaryTable(result));
+    return result;
+  } finally {
+    process.off('SIGINT', onSigint);
+    progress.done();
+  }
+}
+
+/** The closing lines: held-out figures before and after, beside the grey baseline. */
+export function summaryTable(result: FitResult): string {
+  const row = (label: string, e: Evaluation): string =>
+    `  ${label.padEnd(28)}${e.ciede2000.toFixed(2).padStart(10)}${e.psnr.toFixed(2).padStart(10)}${e.colourfulness.toFixed(1).padStart(15)}`;
+  const { grey, before, after, keptStep } = result.heldOut;
+  const stop = result.stoppedBy === 'interrupted' ? 'interrupted; continue with --resume' : `stopped by the ${result.stoppedBy === 'time' ? 'time' : 'step'} budget`;
+  return [
+    `${result.mode === 'tune' ? 'tuned' : 'trained'} ${result.steps} steps (${result.crops} crops) in ${formatDuration(result.seconds)}, ${stop}`,
+    `model written to ${result.out} (weights of step ${keptStep})`,
+    `held-out photos (${after.photos})               CIEDE2000  PSNR (dB)  colourfulness`,
+    row('grey (L* only)', grey),
+    row('model before', before),
+    row(`model after (step ${keptStep})`, after),
+  ].join('\n');
+}

@@ -1,0 +1,360 @@
+/**
+ * Edge-aware upsampling of a*b* guided by L*: joint bilateral upsampling (Kopf, Cohen, Lischinski &
+ * Uyttendaele 2007) computed on a bilateral grid (Chen, Paris & Durand 2007). Each low-resolution colour
+ * sample is splatted into a 3-D grid over (x, y, L*); the grid is blurred; every full-resolution pixel then
+ * reads the grid at its own position and its own L*, so it takes its colour from nearby samples of similar
+ * lightness and colour stops at the edges of the scan's lightness. Unlike a linear guided fit, the result
+ * is always a weighted mean of predicted colours, so film grain in L* does not turn into colour noise.
+ * The full-resolution stage works row by row, so huge images are processed in strips.
+ */
+
+export interface BilateralUpsampleOptions {
+  /** Grid cell side in low-resolution pixels. Default 1. */
+  cell?: number;
+  /**
+   * Grid step along L* (L* units). Colour from samples more than about two steps darker or lighter is
+   * ignored. Default 5: above the L* spread of film grain at the working size, below the contrast of
+   * an edge worth keeping colour apart at (common practice for bilateral grids: sigma_r near 0.05-0.1 of range).
+   */
+  rangeStep?: number;
+  /** Passes of the [1 2 1] blur across x and y. Default 1. */
+  blurPasses?: number;
+  /** Optional per-sample weights (for example the model's confidence), low-resolution size. */
+  weights?: Float32Array;
+}
+
+/** A blurred bilateral grid of homogeneous (w*a, w*b, w) triples, ready to be read at full resolution. */
+export interface BilateralGrid {
+  /** Grid size: x cells, y cells, L* levels. */
+  gw: number;
+  gh: number;
+  gz: number;
+  rangeStep: number;
+  /** Low-resolution size and the cell side, to map full-resolution pixels onto the grid. */
+  width: number;
+  height: number;
+  cell: number;
+  /** Interleaved [y][x][z][a, b, w]. */
+  data: Float32Array;
+}
+
+/** Weight of the spatially blurred plain colour every grid cell gets, so no pixel reads an empty grid. */
+const BACKGROUND = 1e-3;
+
+/**
+ * Builds the grid from low-resolution L* (averaged over each sample's footprint) and a*, b*.
+ * @example
+ *   const grid = bilateralGrid(lowL, lowA, lowB, 128, 96);
+ *   const out = { a: new Float32Array(512 * 384), b: new Float32Array(512 * 384) };
+ *   sliceRows(grid, fullL, 512, 384, 0, 384, out.a, out.b);
+ */
+export function bilateralGrid(
+  guide: Float32Array,
+  a: Float32Array,
+  b: Float32Array,
+  width: number,
+  height: number,
+  options: BilateralUpsampleOptions = {},
+): BilateralGrid {
+  const cell = Math.max(1, Math.round(options.cell ?? 1));
+  const step = options.rangeStep ?? 5;
+  const gw = Math.ceil(width / cell);
+  const gh = Math.ceil(height / cell);
+  const gz = Math.ceil(100 / step) + 1;
+  const data = new Float32Array(gw * gh * gz * 3);
+  const plain = new Float32Array(gw * gh * 3);
+  const weights = options.weights;
+  for (let y = 0; y < height; y++) {
+    const gy = (y / cell) | 0;
+    for (let x = 0; x < width; x++) {
+      const i = y * width + x;
+      const w = weights ? Math.max(1e-6, weights[i]!) : 1;
+      const av = a[i]!;
+      const bv = b[i]!;
+      const gxy = gy * gw + ((x / cell) | 0);
+      let z = clamp(guide[i]! / step, 0, gz - 1);
+      const z0 = Math.min(gz - 2, Math.floor(z));
+      z -= z0;
+      const o = (gxy * gz + z0) * 3;
+      const w0 = w * (1 - z);
+      const w1 = w * z;
+      data[o] += w0 * av;
+      data[o + 1] += w0 * bv;
+      data[o + 2] += w0;
+      data[o + 3] += w1 * av;
+      data[o + 4] += w1 * bv;
+      data[o + 5] += w1;
+      plain[gxy * 3] += w * av;
+      plain[gxy * 3 + 1] += w * bv;
+      plain[gxy * 3 + 2] += w;
+    }
+  }
+  // Blur [1 2 1] / 4 along each axis (twice in x and y: colour fills each L* level a few cells out).
+  const cellStride = gz * 3;
+  const rowStride = gw * cellStride;
+  for (let pass = 0; pass < (options.blurPasses ?? 1); pass++) {
+    blurAxis(data, gh, rowStride, gw, cellStride, cellStride); // x
+    blurAxis(data, 1, 0, gh, rowStride, rowStride); // y
+  }
+  blurAxis(data, gw * gh, cellStride, gz, 3, 3); // L*
+  blurAxis(plain, gh, gw * 3, gw, 3, 3);
+  blurAxis(plain, 1, 0, gh, gw * 3, gw * 3);
+  for (let g = 0; g < gw * gh; g++) {
+    const pw = plain[g * 3 + 2]!;
+    if (!(pw > 0)) continue;
+    const pa = (BACKGROUND * plain[g * 3]!) / pw;
+    const pb = (BACKGROUND * plain[g * 3 + 1]!) / pw;
+    for (let z = 0; z < gz; z++) {
+      const o = (g * gz + z) * 3;
+      data[o] += pa;
+      data[o + 1] += pb;
+      data[o + 2] += BACKGROUND;
+    }
+  }
+  return { gw, gh, gz, rangeStep: step, width, height, cell, data };
+}
+
+/**
+ * Reads the grid for `rows` full-resolution rows of L* starting at row `y0` of a `fullWidth` x
+ * `fullHeight` image, writing a* and b* for those rows (row-major from row y0).
+ * @example
+ *   sliceRows(grid, stripL, 4000, 3000, 256, 64, stripA, stripB);
+ */
+export function sliceRows(
+  grid: BilateralGrid,
+  L: Float32Array,
+  fullWidth: number,
+  fullHeight: number,
+  y0: number,
+  rows: number,
+  outA: Float32Array,
+  outB: Float32Array,
+): void {
+  const { gw, gh, gz, data, cell } = grid;
+  const zMax = gz - 1;
+  const inv = 1 / grid.rangeStep;
+  const cx0 = new Int32Array(fullWidth);
+  const cx1 = new Int32Array(fullWidth);
+  const ctx = new Float32Array(fullWidth);
+  for (let x = 0; x < fullWidth; x++) {
+    const [i0, i1, t] = gridPoint(x, fullWidth, grid.width, cell, gw);
+    cx0[x] = i0 * gz * 3;
+    cx1[x] = i1 * gz * 3;
+    ctx[x] = t;
+  }
+  const rowStride = gw * gz * 3;
+  for (let j = 0; j < rows; j++) {
+    const [r0, r1, ty] = gridPoint(y0 + j, fullHeight, grid.height, cell, gh);
+    const o0 = r0 * rowStride;
+    const o1 = r1 * rowStride;
+    const base = j * fullWidth;
+    for (let x = 0; x < fullWidth; x++) {
+      let z = L[base + x]! * inv;
+      if (!(z > 0)) z = 0;
+      else if (z > zMax) z = zMax;
+      let z0 = z | 0;
+      if (z0 > gz - 2) z0 = gz - 2;
+      const tz = z - z0;
+      const tx = ctx[x]!;
+      const wz = z0 * 3;
+      const p00 = o0 + cx0[x]! + wz;
+      const p01 = o0 + cx1[x]! + wz;
+      const p10 = o1 + cx0[x]! + wz;
+      const p11 = o1 + cx1[x]! + wz;
+      const w00 = (1 - ty) * (1 - tx);
+      const w01 = (1 - ty) * tx;
+      const w10 = ty * (1 - tx);
+      const w11 = ty * tx;
+      let sa = 0;
+      let sb = 0;
+      let sw = 0;
+      for (let k = 0; k < 2; k++) {
+        const wk = k === 0 ? 1 - tz : tz;
+        const d = k * 3;
+        const c00 = w00 * wk;
+        const c01 = w01 * wk;
+        const c10 = w10 * wk;
+        const c11 = w11 * wk;
+        sa += c00 * data[p00 + d]! + c01 * data[p01 + d]! + c10 * data[p10 + d]! + c11 * data[p11 + d]!;
+        sb += c00 * data[p00 + d + 1]! + c01 * data[p01 + d + 1]! + c10 * data[p10 + d + 1]! + c11 * data[p11 + d + 1]!;
+        sw += c00 * data[p00 + d + 2]! + c01 * data[p01 + d + 2]! + c10 * data[p10 + d + 2]! + c11 * data[p11 + d + 2]!;
+      }
+      outA[base + x] = sw > 0 ? sa / sw : 0;
+      outB[base + x] = sw > 0 ? sb / sw : 0;
+    }
+  }
+}
+
+/**
+ * Edge-aware upsampling of whole planes. For images too large to hold as float planes, build the grid
+ * once with bilateralGrid and call sliceRows strip by strip.
+ * @example
+ *   const { a, b } = bilateralUpsample(lowL, lowA, lowB, 128, 96, fullL, 512, 384);
+ */
+export function bilateralUpsample(
+  lowL: Float32Array,
+  lowA: Float32Array,
+  lowB: Float32Array,
+  width: number,
+  height: number,
+  fullL: Float32Array,
+  fullWidth: number,
+  fullHeight: number,
+  options: BilateralUpsampleOptions = {},
+): { a: Float32Array; b: Float32Array } {
+  const grid = bilateralGrid(lowL, lowA, lowB, width, height, options);
+  const a = new Float32Array(fullWidth * fullHeight);
+  const b = new Float32Array(fullWidth * fullHeight);
+  sliceRows(grid, fullL, fullWidth, fullHeight, 0, fullHeight, a, b);
+  return { a, b };
+}
+
+/**
+ * Bilinear resize of one plane, pixel centres aligned (common practice, as libvips and most resizers do).
+ * @example
+ *   const a512 = resizePlane(a128, 128, 96, 512, 384);
+ */
+export function resizePlane(plane: Float32Array, sw: number, sh: number, width: number, height: number): Float32Array {
+  const out = new Float32Array(width * height);
+  resizeRows(plane, sw, sh, width, height, 0, height, out);
+  return out;
+}
+
+/**
+ * Rows `y0` to `y0 + rows - 1` of a bilinear resize of a plane to `width` x `height`, written row-major
+ * into `out` (which holds just those rows).
+ * @example
+ *   resizeRows(conf128, 128, 96, 4000, 3000, 256, 64, strip);
+ */
+export function resizeRows(
+  plane: Float32Array,
+  sw: number,
+  sh: number,
+  width: number,
+  height: number,
+  y0: number,
+  rows: number,
+  out: Float32Array,
+): void {
+  const c0 = new Int32Array(width);
+  const c1 = new Int32Array(width);
+  const tx = new Float32Array(width);
+  for (let x = 0; x < width; x++) [c0[x], c1[x], tx[x]] = gridPoint(x, width, sw, 1, sw);
+  for (let j = 0; j < rows; j++) {
+    const [r0, r1, ty] = gridPoint(y0 + j, height, sh, 1, sh);
+    const o0 = r0 * sw;
+    const o1 = r1 * sw;
+    const base = j * width;
+    for (let x = 0; x < width; x++) {
+      const p = c0[x]!;
+      const q = c1[x]!;
+      const t = tx[x]!;
+      const top = plane[o0 + p]! + (plane[o0 + q]! - plane[o0 + p]!) * t;
+      const bottom = plane[o1 + p]! + (plane[o1 + q]! - plane[o1 + p]!) * t;
+      out[base + x] = top + (bottom - top) * ty;
+    }
+  }
+}
+
+/**
+ * Area-average downscaling of one plane to `width` x `height` (each output pixel the mean of the source
+ * pixels its footprint covers, as in the model's training data).
+ * @example
+ *   const small = shrinkPlane(L, 4000, 3000, 512, 384);
+ */
+export function shrinkPlane(plane: Float32Array, sw: number, sh: number, width: number, height: number): Float32Array {
+  const acc = new PlaneShrinker(sw, sh, width, height);
+  acc.addRows(plane, 0, sh);
+  return acc.result();
+}
+
+/**
+ * Area-average downscaling fed strip by strip, for sources too large to hold as one float plane.
+ * @example
+ *   const s = new PlaneShrinker(40000, 2500, 512, 32);
+ *   for (const strip of strips) s.addRows(strip.L, strip.y0, strip.rows);
+ *   const small = s.result();
+ */
+export class PlaneShrinker {
+  private readonly sums: Float64Array;
+  private readonly counts: Float64Array;
+  private readonly colOf: Int32Array;
+
+  constructor(
+    private readonly sw: number,
+    private readonly sh: number,
+    readonly width: number,
+    readonly height: number,
+  ) {
+    this.sums = new Float64Array(width * height);
+    this.counts = new Float64Array(width * height);
+    this.colOf = new Int32Array(sw);
+    for (let x = 0; x < sw; x++) this.colOf[x] = Math.min(width - 1, Math.floor((x * width) / sw));
+  }
+
+  /** Adds `rows` source rows starting at source row `y0` (`plane` holds just those rows). */
+  addRows(plane: Float32Array, y0: number, rows: number): void {
+    const { sw, sh, width, height, sums, counts, colOf } = this;
+    for (let j = 0; j < rows; j++) {
+      const oy = Math.min(height - 1, Math.floor(((y0 + j) * height) / sh));
+      const o = oy * width;
+      const base = j * sw;
+      for (let x = 0; x < sw; x++) {
+        sums[o + colOf[x]!] += plane[base + x]!;
+        counts[o + colOf[x]!]! += 1;
+      }
+    }
+  }
+
+  result(): Float32Array {
+    const out = new Float32Array(this.width * this.height);
+    for (let i = 0; i < out.length; i++) out[i] = this.counts[i]! > 0 ? this.sums[i]! / this.counts[i]! : 0;
+    return out;
+  }
+}
+
+/**
+ * Where full-resolution index i (of n) falls on a grid whose cells cover `cell` low-resolution pixels of
+ * m in all (g cells): the two neighbouring cells and the weight of the second. Pixel centres aligned.
+ */
+function gridPoint(i: number, n: number, m: number, cell: number, g: number): [number, number, number] {
+  let f = (((i + 0.5) * m) / n - 0.5 - (cell - 1) / 2) / cell;
+  if (f < 0) f = 0;
+  if (f > g - 1) f = g - 1;
+  const i0 = Math.floor(f);
+  const i1 = Math.min(g - 1, i0 + 1);
+  return [i0, i1, f - i0];
+}
+
+/**
+ * In-place [1 2 1] / 4 blur along one axis of an interleaved array, ends clamped: `outer` blocks
+ * `outerStride` apart, each a line of `count` cells `stride` apart, each cell `inner` contiguous values.
+ */
+function blurAxis(
+  data: Float32Array,
+  outer: number,
+  outerStride: number,
+  count: number,
+  stride: number,
+  inner: number,
+): void {
+  if (count < 2) return;
+  const prev = new Float32Array(inner);
+  for (let o = 0; o < outer; o++) {
+    const start = o * outerStride;
+    for (let k = 0; k < inner; k++) prev[k] = data[start + k]!;
+    for (let c = 0; c < count; c++) {
+      const p = start + c * stride;
+      const next = c + 1 < count ? p + stride : p;
+      for (let k = 0; k < inner; k++) {
+        const cur = data[p + k]!;
+        data[p + k] = 0.25 * prev[k]! + 0.5 * cur + 0.25 * data[next + k]!;
+        prev[k] = cur;
+      }
+    }
+  }
+}
+
+function clamp(v: number, lo: number, hi: number): number {
+  return v < lo ? lo : v > hi ? hi : v;
+}

@@ -1,0 +1,12 @@
+// The colour model: backends and kernels, a*b* bins and encodings, the network, training steps,
+// save/load and prediction. Re-exports only.
+export * from './backend.js';
+export * from './wasm-kernels.js';
+export * from './bins.js';
+export * from './encoding.js';
+export * from './network.js';
+export * from './loss.js';
+export * from './train-step.js';
+export * from './metadata.js';
+export * from './storage.js';
+export * from './predict.js';

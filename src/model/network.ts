@@ -1,0 +1,142 @@
+/**
+ * kinhue's encoder-decoder: L* in, logits over the a*b* bins out at a quarter of the resolution.
+ * U-Net-style: four stride-2 stages down to 1/16, two upsampling stages back to 1/4 with skip
+ * connections from the encoder; plain 3 x 3 convolutions and ReLU, no dilation (TensorFlow.js has
+ * no gradient for dilated convolutions) and no batch normalisation (small fine-tuning batches).
+ */
+import * as tf from '@tensorflow/tfjs';
+import { abBins } from './bins.js';
+
+export interface NetworkOptions {
+  /** Number of a*b* bins (Q), the output channels. Default: abBins(10).count. */
+  bins?: number;
+  /** Channels of the first stage; later stages use 2x, 4x, 8x. Default 16. */
+  width?: number;
+  /** Seed for the weight initialisers, for reproducible networks. */
+  seed?: number;
+}
+
+/** Input and output sizes must be multiples of this (four stride-2 stages). */
+export const NETWORK_MULTIPLE = 16;
+/** The output is this many times smaller than the input on each side. */
+export const OUTPUT_STRIDE = 4;
+/** Prefix of every encoder layer name (see freezeEncoder). */
+const ENCODER = 'enc';
+
+/** Scales L* (0-100) to the network's input range, [-0.5, 0.5]. */
+export function toNetworkInput(L: Float32Array, out = new Float32Array(L.length)): Float32Array {
+  for (let i = 0; i < L.length; i++) out[i] = L[i] / 100 - 0.5;
+  return out;
+}
+
+/**
+ * Builds an untrained network with He-initialised weights.
+ * @example
+ * const net = createNetwork({ bins: abBins().count });
+ * net.predict(tf.zeros([1, 128, 128, 1])); // shape [1, 32, 32, Q]
+ */
+export function createNetwork(options: NetworkOptions = {}): tf.LayersModel {
+  const q = options.bins ?? abBins().count;
+  const c = options.width ?? 16;
+  let seed = options.seed ?? 1;
+  const init = () => tf.initializers.heNormal({ seed: seed++ });
+  const conv = (name: string, filters: number, stride = 1, kernel = 3) =>
+    tf.layers.conv2d({
+      name,
+      filters,
+      kernelSize: kernel,
+      strides: stride,
+      padding: 'same',
+      activation: 'relu',
+      kernelInitializer: init(),
+    });
+
+  const input = tf.input({ shape: [null, null, 1], name: 'lightness' });
+  // Encoder: 1/2, 1/4, 1/8, 1/16.
+  let x = conv(`${ENCODER}1a`, c).apply(input) as tf.SymbolicTensor;
+  x = conv(`${ENCODER}1b`, c, 2).apply(x) as tf.SymbolicTensor;
+  x = conv(`${ENCODER}2a`, 2 * c).apply(x) as tf.SymbolicTensor;
+  x = conv(`${ENCODER}2b`, 2 * c, 2).apply(x) as tf.SymbolicTensor;
+  const skip4 = conv(`${ENCODER}3a`, 4 * c).apply(x) as tf.SymbolicTensor;
+  x = conv(`${ENCODER}3b`, 4 * c, 2).apply(skip4) as tf.SymbolicTensor;
+  const skip8 = conv(`${ENCODER}4a`, 8 * c).apply(x) as tf.SymbolicTensor;
+  x = conv(`${ENCODER}4b`, 8 * c, 2).apply(skip8) as tf.SymbolicTensor;
+  x = conv(`${ENCODER}5a`, 8 * c).apply(x) as tf.SymbolicTensor;
+  x = conv(`${ENCODER}5b`, 8 * c).apply(x) as tf.SymbolicTensor;
+  // Decoder: back to 1/8, then 1/4, joining the encoder's features of the same size.
+  x = tf.layers.upSampling2d({ name: 'dec1_up', size: [2, 2] }).apply(x) as tf.SymbolicTensor;
+  x = tf.layers.concatenate({ name: 'dec1_join' }).apply([x, skip8]) as tf.SymbolicTensor;
+  x = conv('dec1a', 8 * c).apply(x) as tf.SymbolicTensor;
+  x = conv('dec1b', 8 * c).apply(x) as tf.SymbolicTensor;
+  x = tf.layers.upSampling2d({ name: 'dec2_up', size: [2, 2] }).apply(x) as tf.SymbolicTensor;
+  x = tf.layers.concatenate({ name: 'dec2_join' }).apply([x, skip4]) as tf.SymbolicTensor;
+  x = conv('dec2a', 6 * c).apply(x) as tf.SymbolicTensor;
+  x = conv('dec2b', 6 * c).apply(x) as tf.SymbolicTensor;
+  const logits = tf.layers
+    .conv2d({ name: 'logits', filters: q, kernelSize: 1, kernelInitializer: tf.initializers.glorotUniform({ seed: seed++ }) })
+    .apply(x) as tf.SymbolicTensor;
+  return tf.model({ inputs: input, outputs: logits, name: 'kinhue' });
+}
+
+/**
+ * Names of the encoder's layers: the part kept fixed when tuning on a small archive.
+ * @example
+ * encoderLayerNames(net); // ['enc1a', 'enc1b', ...]
+ */
+export function encoderLayerNames(model: tf.LayersModel): string[] {
+  return model.layers.filter((l) => l.name.startsWith(ENCODER)).map((l) => l.name);
+}
+
+/**
+ * Marks the encoder's layers as not trainable (or trainable again with `frozen = false`).
+ * Create the trainer after this call: it optimises the weights trainable at creation.
+ * @example
+ * freezeEncoder(net);
+ * const trainer = createTrainer(net, { learningRate: 1e-4, classWeights });
+ */
+export function freezeEncoder(model: tf.LayersModel, frozen = true): void {
+  for (const name of encoderLayerNames(model)) model.getLayer(name).trainable = !frozen;
+}
+
+/** Number of weights in the network. */
+export function parameterCount(model: tf.LayersModel): number {
+  return model.countParams();
+}
+
+/**
+ * Multiply-adds x 2 of one forward pass on a width x height image (convolutions only; the rest is
+ * small). Counted from the layers' kernel shapes and output sizes.
+ * @example
+ * networkFlops(net, 512, 384) / 1e9; // GFLOPs per 512 x 384 image
+ */
+export function networkFlops(model: tf.LayersModel, width: number, height: number): number {
+  let flops = 0;
+  const probeSize = 64;
+  for (const layer of model.layers) {
+    if (layer.getClassName() !== 'Conv2D') continue;
+    const [kh, kw, ci, co] = layer.getWeights()[0].shape as [number, number, number, number];
+    const stride = layerScale(model, layer.name, probeSize);
+    const ow = Math.ceil(width / stride);
+    const oh = Math.ceil(height / stride);
+    flops += 2 * ow * oh * kh * kw * ci * co;
+  }
+  return flops;
+}
+
+const scaleCache = new WeakMap<tf.LayersModel, Map<string, number>>();
+
+/** How many times smaller than the input a layer's output is, from one probe pass. */
+function layerScale(model: tf.LayersModel, name: string, probe: number): number {
+  let scales = scaleCache.get(model);
+  if (!scales) {
+    const convs = model.layers.filter((l) => l.getClassName() === 'Conv2D');
+    const probeModel = tf.model({ inputs: model.inputs, outputs: convs.map((l) => l.output as tf.SymbolicTensor) });
+    const outs = tf.tidy(() => {
+      const r = probeModel.predict(tf.zeros([1, probe, probe, 1]));
+      return (Array.isArray(r) ? r : [r]).map((t) => t.shape[1] as number);
+    });
+    scales = new Map(convs.map((l, i) => [l.name, probe / outs[i]]));
+    scaleCache.set(model, scales);
+  }
+  return scales.get(name) ?? 1;
+}

@@ -1,0 +1,98 @@
+/**
+ * From an L* plane to a*b* and confidence at a quarter of its resolution: pad to the network's
+ * multiple (edge pixels repeated), run the network, crop back, decode by annealed mean.
+ */
+import * as tf from '@tensorflow/tfjs';
+import { type AbBins, abBins } from './bins.js';
+import { DEFAULT_TEMPERATURE } from './encoding.js';
+import { NETWORK_MULTIPLE, OUTPUT_STRIDE, toNetworkInput } from './network.js';
+import type { KinhueModel } from './storage.js';
+
+/**
+ * Temperature of the distribution whose entropy gives the confidence: 1, the network's own
+ * distribution (tests/model-confidence checks that it ranks errors).
+ */
+export const CONFIDENCE_TEMPERATURE = 1;
+
+export interface PredictOptions {
+  /** Annealed-mean temperature; default the model's own (0.38 unless trained otherwise). */
+  temperature?: number;
+}
+
+export interface Prediction {
+  /** a* and b* at the output resolution, row-major. */
+  a: Float32Array;
+  b: Float32Array;
+  /** Per-pixel confidence in [0, 1] at the output resolution. */
+  confidence: Float32Array;
+  /** Output size: ceil(input / 4) on each side. */
+  width: number;
+  height: number;
+}
+
+/** Copies a plane into a larger one, repeating the last column and row. */
+function padPlane(src: Float32Array, width: number, height: number, pw: number, ph: number): Float32Array {
+  const out = new Float32Array(pw * ph);
+  for (let y = 0; y < ph; y++) {
+    const sy = Math.min(y, height - 1) * width;
+    const row = y * pw;
+    out.set(src.subarray(sy, sy + width), row);
+    const last = src[sy + width - 1];
+    for (let x = width; x < pw; x++) out[row + x] = last;
+  }
+  return out;
+}
+
+/** The network, bins and default temperature of a model or a bare network (bins from abBins()). */
+function parts(model: KinhueModel | tf.LayersModel): { network: tf.LayersModel; bins: AbBins; temperature: number } {
+  if (model instanceof tf.LayersModel) return { network: model, bins: abBins(), temperature: DEFAULT_TEMPERATURE };
+  return { network: model.network, bins: model.bins, temperature: model.meta.temperature };
+}
+
+/**
+ * Predicts a*b* and confidence for one L* plane (0-100) of any size at a quarter of its
+ * resolution. Accepts a loaded model or a bare network (then the default bins and temperature).
+ * @example
+ * const p = predict(model, L, 512, 384); // p.width === 128, p.height === 96
+ */
+export function predict(
+  model: KinhueModel | tf.LayersModel,
+  L: Float32Array,
+  width: number,
+  height: number,
+  options: PredictOptions = {},
+): Prediction {
+  if (!(width >= 1 && height >= 1) || L.length !== width * height) {
+    throw new RangeError(`predict: L has ${L.length} values for a ${width} x ${height} image`);
+  }
+  const { network, bins, temperature: own } = parts(model);
+  const temperature = options.temperature ?? own;
+  if (!(temperature > 0)) throw new RangeError(`predict: temperature must be above 0, got ${temperature}`);
+  const pw = Math.ceil(width / NETWORK_MULTIPLE) * NETWORK_MULTIPLE;
+  const ph = Math.ceil(height / NETWORK_MULTIPLE) * NETWORK_MULTIPLE;
+  const ow = Math.ceil(width / OUTPUT_STRIDE);
+  const oh = Math.ceil(height / OUTPUT_STRIDE);
+  const q = bins.count;
+  const input = toNetworkInput(pw === width && ph === height ? L : padPlane(L, width, height, pw, ph));
+  const [ab, conf] = tf.tidy(() => {
+    const logits = network.predict(tf.tensor4d(input, [1, ph, pw, 1])) as tf.Tensor4D;
+    const cropped = tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]);
+    const centres = tf.tensor2d(Array.from(bins.a, (a, i) => [a, bins.b[i]]), [q, 2]);
+    const mean = tf.matMul(tf.softmax(tf.div(cropped, temperature)), centres);
+    const logp = tf.logSoftmax(CONFIDENCE_TEMPERATURE === 1 ? cropped : tf.div(cropped, CONFIDENCE_TEMPERATURE));
+    const entropy = tf.neg(tf.sum(tf.mul(tf.exp(logp), logp), -1));
+    const confidence = tf.clipByValue(tf.sub(1, tf.div(entropy, Math.log(q))), 0, 1);
+    return [mean, confidence];
+  });
+  const abData = ab.dataSync() as Float32Array;
+  const confidence = Float32Array.from(conf.dataSync() as Float32Array);
+  ab.dispose();
+  conf.dispose();
+  const a = new Float32Array(ow * oh);
+  const b = new Float32Array(ow * oh);
+  for (let i = 0; i < ow * oh; i++) {
+    a[i] = abData[2 * i];
+    b[i] = abData[2 * i + 1];
+  }
+  return { a, b, confidence, width: ow, height: oh };
+}

@@ -1,0 +1,243 @@
+/**
+ * Scoring: take the colour out of colour originals (keep L* only), put it back with each model and
+ * with two baselines, and measure each result against the original. The model rows use the same
+ * in-memory colourisation as restore (batch/colouriseLightness), so a score describes what restore
+ * would deliver at the same working size.
+ */
+import { mkdir } from 'node:fs/promises';
+import { join, relative } from 'node:path';
+import { tmpdir } from 'node:os';
+import {
+  colourfulness, labToSrgb, meanAbError, meanCiede2000, psnr, srgbToLab, type LabPlanes,
+} from '../colour/index.js';
+import { colouriseLightness, DEFAULT_WORK_SIZE, discoverInputs } from '../batch/index.js';
+import { ErrorCodes, InputError, KinhueError, UsageError } from '../errors.js';
+import { classifyTone, decodeImage, writeFileAtomic, type Pixels } from '../image/index.js';
+import { DEFAULT_MODEL_DIR, initBackend, loadModel, type KinhueModel } from '../model/index.js';
+import { VERSION } from '../version.js';
+import { labStatistics, reinhardTransfer, type LabStatistics } from './reinhard.js';
+import {
+  averageFigures, scoreToCsv, scoreToJson, type PhotoScore, type ScoreFailure, type ScoreFigures, type ScoreMethod,
+  type ScoreReport,
+} from './score-report.js';
+import { trainingColourFor } from './training-colour.js';
+
+/** What to score. */
+export interface ScoreOptions {
+  /** Colour originals: files, folders (searched recursively) and glob patterns. */
+  photos: string[];
+  /** Model folders to compare. Default: the shipped model. */
+  models?: string[];
+  /** Long side in pixels at which the models run (as restore's --work-size). Default 512. */
+  workSize?: number;
+  /** Annealed-mean temperature. Default: each model's own. */
+  temperature?: number;
+  /** Pixel limit per image; default the image module's. */
+  maxPixels?: number;
+  /** Files under this folder are not scored (e.g. where the report is written). */
+  exclude?: string;
+  onEvent?: (event: ScoreEvent) => void;
+}
+
+/** Progress while scoring. */
+export type ScoreEvent =
+  | { type: 'photo'; done: number; total: number; file: string }
+  | { type: 'failed'; failure: ScoreFailure };
+
+const EXAMPLE = 'Example usage: kinhue score demo-photos/originals --model models/kinhue-base';
+
+/** The original as 8-bit RGB (alpha dropped, 16 bits rounded), the form every figure is taken on. */
+function rgb8(pixels: Pixels, file: string): Uint8Array {
+  if (pixels.channels < 3) {
+    throw new InputError(ErrorCodes.BAD_DATA, 'is a grey image; scoring needs colour originals', {
+      file,
+      hint: 'score colour photographs (their colour is taken out and put back); leave grey scans out',
+    });
+  }
+  const n = pixels.width * pixels.height;
+  const out = new Uint8Array(n * 3);
+  const { data, channels } = pixels;
+  const k = pixels.depth === 16 ? 255 / 65535 : 1;
+  for (let i = 0, j = 0; i < n; i++, j += channels) {
+    out[i * 3] = Math.round(data[j] * k);
+    out[i * 3 + 1] = Math.round(data[j + 1] * k);
+    out[i * 3 + 2] = Math.round(data[j + 2] * k);
+  }
+  return out;
+}
+
+/** Decodes one original and checks it is a colour photo. */
+async function readOriginal(file: string, maxPixels?: number): Promise<{ rgb: Uint8Array; lab: LabPlanes; width: number; height: number }> {
+  const { pixels } = await decodeImage(file, { maxPixels });
+  const rgb = rgb8(pixels, file);
+  const lab = srgbToLab(rgb, 3);
+  const tone = classifyTone(lab);
+  if (tone.kind !== 'colour') {
+    throw new InputError(ErrorCodes.BAD_DATA, `is a ${tone.kind === 'toned' ? `toned (${tone.name ?? 'tinted'}) monochrome` : 'grey'} photo; scoring needs colour originals`, {
+      file,
+      hint: 'score colour photographs (their colour is taken out and put back); leave monochrome prints out',
+    });
+  }
+  return { rgb, lab, width: pixels.width, height: pixels.height };
+}
+
+/** Renders a candidate to 8-bit sRGB and measures it against the original. */
+function measure(candidate: LabPlanes, original: { rgb: Uint8Array; lab: LabPlanes }): ScoreFigures {
+  const rgb = labToSrgb(candidate, new Uint8Array(candidate.L.length * 3), 3);
+  const seen = srgbToLab(rgb, 3);
+  return {
+    psnr: psnr(rgb, original.rgb),
+    ciede2000: meanCiede2000(seen, original.lab),
+    abError: meanAbError(seen, original.lab),
+    colourfulness: colourfulness(rgb, 3),
+  };
+}
+
+function failureOf(file: string, error: KinhueError): ScoreFailure {
+  return { file, code: error.code, message: error.message, ...(error.hint ? { hint: error.hint } : {}) };
+}
+
+/** Pooled a*b* statistics of the photos, for models that record no training colour (one extra decode each). */
+async function pooledStatistics(files: { path: string }[], maxPixels?: number): Promise<LabStatistics> {
+  let n = 0;
+  const sum = [0, 0, 0], squares = [0, 0, 0];
+  for (const { path } of files) {
+    const lab = await readOriginal(path, maxPixels).then((o) => o.lab, () => undefined);
+    if (!lab) continue;
+    const s = labStatistics(lab);
+    const m = lab.L.length;
+    for (let c = 0; c < 3; c++) {
+      sum[c] += s.mean[c] * m;
+      squares[c] += (s.sd[c] ** 2 + s.mean[c] ** 2) * m;
+    }
+    n += m;
+  }
+  if (n === 0) return { mean: [NaN, 0, 0], sd: [NaN, 0, 0] };
+  const mean = sum.map((v) => v / n) as [number, number, number];
+  const sd = squares.map((v, c) => Math.sqrt(Math.max(0, v / n - mean[c] ** 2))) as [number, number, number];
+  return { mean: [NaN, mean[1], mean[2]], sd: [NaN, sd[1], sd[2]] };
+}
+
+/** Short, distinct labels for the models: their names, with the folder added where two names clash. */
+function modelLabels(models: KinhueModel[]): string[] {
+  const names = models.map((m) => m.meta.name);
+  return models.map((m, i) => (names.indexOf(names[i]) !== names.lastIndexOf(names[i]) ? `${names[i]} (${relative('.', m.dir) || m.dir})` : names[i]));
+}
+
+/**
+ * Scores models against colour originals, beside a grey and a Reinhard colour-transfer baseline.
+ * Files that cannot be scored are listed in `failures`; a bad model folder throws ModelError.
+ * @example
+ *   const report = await score({ photos: ['demo-photos/originals'], models: ['models/kinhue-base'] });
+ *   console.log(formatScoreTable(report));
+ */
+export async function score(options: ScoreOptions): Promise<ScoreReport> {
+  let discovered;
+  try {
+    discovered = await discoverInputs(options.photos, options.exclude ?? join(tmpdir(), `kinhue-score-${process.pid}-none`));
+  } catch (error) {
+    // Discovery is shared with restore: give its usage errors score's own example.
+    if (error instanceof UsageError) throw new UsageError(error.message.replace(/Example usage: .*$/m, EXAMPLE), error.hint);
+    throw error;
+  }
+  const files = discovered.files;
+  const workSize = options.workSize ?? DEFAULT_WORK_SIZE;
+
+  await initBackend();
+  const dirs = options.models?.length ? options.models : [DEFAULT_MODEL_DIR];
+  const models: KinhueModel[] = [];
+  try {
+    for (const dir of dirs) models.push(await loadModel(dir));
+    let pooled: LabStatistics | undefined;
+    const needsPool = models.some((m) => m.meta.classWeights.length !== m.bins.count);
+    if (needsPool) pooled = await pooledStatistics(files, options.maxPixels);
+    const labels = modelLabels(models);
+    const methods: ScoreMethod[] = [{ id: 'grey', label: 'grey (L* only)', kind: 'grey' }];
+    models.forEach((model, i) => {
+      methods.push({
+        id: `transfer:${i + 1}`,
+        label: `Reinhard transfer (${labels[i]})`,
+        kind: 'transfer',
+        model: model.dir,
+        target: trainingColourFor(model.meta.classWeights, model.bins, () => pooled!),
+      });
+      methods.push({ id: `model:${i + 1}`, label: `model ${labels[i]}`, kind: 'model', model: model.dir, weightsHash: model.meta.weightsSha256 });
+    });
+
+    const photos: PhotoScore[] = [];
+    const failures: ScoreFailure[] = [];
+    for (let k = 0; k < files.length; k++) {
+      const { path, rel } = files[k];
+      try {
+        const original = await readOriginal(path, options.maxPixels);
+        const { width, height, lab } = original;
+        const grey: LabPlanes = { L: lab.L, a: new Float32Array(lab.L.length), b: new Float32Array(lab.L.length) };
+        const figures: Record<string, ScoreFigures> = {};
+        for (const method of methods) {
+          if (method.kind === 'grey') figures[method.id] = measure(grey, original);
+          else if (method.kind === 'transfer') {
+            figures[method.id] = measure(reinhardTransfer(grey, method.target!.statistics, { channels: ['a', 'b'] }), original);
+          } else {
+            const model = models[Number(method.id.slice('model:'.length)) - 1];
+            const { a, b } = await colouriseLightness(lab.L, width, height, model, { workSize, temperature: options.temperature });
+            figures[method.id] = measure({ L: lab.L, a, b }, original);
+          }
+        }
+        photos.push({ file: rel, width, height, originalColourfulness: colourfulness(original.rgb, 3), figures });
+      } catch (error) {
+        if (!(error instanceof KinhueError)) throw error;
+        const failure = failureOf(rel, error);
+        failures.push(failure);
+        options.onEvent?.({ type: 'failed', failure });
+      }
+      options.onEvent?.({ type: 'photo', done: k + 1, total: files.length, file: rel });
+    }
+
+    const transfer = methods.filter((m) => m.kind === 'transfer');
+    const notes = [
+      "Each original's colour is taken out (its CIELAB L* kept, a* = b* = 0) and put back by each method; L* is never changed.",
+      'Figures compare the 8-bit sRGB rendering of each result with the original rounded to 8 bits; averages count each photo once (PSNR averaged in dB).',
+      `Models run at a working size of ${workSize} px (long side), as restore does by default, with colour carried to full size edge-aware.`,
+      'Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper\'s l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target\'s mean colour everywhere.',
+      ...transfer.map((m) => `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`),
+      ...discovered.notes,
+    ];
+    return {
+      kind: 'kinhue-score',
+      version: VERSION,
+      created: new Date().toISOString(),
+      methods,
+      photos,
+      failures,
+      average: averageFigures(photos, methods),
+      notes,
+    };
+  } finally {
+    for (const model of models) model.network.dispose();
+  }
+}
+
+/** The two files `--out` writes. */
+export const SCORE_CSV = 'kinhue-score.csv';
+export const SCORE_JSON = 'kinhue-score.json';
+
+/**
+ * Writes `kinhue-score.csv` and `kinhue-score.json` into `dir` (created when missing), each atomically.
+ * @example
+ *   const { csv, json } = await writeScoreFiles(report, 'scores');
+ */
+export async function writeScoreFiles(report: ScoreReport, dir: string): Promise<{ csv: string; json: string }> {
+  try {
+    await mkdir(dir, { recursive: true });
+  } catch (error) {
+    throw new KinhueError(ErrorCodes.WRITE_FAILED, 'the output folder could not be made', {
+      file: dir, hint: 'choose a folder you can write to', cause: error,
+    });
+  }
+  const csv = join(dir, SCORE_CSV);
+  const json = join(dir, SCORE_JSON);
+  await writeFileAtomic(csv, scoreToCsv(report));
+  await writeFileAtomic(json, scoreToJson(report));
+  return { csv, json };
+}
+

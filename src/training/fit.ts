@@ -1,0 +1,414 @@
+/**
+ * The fit loop behind `kinhue train` and `kinhue tune`: read the photos, draw batches of crops,
+ * take optimiser steps within a step and/or time budget, evaluate on the held-out photos every so
+ * often, write checkpoints atomically, and save the model (the last one for train, the best by
+ * held-out error for tune). A resumed run continues from its checkpoint and reaches the same weights
+ * as an uninterrupted one with the same seed.
+ */
+import { mkdir, stat } from 'node:fs/promises';
+import { join, resolve } from 'node:path';
+import * as tf from '@tensorflow/tfjs';
+import { ErrorCodes, KinhueError, UsageError } from '../errors.js';
+import { writeFileAtomic } from '../image/index.js';
+import {
+  DEFAULT_TEMPERATURE,
+  abBins,
+  binHistogram,
+  createNetwork,
+  createTrainer,
+  freezeEncoder,
+  initBackend,
+  loadModel,
+  predict,
+  rebalanceWeights,
+  saveModel,
+  type ModelMetadataInput,
+  type NetworkOptions,
+  type TrainerState,
+} from '../model/index.js';
+import { VERSION } from '../version.js';
+import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js';
+import { CropSampler, type SamplerState } from './crop-sampler.js';
+import { evaluatePhotos, type Evaluation } from './evaluation.js';
+import { loadPhotoSet, type Photo, type PhotoSet } from './photo-set.js';
+import { Random, type RandomState } from './random.js';
+import { appendTrainingLog, truncateTrainingLog } from './training-log.js';
+
+export type FitMode = 'train' | 'tune';
+
+export interface FitOptions {
+  /** Photo files and folders (searched recursively). */
+  photos: string[];
+  /** The model folder to write (created if missing). */
+  out: string;
+  /** 'train' starts from a new network, 'tune' from an existing model. Default 'train'. */
+  mode?: FitMode;
+  /** The model to tune (required for mode 'tune'). */
+  from?: string;
+  /** Time budget in hours (training time over all resumed sessions). */
+  hours?: number;
+  /** Step budget (total, over all resumed sessions). */
+  steps?: number;
+  /** Crops per step. Default 16. */
+  batch?: number;
+  /** Crop side in pixels (a multiple of the network's, 8 for the default). Default 128. */
+  crop?: number;
+  /** Seed of every random choice. Default 1. */
+  seed?: number;
+  /** Fraction of the photos held out for evaluation. Default 0.1 (at least 2 photos). */
+  holdout?: number;
+  /** Optimiser learning rate. Default 1e-3 for train, 1e-4 for tune. */
+  learningRate?: number;
+  /** Keep the encoder's weights fixed (tune). */
+  freezeEncoder?: boolean;
+  /** Continue the run whose checkpoint is in `out`. */
+  resume?: boolean;
+  /** Evaluate on the held-out photos every this many steps. Default 100. */
+  evalEvery?: number;
+  /** Minutes between checkpoints. Default 5. */
+  checkpointMinutes?: number;
+  /** Long side, in pixels, photos are kept and evaluated at. Default 3 x crop. */
+  photoSize?: number;
+  /** Which model to keep in `out`: the last, or the best by held-out CIEDE2000. Default: last for train, best for tune. */
+  keep?: 'last' | 'best';
+  /** Size of a new network (train only). */
+  network?: NetworkOptions;
+  /** Annealed-mean temperature used for evaluation. Default the model's (0.38). */
+  temperature?: number;
+  /** Stops the run cleanly (a checkpoint is written) after the current step. */
+  signal?: AbortSignal;
+}
+
+/** What the loop reports while it runs. */
+export type FitEvent =
+  | { type: 'reading'; done: number; total: number; file: string }
+  | { type: 'data'; train: number; holdout: number; grey: number; unreadable: { file: string; reason: string }[]; otherFiles: number }
+  | { type: 'resumed'; step: number; seconds: number }
+  | { type: 'baseline'; grey: Evaluation; start: Evaluation }
+  | { type: 'step'; step: number; loss: number; seconds: number; secondsLeft: number; fraction: number; heldOut?: number }
+  | { type: 'evaluation'; step: number; loss: number; evaluation: Evaluation; best: boolean }
+  | { type: 'checkpoint'; step: number; file: string }
+  | { type: 'model'; step: number; dir: string };
+
+/** The outcome of a run, also written to `training-summary.json` and the model's metadata. */
+export interface FitResult {
+  mode: FitMode;
+  out: string;
+  /** Total optimiser steps (over all sessions). */
+  steps: number;
+  /** Crops seen: steps x batch. */
+  crops: number;
+  /** Training seconds over all sessions. */
+  seconds: number;
+  /** Why the run stopped. */
+  stoppedBy: 'steps' | 'time' | 'interrupted';
+  photos: { train: number; holdout: number; grey: number; unreadable: number };
+  /** Held-out figures: the grey baseline, the model before training, and the model kept in `out`. */
+  heldOut: { grey: Evaluation; before: Evaluation; after: Evaluation; keptStep: number };
+  options: { batch: number; crop: number; seed: number; holdout: number; learningRate: number; freezeEncoder: boolean; keep: 'last' | 'best'; photoSize: number };
+}
+
+/** The summary file written beside the model. */
+export const SUMMARY_FILE = 'training-summary.json';
+
+interface CheckpointState {
+  kind: 'kinhue-training-checkpoint';
+  version: string;
+  mode: FitMode;
+  step: number;
+  seconds: number;
+  lossSum: number;
+  lossCount: number;
+  rng: RandomState;
+  sampler: SamplerState;
+  options: FitResult['options'];
+  trainFiles: string[];
+  holdoutFiles: string[];
+  best: { step: number; evaluation: Evaluation } | null;
+  grey: Evaluation;
+  before: Evaluation;
+  weights: Float32Array[];
+  trainer: unknown;
+}
+
+/**
+ * Trains (or tunes) a model on colour photos.
+ * @example
+ *   const result = await fit({ photos: ['album/'], out: 'models/mine', mode: 'tune', from: 'models/kinhue-base', hours: 1 },
+ *     (e) => { if (e.type === 'evaluation') console.log(e.step, e.evaluation.ciede2000); });
+ *   console.log(result.heldOut.before.ciede2000, '->', result.heldOut.after.ciede2000);
+ */
+export async function fit(options: FitOptions, onEvent: (event: FitEvent) => void = () => {}): Promise<FitResult> {
+  const mode = options.mode ?? 'train';
+  const out = resolve(options.out);
+  const checkpointFile = join(out, CHECKPOINT_FILE);
+  const saved = options.resume ? ((await loadCheckpoint(checkpointFile)) as unknown as CheckpointState) : undefined;
+  if (saved && saved.kind !== 'kinhue-training-checkpoint') {
+    throw new KinhueError(ErrorCodes.BAD_DATA, 'not a kinhue training checkpoint', { file: checkpointFile, hint: 'run without --resume to start again.' });
+  }
+  if (!options.resume && (await exists(checkpointFile))) {
+    throw new UsageError(
+      `${out} holds an unfinished or finished training run (${CHECKPOINT_FILE})`,
+      'add --resume to continue it, or choose another --out folder.',
+    );
+  }
+  if (mode === 'tune' && !options.from) throw new UsageError('tune needs a model to start from', 'pass --from <model folder>.');
+
+  // The checkpoint's settings win on resume: the same run must continue.
+  const crop = saved?.options.crop ?? options.crop ?? 128;
+  const settings: FitResult['options'] = saved?.options ?? {
+    batch: options.batch ?? 16,
+    crop,
+    seed: options.seed ?? 1,
+    holdout: options.holdout ?? 0.1,
+    learningRate: options.learningRate ?? (mode === 'tune' ? 1e-4 : 1e-3),
+    freezeEncoder: options.freezeEncoder ?? false,
+    keep: options.keep ?? (mode === 'tune' ? 'best' : 'last'),
+    photoSize: options.photoSize ?? crop * 3,
+  };
+  const maxSteps = options.steps ?? Infinity;
+  const maxSeconds = options.hours === undefined ? Infinity : options.hours * 3600;
+  if (maxSteps === Infinity && maxSeconds === Infinity) throw new UsageError('no budget given', 'pass --hours, --steps or both.');
+  const evalEvery = Math.max(1, Math.floor(options.evalEvery ?? 100));
+  const checkpointMs = (options.checkpointMinutes ?? 5) * 60_000;
+
+  // Data first: bad data stops the run before a model folder is touched.
+  const set = await loadPhotoSet(options.photos, {
+    maxSide: settings.photoSize,
+    holdout: settings.holdout,
+    seed: settings.seed,
+    exclude: out,
+    onFile: (done, total, file) => onEvent({ type: 'reading', done, total, file }),
+  });
+  onEvent({
+    type: 'data',
+    train: set.train.length,
+    holdout: set.holdout.length,
+    grey: set.grey.length,
+    unreadable: set.unreadable,
+    otherFiles: set.otherFiles,
+  });
+  if (saved) checkSameData(saved, set, checkpointFile);
+
+  const backend = await initBackend();
+  const bins = abBins();
+  const counts = new Float64Array(bins.count);
+  for (const photo of set.train) binHistogram(photo.a, photo.b, bins, counts);
+  const classWeights = rebalanceWeights(counts);
+
+  const start = mode === 'tune' ? await loadModel(options.from!) : undefined;
+  const network = start ? start.network : createNetwork(options.network);
+  const temperature = options.temperature ?? start?.meta.temperature ?? DEFAULT_TEMPERATURE;
+  if (start && start.bins.count !== bins.count) {
+    throw new KinhueError(ErrorCodes.BAD_MODEL, `the model predicts ${start.bins.count} colour bins, this kinhue trains ${bins.count}`, {
+      file: options.from,
+      hint: 'tune a model written by this version of kinhue.',
+    });
+  }
+  if (settings.freezeEncoder) freezeEncoder(network);
+  const trainer = createTrainer(network, { learningRate: settings.learningRate, classWeights });
+  const rng = new Random(settings.seed);
+  let step = 0;
+  let priorSeconds = 0;
+  let lossSum = 0;
+  let lossCount = 0;
+  let sampler: CropSampler;
+  let best: CheckpointState['best'] = null;
+  let grey: Evaluation;
+  let before: Evaluation;
+  const evaluate = (photos: Photo[]): Promise<Evaluation> =>
+    evaluatePhotos(photos, (L, w, h) => {
+      const p = predict(network, L, w, h, { temperature });
+      return { a: p.a, b: p.b, width: p.width, height: p.height };
+    });
+
+  if (saved) {
+    setWeights(network, saved.weights);
+    trainer.setState(saved.trainer as TrainerState);
+    rng.setState(saved.rng);
+    sampler = new CropSampler(set.train, rng, saved.sampler);
+    step = saved.step;
+    priorSeconds = saved.seconds;
+    lossSum = saved.lossSum;
+    lossCount = saved.lossCount;
+    best = saved.best;
+    grey = saved.grey;
+    before = saved.before;
+    await truncateTrainingLog(out, step);
+    onEvent({ type: 'resumed', step, seconds: priorSeconds });
+  } else {
+    sampler = new CropSampler(set.train, rng);
+    grey = await evaluatePhotos(set.holdout);
+    before = await evaluate(set.holdout);
+    await mkdir(out, { recursive: true });
+    await truncateTrainingLog(out, 0);
+    if (settings.keep === 'best') best = { step: 0, evaluation: before };
+  }
+  onEvent({ type: 'baseline', grey, start: before });
+
+  const meta = (evaluation: Evaluation, keptStep: number, seconds: number): ModelMetadataInput => ({
+    temperature,
+    classWeights,
+    training: {
+      mode,
+      from: options.from ? resolve(options.from) : null,
+      photos: set.train.length,
+      heldOutPhotos: set.holdout.length,
+      skippedGreyOrToned: set.grey.length,
+      steps: keptStep,
+      crops: keptStep * settings.batch,
+      seconds: Math.round(seconds),
+      ...settings,
+      heldOut: { grey, before, after: evaluation },
+      backend: backend.name,
+    },
+  });
+  const saveKept = async (evaluation: Evaluation, seconds: number): Promise<void> => {
+    await saveModel(network, out, meta(evaluation, step, seconds));
+    onEvent({ type: 'model', step, dir: out });
+  };
+  if (!saved && settings.keep === 'best') await saveKept(before, 0);
+
+  const sessionStart = Date.now();
+  const elapsed = (): number => priorSeconds + (Date.now() - sessionStart) / 1000;
+  let lastCheckpoint = Date.now();
+  let lastEvaluation: { step: number; evaluation: Evaluation } | undefined;
+  const writeCheckpoint = async (): Promise<void> => {
+    const state: CheckpointState = {
+      kind: 'kinhue-training-checkpoint',
+      version: VERSION,
+      mode,
+      step,
+      seconds: elapsed(),
+      lossSum,
+      lossCount,
+      rng: rng.getState(),
+      sampler: sampler.getState(),
+      options: settings,
+      trainFiles: set.train.map((p) => p.file),
+      holdoutFiles: set.holdout.map((p) => p.file),
+      best,
+      grey,
+      before,
+      weights: network.getWeights().map((w) => w.dataSync() as Float32Array),
+      trainer: await trainer.getState(),
+    };
+    await saveCheckpoint(checkpointFile, state as unknown as Record<string, unknown>);
+    lastCheckpoint = Date.now();
+    onEvent({ type: 'checkpoint', step, file: checkpointFile });
+  };
+
+  let stoppedBy: FitResult['stoppedBy'] = 'steps';
+  for (;;) {
+    if (step >= maxSteps) break;
+    if (elapsed() >= maxSeconds) {
+      stoppedBy = 'time';
+      break;
+    }
+    if (options.signal?.aborted) {
+      stoppedBy = 'interrupted';
+      break;
+    }
+    const batch = sampler.next(settings.batch, settings.crop);
+    const loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size);
+    step++;
+    lossSum += loss;
+    lossCount++;
+    const seconds = elapsed();
+    const perStep = (seconds - priorSeconds) / Math.max(1, step - (saved?.step ?? 0));
+    const secondsLeft = Math.min(maxSeconds - seconds, (maxSteps - step) * perStep);
+    const fraction = Math.max(maxSteps === Infinity ? 0 : step / maxSteps, maxSeconds === Infinity ? 0 : seconds / maxSeconds);
+    onEvent({ type: 'step', step, loss, seconds, secondsLeft: Math.max(0, secondsLeft), fraction: Math.min(1, fraction), heldOut: lastEvaluation?.evaluation.ciede2000 ?? best?.evaluation.ciede2000 });
+
+    if (step % evalEvery === 0) {
+      lastEvaluation = { step, evaluation: await evaluate(set.holdout) };
+      const improved = !best || lastEvaluation.evaluation.ciede2000 < best.evaluation.ciede2000;
+      if (improved) best = { ...lastEvaluation };
+      const meanLoss = lossSum / Math.max(1, lossCount);
+      await appendTrainingLog(out, { step, seconds: elapsed(), loss: meanLoss, ...pick(lastEvaluation.evaluation), best: improved, time: new Date().toISOString() });
+      onEvent({ type: 'evaluation', step, loss: meanLoss, evaluation: lastEvaluation.evaluation, best: improved });
+      lossSum = 0;
+      lossCount = 0;
+      if (improved && settings.keep === 'best') await saveKept(lastEvaluation.evaluation, elapsed());
+    }
+    if (Date.now() - lastCheckpoint >= checkpointMs) {
+      await writeCheckpoint();
+      if (settings.keep === 'last') await saveKept(lastEvaluation?.evaluation ?? before, elapsed());
+    }
+  }
+
+  // The end: one more evaluation of the last weights when the loop did not just make one.
+  if (step > 0 && lastEvaluation?.step !== step && (stoppedBy !== 'interrupted' || settings.keep === 'last')) {
+    lastEvaluation = { step, evaluation: await evaluate(set.holdout) };
+    const improved = !best || lastEvaluation.evaluation.ciede2000 < best.evaluation.ciede2000;
+    if (improved) best = { ...lastEvaluation };
+    const meanLoss = lossSum / Math.max(1, lossCount);
+    await appendTrainingLog(out, { step, seconds: elapsed(), loss: meanLoss, ...pick(lastEvaluation.evaluation), best: improved, time: new Date().toISOString() });
+    onEvent({ type: 'evaluation', step, loss: meanLoss, evaluation: lastEvaluation.evaluation, best: improved });
+    if (improved && settings.keep === 'best') await saveKept(lastEvaluation.evaluation, elapsed());
+  }
+  await writeCheckpoint();
+  const seconds = elapsed();
+  let after: Evaluation;
+  let keptStep: number;
+  if (settings.keep === 'best' && best) {
+    after = best.evaluation;
+    keptStep = best.step;
+  } else {
+    after = lastEvaluation?.step === step ? lastEvaluation.evaluation : await evaluate(set.holdout);
+    keptStep = step;
+    await saveKept(after, seconds);
+  }
+
+  const result: FitResult = {
+    mode,
+    out,
+    steps: step,
+    crops: step * settings.batch,
+    seconds,
+    stoppedBy,
+    photos: { train: set.train.length, holdout: set.holdout.length, grey: set.grey.length, unreadable: set.unreadable.length },
+    heldOut: { grey, before, after, keptStep },
+    options: settings,
+  };
+  const record = { ...result, budget: { hours: options.hours ?? null, steps: options.steps ?? null }, backend: backend.name, holdoutFiles: set.holdout.map((p) => p.file) };
+  await writeFileAtomic(join(out, SUMMARY_FILE), `${JSON.stringify(record, null, 2)}\n`);
+  trainer.dispose?.();
+  network.dispose();
+  return result;
+}
+
+function setWeights(network: tf.LayersModel, weights: Float32Array[]): void {
+  const current = network.getWeights();
+  if (weights.length !== current.length || weights.some((w, i) => w.length !== current[i]!.size)) {
+    throw new KinhueError(ErrorCodes.BAD_DATA, 'the checkpoint holds weights of a different network', {
+      hint: 'start a new run without --resume.',
+    });
+  }
+  const tensors = weights.map((w, i) => tf.tensor(w, current[i]!.shape));
+  network.setWeights(tensors);
+  tf.dispose(tensors);
+}
+
+function pick(e: Evaluation): { ciede2000: number; psnr: number; colourfulness: number } {
+  return { ciede2000: e.ciede2000, psnr: e.psnr, colourfulness: e.colourfulness };
+}
+
+async function exists(path: string): Promise<boolean> {
+  try {
+    await stat(path);
+    return true;
+  } catch {
+    return false;
+  }
+}
+
+function checkSameData(saved: CheckpointState, set: PhotoSet, file: string): void {
+  const same = (x: string[], y: string[]): boolean => x.length === y.length && x.every((v, i) => v === y[i]);
+  if (!same(saved.trainFiles, set.train.map((p) => p.file)) || !same(saved.holdoutFiles, set.holdout.map((p) => p.file))) {
+    throw new KinhueError(ErrorCodes.BAD_DATA, 'the photos differ from those the checkpoint was trained on, so the run cannot continue exactly', {
+      file,
+      hint: 'resume with the same photo folders, or start a new run without --resume.',
+    });
+  }
+}

@@ -1,0 +1,9 @@
+// Training: photo sets, crops, the fit loop, checkpoints and resume. Re-exports only.
+export * from './random.js';
+export * from './resample.js';
+export * from './photo-set.js';
+export * from './crop-sampler.js';
+export * from './evaluation.js';
+export * from './checkpoint.js';
+export * from './training-log.js';
+export * from './fit.js';

@@ -1,0 +1,310 @@
+import { mkdtemp, readdir, rm, writeFile } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import { converter, differenceCiede2000 } from 'culori';
+import sharp from 'sharp';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { KinhueError } from '../src/errors.js';
+import {
+  CropSampler,
+  Random,
+  evaluatePhotos,
+  downscaleToFloatRgb,
+  loadCheckpoint,
+  loadPhotoSet,
+  resizeBilinear,
+  sampleCrop,
+  saveCheckpoint,
+  splitHoldout,
+  type Photo,
+} from '../src/training/index.js';
+
+const toLab = converter('lab65');
+
+let dir: string;
+beforeAll(async () => {
+  dir = await mkdtemp(join(tmpdir(), 'kinhue-training-data-'));
+});
+afterAll(async () => {
+  await rm(dir, { recursive: true, force: true });
+});
+
+/** A PNG of `w` x `h` whose pixel (x, y) is `colour(x, y)`. */
+async function png(path: string, w: number, h: number, colour: (x: number, y: number) => [number, number, number]): Promise<void> {
+  const data = Buffer.alloc(w * h * 3);
+  for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) data.set(colour(x, y), (y * w + x) * 3);
+  await sharp(data, { raw: { width: w, height: h, channels: 3 } }).png().toFile(path);
+}
+
+/** A colourful test scene: four quadrants of different hues with a brightness ramp. */
+const scene = (seed: number) => (x: number, y: number): [number, number, number] => {
+  const q = (x < 40 ? 0 : 1) + (y < 30 ? 0 : 2);
+  const palette: [number, number, number][] = [[200, 60, 40], [40, 160, 60], [50, 80, 200], [220, 200, 60]];
+  const [r, g, b] = palette[(q + seed) % 4]!;
+  const k = 0.6 + 0.4 * (x / 80);
+  return [Math.round(r * k), Math.round(g * k), Math.round(b * k)];
+};
+
+describe('Random (sfc32)', () => {
+  it('repeats its sequence for a seed and continues exactly from a saved state', () => {
+    const a = new Random(42);
+    const b = new Random(42);
+    const first = Array.from({ length: 100 }, () => a.nextUint32());
+    expect(Array.from({ length: 100 }, () => b.nextUint32())).toEqual(first);
+    const state = a.getState();
+    const next = Array.from({ length: 50 }, () => a.next());
+    const c = new Random(state);
+    expect(Array.from({ length: 50 }, () => c.next())).toEqual(next);
+    expect(new Random(43).nextUint32()).not.toBe(new Random(42).nextUint32());
+  });
+
+  it('is uniform: chi-square over 100 cells below the 0.1 % critical value', () => {
+    // Critical value of chi-square with 99 degrees of freedom at p = 0.001 is 148.23 (NIST/SEMATECH
+    // e-Handbook of Statistical Methods, table 1.3.6.7.4; from memory, 148.2).
+    const rng = new Random(7);
+    const counts = new Array(100).fill(0);
+    const n = 100_000;
+    for (let i = 0; i < n; i++) counts[rng.int(100)]++;
+    const expected = n / 100;
+    const chi2 = counts.reduce((s, c) => s + (c - expected) ** 2 / expected, 0);
+    expect(chi2).toBeLessThan(148.2);
+  });
+
+  it('shuffles into a permutation', () => {
+    const items = Array.from({ length: 50 }, (_, i) => i);
+    const shuffled = new Random(3).shuffle([...items]);
+    expect([...shuffled].sort((x, y) => x - y)).toEqual(items);
+    expect(shuffled).not.toEqual(items);
+  });
+});
+
+describe('resampling', () => {
+  it('area-averages a 4 x 4 image to 2 x 2 (each output the mean of its 2 x 2 block, by definition)', () => {
+    const data = new Uint8Array(16 * 3);
+    for (let i = 0; i < 16; i++) data.set([i * 10, 255 - i * 10, 100], i * 3);
+    const out = downscaleToFloatRgb({ width: 4, height: 4, channels: 3, depth: 8, data }, 2);
+    expect(out.width).toBe(2);
+    expect(out.height).toBe(2);
+    // Top-left block holds pixels 0, 1, 4, 5: red mean (0 + 10 + 40 + 50) / 4 = 25.
+    expect(out.data[0]).toBeCloseTo(25 / 255, 6);
+    expect(out.data[1]).toBeCloseTo((255 * 4 - 100) / 4 / 255, 6);
+    // Bottom-right block: pixels 10, 11, 14, 15 -> red (100 + 110 + 140 + 150) / 4 = 125.
+    expect(out.data[9]).toBeCloseTo(125 / 255, 6);
+  });
+
+  it('spreads 16-bit grey to three equal channels', () => {
+    const data = new Uint16Array([0, 65535, 65535, 0]);
+    const out = downscaleToFloatRgb({ width: 2, height: 2, channels: 1, depth: 16, data }, 1);
+    expect(Array.from(out.data)).toEqual([0.5, 0.5, 0.5]);
+  });
+
+  it('samples crops exactly on a linear ramp (bilinear interpolation is exact for linear data)', () => {
+    const w = 40;
+    const h = 30;
+    const plane = new Float32Array(w * h);
+    for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) plane[y * w + x] = x + 100 * y;
+    const out = new Float32Array(64);
+    sampleCrop(plane, w, h, { x: 3, y: 5, side: 8, flip: false }, 8, out, 0);
+    expect(out[0]).toBe(3 + 500);
+    expect(out[7 * 8 + 7]).toBe(10 + 1200);
+    sampleCrop(plane, w, h, { x: 3, y: 5, side: 8, flip: true }, 8, out, 0);
+    expect(out[0]).toBe(10 + 500);
+    // Zoomed out by 2: output (ox, oy) samples source (3 + 2 ox + 0.5, 5 + 2 oy + 0.5).
+    sampleCrop(plane, w, h, { x: 3, y: 5, side: 16, flip: false }, 8, out, 0);
+    for (const [ox, oy] of [[0, 0], [5, 2], [7, 7]] as const) {
+      expect(out[oy * 8 + ox]).toBeCloseTo(3 + 2 * ox + 0.5 + 100 * (5 + 2 * oy + 0.5), 3);
+    }
+  });
+
+  it('upsamples bilinearly: constants stay constant, ramps stay ramps away from the border', () => {
+    const flat = resizeBilinear(new Float32Array(12).fill(7), 4, 3, 16, 12);
+    expect(flat.every((v) => v === 7)).toBe(true);
+    const ramp = new Float32Array([0, 4, 8, 12]);
+    const up = resizeBilinear(ramp, 4, 1, 16, 1);
+    // Output centre x maps to source (x + 0.5) / 4 - 0.5; values there are 4 times that.
+    for (let x = 2; x < 14; x++) expect(up[x]).toBeCloseTo(4 * ((x + 0.5) / 4 - 0.5), 5);
+  });
+});
+
+describe('photo sets', () => {
+  it('reads colour photos, skips grey, toned, unreadable and other files with counts, and holds some out', async () => {
+    const photos = join(dir, 'mixed');
+    await import('node:fs/promises').then((fs) => fs.mkdir(join(photos, 'sub'), { recursive: true }));
+    for (let i = 0; i < 5; i++) await png(join(photos, i < 3 ? `c${i}.png` : `sub/c${i}.png`), 80, 60, scene(i));
+    await png(join(photos, 'grey.png'), 80, 60, (x) => [x * 3, x * 3, x * 3]);
+    // A sepia-like print: one hue, chroma rising with density.
+    await png(join(photos, 'sepia.png'), 80, 60, (x) => [Math.round(90 + x * 2), Math.round(70 + x * 1.8), Math.round(50 + x * 1.5)]);
+    await writeFile(join(photos, 'broken.jpg'), 'this is text, not a JPEG');
+    await writeFile(join(photos, 'notes.txt'), 'sources');
+
+    const set = await loadPhotoSet([photos], { maxSide: 40, seed: 1, holdout: 0.1 });
+    expect(set.train.length + set.holdout.length).toBe(5);
+    expect(set.holdout.length).toBe(2); // at least 2 held out
+    expect(set.grey.map((f) => f.split('/').pop())).toEqual(['grey.png', 'sepia.png']);
+    expect(set.unreadable.map((u) => u.file.split('/').pop())).toEqual(['broken.jpg']);
+    expect(set.otherFiles).toBe(1);
+    for (const photo of [...set.train, ...set.holdout]) {
+      expect(Math.max(photo.width, photo.height)).toBe(40);
+      expect(photo.L.length).toBe(photo.width * photo.height);
+    }
+    // The same seed gives the same split.
+    const again = await loadPhotoSet([photos], { maxSide: 40, seed: 1, holdout: 0.1 });
+    expect(again.holdout.map((p) => p.file)).toEqual(set.holdout.map((p) => p.file));
+  });
+
+  it('keeps colours as CIELAB matching an independent library (culori, lab65) within 0.05', async () => {
+    const folder = join(dir, 'flat');
+    await import('node:fs/promises').then((fs) => fs.mkdir(folder, { recursive: true }));
+    const colours: [number, number, number][] = [[200, 60, 40], [40, 160, 60], [50, 80, 200], [220, 200, 60]];
+    for (const [i, c] of colours.entries()) {
+      // Half the image a flat colour, half a neutral, so the image is clearly colour.
+      await png(join(folder, `f${i}.png`), 32, 16, (x) => (x < 16 ? c : [128, 128, 128]));
+    }
+    const set = await loadPhotoSet([folder], { maxSide: 32, seed: 1 });
+    for (const photo of [...set.train, ...set.holdout]) {
+      const i = Number(photo.file.match(/f(\d)\.png$/)![1]);
+      const [r, g, b] = colours[i]!;
+      const ref = toLab({ mode: 'rgb', r: r / 255, g: g / 255, b: b / 255 });
+      expect(photo.L[0]).toBeCloseTo(ref.l, 1);
+      expect(Math.abs(photo.a[0]! - ref.a)).toBeLessThan(0.05);
+      expect(Math.abs(photo.b[0]! - ref.b)).toBeLessThan(0.05);
+    }
+  });
+
+  it('refuses an empty folder, unreadable files only, and too few colour photos with KH_BAD_DATA', async () => {
+    const fs = await import('node:fs/promises');
+    const empty = join(dir, 'empty');
+    await fs.mkdir(empty, { recursive: true });
+    const code = async (paths: string[]): Promise<KinhueError> => {
+      try {
+        await loadPhotoSet(paths, { maxSide: 32, seed: 1 });
+      } catch (error) {
+        expect(error).toBeInstanceOf(KinhueError);
+        return error as KinhueError;
+      }
+      throw new Error('expected a KinhueError');
+    };
+    const e1 = await code([empty]);
+    expect(e1.code).toBe('KH_BAD_DATA');
+    expect(e1.file).toBe(empty);
+    expect(e1.hint).toMatch(/colour photographs/);
+
+    const broken = join(dir, 'broken');
+    await fs.mkdir(broken, { recursive: true });
+    await writeFile(join(broken, 'a.jpg'), 'text');
+    await writeFile(join(broken, 'b.png'), Buffer.alloc(0));
+    const e2 = await code([broken]);
+    expect(e2.code).toBe('KH_BAD_DATA');
+    expect(e2.message).toMatch(/2 unreadable/);
+    expect(e2.hint).toMatch(/decoded/);
+
+    const few = join(dir, 'few');
+    await fs.mkdir(few, { recursive: true });
+    for (let i = 0; i < 3; i++) await png(join(few, `c${i}.png`), 80, 60, scene(i));
+    const e3 = await code([few]);
+    expect(e3.code).toBe('KH_BAD_DATA');
+    expect(e3.message).toMatch(/too few colour photos to train on: 3 colour photos usable/);
+  });
+
+  it('splits at least 2 held out and 2 to train, about the fraction asked', () => {
+    const files = Array.from({ length: 50 }, (_, i) => ({ file: `p${String(i).padStart(2, '0')}` }));
+    expect(splitHoldout(files, 0.1, 1).holdout.length).toBe(5);
+    expect(splitHoldout(files.slice(0, 4), 0.1, 1).holdout.length).toBe(2);
+    expect(splitHoldout(files.slice(0, 4), 0.5, 1).train.length).toBe(2);
+    const a = splitHoldout(files, 0.2, 1);
+    expect(new Set([...a.train, ...a.holdout].map((f) => f.file)).size).toBe(50);
+  });
+});
+
+function rampPhoto(file: string, w: number, h: number): Photo {
+  const L = new Float32Array(w * h);
+  const a = new Float32Array(w * h);
+  const b = new Float32Array(w * h);
+  for (let y = 0; y < h; y++) {
+    for (let x = 0; x < w; x++) {
+      L[y * w + x] = 20 + x;
+      a[y * w + x] = x - y;
+      b[y * w + x] = y;
+    }
+  }
+  return { file, width: w, height: h, L, a, b };
+}
+
+describe('crop sampling', () => {
+  it('visits every photo once per pass and continues identically from a saved state', () => {
+    const photos = Array.from({ length: 5 }, (_, i) => rampPhoto(`p${i}`, 48, 40));
+    const rng = new Random(5);
+    const sampler = new CropSampler(photos, rng);
+    sampler.next(5, 16);
+    const order = sampler.getState().order;
+    expect([...order].sort()).toEqual([0, 1, 2, 3, 4]);
+    sampler.next(3, 16);
+    const saved = { rng: rng.getState(), sampler: sampler.getState() };
+    const expected = sampler.next(4, 16);
+    const rng2 = new Random(saved.rng);
+    const resumed = new CropSampler(photos, rng2, saved.sampler).next(4, 16);
+    expect(resumed.L).toEqual(expected.L);
+    expect(resumed.ab).toEqual(expected.ab);
+  });
+
+  it('lays out L* planes and per-crop a* then b* planes, values from the photo', () => {
+    const photos = [rampPhoto('p', 64, 48)];
+    const batch = new CropSampler(photos, new Random(1)).next(2, 16);
+    expect(batch.L.length).toBe(2 * 256);
+    expect(batch.ab.length).toBe(2 * 2 * 256);
+    // b* = y and a* = x - y, L* = 20 + x: so a* + b* + 20 = L* at every sample (linear data).
+    for (let i = 0; i < 2; i++) {
+      for (let p = 0; p < 256; p += 37) {
+        expect(batch.ab[i * 512 + p]! + batch.ab[i * 512 + 256 + p]! + 20).toBeCloseTo(batch.L[i * 256 + p]!, 3);
+      }
+    }
+  });
+});
+
+describe('checkpoints', () => {
+  it('round-trip typed arrays bit for bit, including NaN and -0, and leave no temporary file', async () => {
+    const file = join(dir, 'ckpt', 'training-checkpoint.bin');
+    await import('node:fs/promises').then((fs) => fs.mkdir(join(dir, 'ckpt'), { recursive: true }));
+    const weights = [new Float32Array([1.5, -0, NaN, 1e-45, 3.4e38]), new Float32Array(0), new Float32Array([7])];
+    await saveCheckpoint(file, { step: 12, rng: [1, 2, 3, 4294967295], nested: { weights, ids: new Int32Array([-3, 9]) } });
+    const back = (await loadCheckpoint(file)) as { step: number; rng: number[]; nested: { weights: Float32Array[]; ids: Int32Array } };
+    expect(back.step).toBe(12);
+    expect(back.rng).toEqual([1, 2, 3, 4294967295]);
+    expect(back.nested.ids).toEqual(new Int32Array([-3, 9]));
+    back.nested.weights.forEach((w, i) => {
+      expect(w).toBeInstanceOf(Float32Array);
+      expect(Buffer.from(w.buffer)).toEqual(Buffer.from(weights[i]!.buffer));
+    });
+    expect(await readdir(join(dir, 'ckpt'))).toEqual(['training-checkpoint.bin']);
+  });
+
+  it('refuses a truncated or foreign file with KH_BAD_DATA and a missing one with KH_UNREADABLE', async () => {
+    const file = join(dir, 'ckpt', 'cut.bin');
+    await saveCheckpoint(file, { w: new Float32Array(1000) });
+    const fs = await import('node:fs/promises');
+    const whole = await fs.readFile(file);
+    await fs.writeFile(file, whole.subarray(0, whole.length - 100));
+    await expect(loadCheckpoint(file)).rejects.toMatchObject({ code: 'KH_BAD_DATA' });
+    await fs.writeFile(file, 'hello');
+    await expect(loadCheckpoint(file)).rejects.toMatchObject({ code: 'KH_BAD_DATA' });
+    await expect(loadCheckpoint(join(dir, 'ckpt', 'none.bin'))).rejects.toMatchObject({ code: 'KH_UNREADABLE' });
+  });
+});
+
+describe('held-out evaluation', () => {
+  it('scores the grey baseline as the CIEDE2000 of removing the colour (culori as reference)', async () => {
+    const w = 8;
+    const h = 8;
+    const photo: Photo = { file: 'flat', width: w, height: h, L: new Float32Array(w * h).fill(55), a: new Float32Array(w * h).fill(30), b: new Float32Array(w * h).fill(-20) };
+    const grey = await evaluatePhotos([photo]);
+    const reference = differenceCiede2000()({ mode: 'lab65', l: 55, a: 30, b: -20 }, { mode: 'lab65', l: 55, a: 0, b: 0 });
+    expect(grey.ciede2000).toBeCloseTo(reference, 4);
+    // A grey image has no colourfulness (Hasler & Suesstrunk 2003: rg = yb = 0).
+    expect(grey.colourfulness).toBeCloseTo(0, 6);
+    // A predictor that knows the answer, at a quarter of the size: exact for flat colour.
+    const perfect = await evaluatePhotos([photo], () => ({ a: new Float32Array(4).fill(30), b: new Float32Array(4).fill(-20), width: 2, height: 2 }));
+    expect(perfect.ciede2000).toBeLessThan(1e-3);
+    expect(perfect.psnr).toBe(100);
+    expect(perfect.psnr).toBeGreaterThan(grey.psnr);
+  });
+});

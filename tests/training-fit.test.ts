@@ -1,0 +1,165 @@
+import { mkdir, mkdtemp, readdir, readFile, rm, stat } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import sharp from 'sharp';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { labToSrgb } from '../src/colour/index.js';
+import { loadModel, predict } from '../src/model/index.js';
+import {
+  CHECKPOINT_FILE,
+  Random,
+  SUMMARY_FILE,
+  TRAINING_LOG_FILE,
+  evaluatePhotos,
+  fit,
+  loadCheckpoint,
+  loadPhotoSet,
+  readTrainingLog,
+  type FitOptions,
+} from '../src/training/index.js';
+
+// Small enough for CI: a narrow network, 32-pixel crops, 2 crops a step (common practice for tests).
+const TINY = { batch: 2, crop: 32, photoSize: 64, network: { width: 4 }, evalEvery: 2, checkpointMinutes: 60 } satisfies Partial<FitOptions>;
+
+let dir: string;
+beforeAll(async () => {
+  dir = await mkdtemp(join(tmpdir(), 'kinhue-training-fit-'));
+});
+afterAll(async () => {
+  await rm(dir, { recursive: true, force: true });
+});
+
+/**
+ * Generated scenes: a sky gradient above a ground band, with a few discs, colours drawn around
+ * fixed hues; `cast` maps each (a*, b*) as a colour cast would (our own test data).
+ */
+async function writeScenes(folder: string, count: number, seed: number, cast?: (a: number, b: number) => [number, number]): Promise<void> {
+  await mkdir(folder, { recursive: true });
+  const rng = new Random(seed);
+  const w = 96;
+  const h = 64;
+  for (let k = 0; k < count; k++) {
+    const L = new Float32Array(w * h);
+    const a = new Float32Array(w * h);
+    const b = new Float32Array(w * h);
+    const horizon = Math.round(h * rng.uniform(0.35, 0.65));
+    const discs = Array.from({ length: 3 }, () => ({ x: rng.uniform(0, w), y: rng.uniform(0, h), r: rng.uniform(6, 16), L: rng.uniform(30, 80), a: rng.uniform(-40, 60), b: rng.uniform(-30, 60) }));
+    for (let y = 0; y < h; y++) {
+      for (let x = 0; x < w; x++) {
+        const i = y * w + x;
+        let l: number, ca: number, cb: number;
+        if (y < horizon) [l, ca, cb] = [85 - (30 * y) / horizon, -5, -35 + (15 * y) / horizon]; // sky
+        else [l, ca, cb] = [35 + 10 * Math.sin(x / 5), -30, 35]; // grass
+        for (const d of discs) if ((x - d.x) ** 2 + (y - d.y) ** 2 < d.r ** 2) [l, ca, cb] = [d.L, d.a, d.b];
+        if (cast) [ca, cb] = cast(ca, cb);
+        L[i] = l;
+        a[i] = ca;
+        b[i] = cb;
+      }
+    }
+    const rgb = labToSrgb({ L, a, b }, new Uint8Array(w * h * 3), 3);
+    await sharp(Buffer.from(rgb), { raw: { width: w, height: h, channels: 3 } }).png().toFile(join(folder, `scene-${seed}-${k}.png`));
+  }
+}
+
+async function weightsOf(out: string): Promise<{ weights: Float32Array[]; trainer: { moments: { m: Float32Array; v: Float32Array }[] }; step: number }> {
+  return (await loadCheckpoint(join(out, CHECKPOINT_FILE))) as never;
+}
+
+describe('fit: resume', () => {
+  it('an interrupted and resumed run reaches the same weights as an uninterrupted one, bit for bit', async () => {
+    const photos = join(dir, 'scenes');
+    await writeScenes(photos, 6, 11);
+    const base = { ...TINY, photos: [photos], seed: 3, learningRate: 3e-3 };
+
+    const whole = await fit({ ...base, out: join(dir, 'whole'), steps: 6 });
+    expect(whole.steps).toBe(6);
+    expect(whole.stoppedBy).toBe('steps');
+
+    // Interrupted by its step budget after 3 steps, then resumed to 6.
+    const first = await fit({ ...base, out: join(dir, 'split'), steps: 3 });
+    expect(first.steps).toBe(3);
+    const resumed = await fit({ ...base, out: join(dir, 'split'), steps: 6, resume: true });
+    expect(resumed.steps).toBe(6);
+
+    // Interrupted by a signal (as Ctrl-C does) after 2 steps, then resumed.
+    const controller = new AbortController();
+    const stopped = await fit({ ...base, out: join(dir, 'signal'), steps: 6, signal: controller.signal }, (e) => {
+      if (e.type === 'step' && e.step === 2) controller.abort();
+    });
+    expect(stopped.stoppedBy).toBe('interrupted');
+    expect(stopped.steps).toBe(2);
+    await fit({ ...base, out: join(dir, 'signal'), steps: 6, resume: true });
+
+    const a = await weightsOf(join(dir, 'whole'));
+    for (const other of ['split', 'signal']) {
+      const b = await weightsOf(join(dir, other));
+      expect(b.step).toBe(6);
+      expect(b.weights.length).toBe(a.weights.length);
+      b.weights.forEach((w, i) => expect(Buffer.from(w.buffer).equals(Buffer.from(a.weights[i]!.buffer))).toBe(true));
+      b.trainer.moments.forEach((m, i) => expect(Buffer.from(m.v.buffer).equals(Buffer.from(a.trainer.moments[i]!.v.buffer))).toBe(true));
+    }
+    // The weights did change from the start (so the comparison means something).
+    expect(whole.heldOut.after.ciede2000).not.toBe(whole.heldOut.before.ciede2000);
+
+    // The log has one line per evaluation (steps 2, 4, 6), also after a resume (no duplicates).
+    expect((await readTrainingLog(join(dir, 'whole'))).map((e) => e.step)).toEqual([2, 4, 6]);
+    expect((await readTrainingLog(join(dir, 'split'))).map((e) => e.step)).toEqual([2, 3, 4, 6]);
+    const files = await readdir(join(dir, 'whole'));
+    for (const f of [CHECKPOINT_FILE, TRAINING_LOG_FILE, SUMMARY_FILE, 'model.json']) expect(files).toContain(f);
+    const summary = JSON.parse(await readFile(join(dir, 'whole', SUMMARY_FILE), 'utf8'));
+    expect(summary.heldOut.grey.ciede2000).toBeGreaterThan(0);
+  });
+
+  it('refuses to start over an existing run without --resume, and to resume where there is none', async () => {
+    const photos = join(dir, 'scenes');
+    await expect(fit({ ...TINY, photos: [photos], out: join(dir, 'whole'), steps: 1 })).rejects.toMatchObject({ code: 'KH_USAGE' });
+    await expect(fit({ ...TINY, photos: [photos], out: join(dir, 'none'), steps: 1, resume: true })).rejects.toMatchObject({ code: 'KH_UNREADABLE' });
+  });
+
+  it('writes no model for bad data', async () => {
+    const empty = join(dir, 'empty');
+    await mkdir(empty, { recursive: true });
+    const out = join(dir, 'bad-out');
+    await expect(fit({ ...TINY, photos: [empty], out, steps: 1 })).rejects.toMatchObject({ code: 'KH_BAD_DATA' });
+    await expect(stat(out)).rejects.toMatchObject({ code: 'ENOENT' });
+  });
+});
+
+describe('fit: tune', () => {
+  it('tuning on photos with a strong orange-red cast brings held-out error below the untuned model, keeping the best', async () => {
+    // The starting point: a model trained briefly on natural-looking scenes.
+    const natural = join(dir, 'natural');
+    await writeScenes(natural, 6, 21);
+    const start = join(dir, 'start');
+    await fit({ ...TINY, photos: [natural], out: start, steps: 8, learningRate: 3e-3, seed: 1 });
+
+    // Every colour pulled towards orange-red (a* +45, b* +40), at half its own strength.
+    const castPhotos = join(dir, 'cast');
+    await writeScenes(castPhotos, 8, 31, (a, b) => [45 + 0.5 * a, 40 + 0.5 * b]);
+    const out = join(dir, 'tuned');
+    const result = await fit({
+      ...TINY,
+      photos: [castPhotos],
+      out,
+      mode: 'tune',
+      from: start,
+      steps: 24,
+      evalEvery: 4,
+      learningRate: 1e-2,
+      freezeEncoder: true,
+      holdout: 0.25,
+      seed: 2,
+    });
+    expect(result.options.keep).toBe('best');
+    expect(result.heldOut.after.ciede2000).toBeLessThan(result.heldOut.before.ciede2000 - 2);
+
+    // The model kept is the best evaluation, not the last, and evaluates to the reported figure.
+    const log = await readTrainingLog(out);
+    expect(result.heldOut.after.ciede2000).toBe(Math.min(...log.map((e) => e.ciede2000)));
+    const set = await loadPhotoSet([castPhotos], { maxSide: TINY.photoSize, holdout: 0.25, seed: 2 });
+    const model = await loadModel(out);
+    const again = await evaluatePhotos(set.holdout, (L, w, h) => predict(model, L, w, h));
+    expect(again.ciede2000).toBeCloseTo(result.heldOut.after.ciede2000, 4);
+  });
+});
