@@ -37,6 +37,8 @@ const cases: Case[] = [
   { x: [2, 8, 9, 3], k: [5, 3], co: 4, stride: 1, pad: 'same' },
   { x: [2, 15, 10, 1], k: [4, 4], co: 3, stride: 2, pad: 'same' },
   { x: [1, 7, 7, 6], k: [2, 2], co: 3, stride: 1, pad: 'valid' },
+  { x: [2, 11, 9, 3], k: [1, 1], co: 4, stride: 2, pad: 'valid' },
+  { x: [2, 14, 12, 3], k: [3, 3], co: 4, stride: 2, pad: 'valid' },
 ];
 
 function gradients(c: Case, seed: number): { dx: Float32Array; dw: Float32Array } {

@@ -34,7 +34,7 @@ function scene(width: number, height: number, max: number): number[] {
 }
 
 async function grey8Png(path: string, w = 96, h = 64): Promise<void> {
-  await sharp(Uint8Array.from(scene(w, h, 255)), { raw: { width: w, height: h, channels: 1 } }).png().toFile(path);
+  await sharp(Uint8Array.from(scene(w, h, 255)), { raw: { width: w, height: h, channels: 1 } }).toColourspace('b-w').png().toFile(path);
 }
 
 async function grey16Tiff(path: string, w = 80, h = 60): Promise<void> {

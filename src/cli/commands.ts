@@ -1,9 +1,13 @@
 import type { CommandModule } from 'yargs';
 import { command as restoreCommand } from './commands/restore.js';
+import { command as scoreCommand } from './commands/score.js';
+import { command as sheetCommand } from './commands/sheet.js';
+import { command as trainCommand } from './commands/train.js';
+import { command as tuneCommand } from './commands/tune.js';
 
 /**
  * Every verb of the CLI, in the order `--help` lists them. Each module lives in
  * src/cli/commands/<verb>.ts and exports `command`.
  */
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-export const commands: CommandModule<any, any>[] = [restoreCommand];
+export const commands: CommandModule<any, any>[] = [restoreCommand, tuneCommand, trainCommand, scoreCommand, sheetCommand];

@@ -83,13 +83,9 @@ function coarsen(f: Level): Level {
   return withDiagonal({ width: cw, height: ch, east, south, southEast, southWest, extra, active });
 }
 
-/** Sum of w_ij v_j over the neighbours j of pixel i at (x, y). */
+/** Sum of w_ij v_j over the neighbours j of a border pixel i at (x, y). */
 function neighbourSum(l: Level, v: Float64Array, i: number, x: number, y: number): number {
   const { width: w, height: h, east: E, south: S, southEast: SE, southWest: SW } = l;
-  if (x > 0 && y > 0 && x < w - 1 && y < h - 1) {
-    return E[i]! * v[i + 1]! + E[i - 1]! * v[i - 1]! + S[i]! * v[i + w]! + S[i - w]! * v[i - w]!
-      + SE[i]! * v[i + w + 1]! + SE[i - w - 1]! * v[i - w - 1]! + SW[i]! * v[i + w - 1]! + SW[i - w + 1]! * v[i - w + 1]!;
-  }
   let s = 0;
   if (x < w - 1) s += E[i]! * v[i + 1]!;
   if (x > 0) s += E[i - 1]! * v[i - 1]!;
@@ -106,14 +102,19 @@ function neighbourSum(l: Level, v: Float64Array, i: number, x: number, y: number
   return s;
 }
 
-/** q = A p; returns p . q. Inactive pixels give 0. */
+/** q = A p; returns p . q. Inactive pixels give 0. Interior pixels take the unchecked path. */
 function multiply(l: Level, p: Float64Array, q: Float64Array): number {
-  const { width: w, height: h, diag, active } = l;
+  const { width: w, height: h, diag, active, east: E, south: S, southEast: SE, southWest: SW } = l;
   let dot = 0;
-  for (let y = 0, i = 0; y < h; y++) {
-    for (let x = 0; x < w; x++, i++) {
+  for (let y = 0; y < h; y++) {
+    const interior = y > 0 && y < h - 1;
+    for (let x = 0, i = y * w; x < w; x++, i++) {
       if (!active[i]) { q[i] = 0; continue; }
-      const v = diag[i]! * p[i]! - neighbourSum(l, p, i, x, y);
+      const s = interior && x > 0 && x < w - 1
+        ? E[i]! * p[i + 1]! + E[i - 1]! * p[i - 1]! + S[i]! * p[i + w]! + S[i - w]! * p[i - w]!
+          + SE[i]! * p[i + w + 1]! + SE[i - w - 1]! * p[i - w - 1]! + SW[i]! * p[i + w - 1]! + SW[i - w + 1]! * p[i - w + 1]!
+        : neighbourSum(l, p, i, x, y);
+      const v = diag[i]! * p[i]! - s;
       q[i] = v;
       dot += p[i]! * v;
     }
@@ -123,13 +124,20 @@ function multiply(l: Level, p: Float64Array, q: Float64Array): number {
 
 /** One Gauss-Seidel sweep on A x = b, forwards or backwards through the pixels. */
 function sweep(l: Level, x: Float64Array, b: Float64Array, forward: boolean): void {
-  const { width: w, height: h, diag, active } = l;
-  const n = w * h;
-  for (let k = 0; k < n; k++) {
-    const i = forward ? k : n - 1 - k;
-    if (!active[i]) continue;
-    const py = (i / w) | 0;
-    x[i] = (b[i]! + neighbourSum(l, x, i, i - py * w, py)) / diag[i]!;
+  const { width: w, height: h, diag, active, east: E, south: S, southEast: SE, southWest: SW } = l;
+  for (let k = 0; k < h; k++) {
+    const y = forward ? k : h - 1 - k;
+    const interior = y > 0 && y < h - 1;
+    for (let m = 0; m < w; m++) {
+      const px = forward ? m : w - 1 - m;
+      const i = y * w + px;
+      if (!active[i]) continue;
+      const s = interior && px > 0 && px < w - 1
+        ? E[i]! * x[i + 1]! + E[i - 1]! * x[i - 1]! + S[i]! * x[i + w]! + S[i - w]! * x[i - w]!
+          + SE[i]! * x[i + w + 1]! + SE[i - w - 1]! * x[i - w - 1]! + SW[i]! * x[i + w - 1]! + SW[i - w + 1]! * x[i - w + 1]!
+        : neighbourSum(l, x, i, px, y);
+      x[i] = (b[i]! + s) / diag[i]!;
+    }
   }
 }
 

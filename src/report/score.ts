@@ -10,7 +10,7 @@ import { tmpdir } from 'node:os';
 import {
   colourfulness, labToSrgb, meanAbError, meanCiede2000, psnr, srgbToLab, type LabPlanes,
 } from '../colour/index.js';
-import { colouriseLightness, DEFAULT_WORK_SIZE, discoverInputs } from '../batch/index.js';
+import { colouriseLightness, discoverInputs } from '../batch/index.js';
 import { ErrorCodes, InputError, KinhueError, UsageError } from '../errors.js';
 import { classifyTone, decodeImage, writeFileAtomic, type Pixels } from '../image/index.js';
 import { DEFAULT_MODEL_DIR, initBackend, loadModel, type KinhueModel } from '../model/index.js';
@@ -28,7 +28,7 @@ export interface ScoreOptions {
   photos: string[];
   /** Model folders to compare. Default: the shipped model. */
   models?: string[];
-  /** Long side in pixels at which the models run (as restore's --work-size). Default 512. */
+  /** Long side in pixels at which the models run (as restore's --work-size). Default: each model's own. */
   workSize?: number;
   /** Annealed-mean temperature. Default: each model's own. */
   temperature?: number;
@@ -141,7 +141,6 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     throw error;
   }
   const files = discovered.files;
-  const workSize = options.workSize ?? DEFAULT_WORK_SIZE;
 
   await initBackend();
   const dirs = options.models?.length ? options.models : [DEFAULT_MODEL_DIR];
@@ -179,6 +178,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
             figures[method.id] = measure(reinhardTransfer(grey, method.target!.statistics, { channels: ['a', 'b'] }), original);
           } else {
             const model = models[Number(method.id.slice('model:'.length)) - 1];
+            const workSize = options.workSize ?? model.meta.workingSize;
             const { a, b } = await colouriseLightness(lab.L, width, height, model, { workSize, temperature: options.temperature });
             figures[method.id] = measure({ L: lab.L, a, b }, original);
           }
@@ -197,7 +197,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     const notes = [
       "Each original's colour is taken out (its CIELAB L* kept, a* = b* = 0) and put back by each method; L* is never changed.",
       'Figures compare the 8-bit sRGB rendering of each result with the original rounded to 8 bits; averages count each photo once (PSNR averaged in dB).',
-      `Models run at a working size of ${workSize} px (long side), as restore does by default, with colour carried to full size edge-aware.`,
+      `Models run as restore runs them: at a working size of ${options.workSize ? `${options.workSize} px` : "each model's own"} (long side), colour carried to full size edge-aware.`,
       'Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper\'s l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target\'s mean colour everywhere.',
       ...transfer.map((m) => `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`),
       ...discovered.notes,
