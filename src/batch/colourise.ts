@@ -5,7 +5,8 @@
  * full-resolution L*. Used by the per-file restore (strip by strip) and by scoring (whole planes).
  */
 import {
-  bilateralGrid, bilateralUpsample, limitChroma, resizePlane, shrinkPlane, sliceRows, type BilateralGrid,
+  bilateralGrid, bilateralUpsample, greyToLightness, lightnessToGrey, limitChroma, resizePlane, shrinkPlane, sliceRows,
+  type BilateralGrid,
 } from '../colour/index.js';
 import { predict, type KinhueModel } from '../model/index.js';
 
@@ -99,7 +100,9 @@ export async function colouriseLightness(
   options: ColouriseOptions = {},
 ): Promise<{ a: Float32Array; b: Float32Array; confidence: Float32Array; meanConfidence: number }> {
   const ws = workingSize(width, height, options.workSize ?? 512);
-  const Lwork = shrinkPlane(L, width, height, ws.width, ws.height);
+  // Shrink as restore does: average sRGB-encoded grey, not L* (see workingLab).
+  const grey = lightnessToGrey(L, new Float32Array(L.length));
+  const Lwork = greyToLightness(shrinkPlane(grey, width, height, ws.width, ws.height), 1);
   const work = await workingColour(Lwork, ws.width, ws.height, model, options);
   const a = new Float32Array(width * height);
   const b = new Float32Array(width * height);

@@ -2,16 +2,14 @@
  * Restoring one scan: decode; L* at full resolution and depth; tone report; the model at the working
  * size; colour carried to full resolution edge-aware; the scan's own L* with the new a*b* converted to
  * sRGB at the scan's bit depth; the result, its confidence map and its provenance record written
- * atomically. Full-resolution stages run in strips of rows, so a 100-megapixel scan never exists as
+ * atomically. The full-resolution stage runs in strips of rows, so a 100-megapixel scan never exists as
  * float planes.
  */
 import { stat, mkdir } from 'node:fs/promises';
 import { dirname, relative, sep } from 'node:path';
+import { greyToLightness, labToSrgb, limitChroma, sliceRows } from '../colour/index.js';
 import {
-  PlaneShrinker, greyToLightness, labToSrgb, limitChroma, resizeRows, sliceRows, srgbToLab,
-} from '../colour/index.js';
-import {
-  classifyTone, decodeImage, encodeImage, estimateStatement, provenanceXmp, supports16Bit, writeFileAtomic,
+  classifyTone, decodeImage, encodeImage, estimateStatement, provenanceXmp, supports16Bit, writeFileAtomic, writeGreyMap,
   type BitDepth, type Pixels, type ToneReport,
 } from '../image/index.js';
 import type { KinhueModel } from '../model/index.js';
@@ -21,6 +19,7 @@ import { underFolder } from './discovery.js';
 import { fileSha256 } from './hash.js';
 import type { PlannedOutputs } from './naming.js';
 import type { RestoreSettings } from './options.js';
+import { workingLab } from './working-lab.js';
 
 /** One file's work, as the queue hands it to a worker (plain data: it crosses a thread boundary). */
 export interface FileJob {
@@ -107,30 +106,16 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
   const tHash = clock();
 
   const decoded = await decodeImage(job.source, { maxPixels: job.maxPixels });
-  const px = decoded.pixels;
+  let px: Pixels | undefined = decoded.pixels;
+  const sourceDepth = px.depth;
   const { width: W, height: H, channels } = px;
   const tDecode = clock();
 
-  // Pass 1: L* (and a*b* for the tone report) averaged down to the working size, strip by strip.
+  // The scan at the working size: the model's input and the tone report.
   const ws = workingSize(W, H, settings.workSize);
-  const shrinkL = new PlaneShrinker(W, H, ws.width, ws.height);
-  const shrinkA = new PlaneShrinker(W, H, ws.width, ws.height);
-  const shrinkB = new PlaneShrinker(W, H, ws.width, ws.height);
-  const rowsPer = stripRows(W);
-  for (let y = 0; y < H; y += rowsPer) {
-    const rows = Math.min(rowsPer, H - y);
-    const strip = stripOf(px, y, rows);
-    if (channels >= 3) {
-      const lab = srgbToLab(strip, channels);
-      shrinkL.addRows(lab.L, y, rows);
-      shrinkA.addRows(lab.a, y, rows);
-      shrinkB.addRows(lab.b, y, rows);
-    } else {
-      shrinkL.addRows(greyToLightness(strip, channels), y, rows);
-    }
-  }
-  const Lwork = shrinkL.result();
-  const tone = classifyTone({ L: Lwork, a: shrinkA.result(), b: shrinkB.result() });
+  const small = workingLab(px, ws.width, ws.height);
+  const Lwork = small.L;
+  const tone = classifyTone(small);
   const warnings = [...decoded.warnings];
   if (tone.kind === 'colour') warnings.push('the source is a colour photograph: only its lightness was used and its colours were replaced');
   const tLightness = clock();
@@ -143,14 +128,13 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
 
   // Pass 2: the source's own L* with the new a*b*, to sRGB at the output depth; the confidence map beside it.
   const grid = fullSizeGrid(work);
-  const outDepth: BitDepth = px.depth === 16 && supports16Bit(outputs.format) ? 16 : 8;
+  const outDepth: BitDepth = sourceDepth === 16 && supports16Bit(outputs.format) ? 16 : 8;
   const alpha = channels === 2 || channels === 4;
   const outChannels = alpha ? 4 : 3;
   const out = outDepth === 16 ? new Uint16Array(W * H * outChannels) : new Uint8Array(W * H * outChannels);
-  const conf = settings.confidence ? new Uint8Array(W * H) : undefined;
+  const rowsPer = stripRows(W);
   const a = new Float32Array(rowsPer * W);
   const b = new Float32Array(rowsPer * W);
-  const c = new Float32Array(rowsPer * W);
   for (let y = 0; y < H; y += rowsPer) {
     const rows = Math.min(rowsPer, H - y);
     const n = rows * W;
@@ -162,14 +146,11 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
     limitChroma(L, sa, sb);
     const target = out.subarray(y * W * outChannels, (y + rows) * W * outChannels);
     labToSrgb({ L, a: sa, b: sb }, target, outChannels);
-    if (alpha) copyAlpha(strip, channels, px.depth, target, outDepth);
-    if (conf) {
-      const sc = c.subarray(0, n);
-      resizeRows(work.confidence, work.confidenceWidth, work.confidenceHeight, W, H, y, rows, sc);
-      const o = y * W;
-      for (let i = 0; i < n; i++) conf[o + i] = Math.round(Math.min(1, Math.max(0, sc[i]!)) * 255);
-    }
+    if (alpha) copyAlpha(strip, channels, sourceDepth, target, outDepth);
   }
+  // The source samples are done with: let them go before the encoder needs its own memory (huge scans).
+  px = undefined;
+  (decoded as { pixels?: Pixels }).pixels = undefined;
   const tColour = clock();
 
   const imagePath = underFolder(job.outDir, outputs.image);
@@ -182,7 +163,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
     extra: {
       model: settings.model,
       meanConfidence: meanConfidence.toFixed(3),
-      ...(conf ? { confidenceMap: baseName(outputs.confidence) } : {}),
+      ...(settings.confidence ? { confidenceMap: baseName(outputs.confidence) } : {}),
       record: baseName(outputs.record),
     },
   });
@@ -192,10 +173,9 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
     { format: outputs.format, quality: settings.quality ?? undefined, exif: decoded.exif, icc: decoded.icc, xmp },
   );
   warnings.push(...encoded.warnings);
-  if (conf) {
-    await encodeImage({ width: W, height: H, channels: 1, depth: 8, data: conf }, underFolder(job.outDir, outputs.confidence), {
-      format: 'png',
-    });
+  if (settings.confidence) {
+    const conf = Uint8Array.from(work.confidence, (v) => Math.round(Math.min(1, Math.max(0, v)) * 255));
+    await writeGreyMap(conf, work.confidenceWidth, work.confidenceHeight, W, H, underFolder(job.outDir, outputs.confidence));
   }
   const tEncode = clock();
 
@@ -220,7 +200,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
       image: baseName(outputs.image),
       format: outputs.format,
       bitDepth: encoded.depth,
-      confidenceMap: conf ? baseName(outputs.confidence) : null,
+      confidenceMap: settings.confidence ? baseName(outputs.confidence) : null,
     },
     model: { name: settings.model, weightsSha256: settings.weightsSha256, folder: model.dir ?? '' },
     settings,

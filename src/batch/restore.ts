@@ -6,7 +6,7 @@
 import { mkdir, readdir, rm, stat } from 'node:fs/promises';
 import { dirname, resolve } from 'node:path';
 import pLimit from 'p-limit';
-import { ErrorCodes, isKinhueError, UsageError } from '../errors.js';
+import { ErrorCodes, isKinhueError, ModelError, UsageError } from '../errors.js';
 import { readModelInfo } from './model-info.js';
 import { discoverInputs, underFolder } from './discovery.js';
 import { appendManifest, readManifest, type ManifestRecord } from './manifest.js';
@@ -27,6 +27,8 @@ export interface PlannedFile {
   rel: string;
   outputs: PlannedOutputs;
   action: PlanAction;
+  /** After the run: what happened ('planned' on a dry run). */
+  status: 'planned' | 'done' | 'failed' | 'skipped' | 'not-run';
 }
 
 export interface FileFailure {
@@ -86,7 +88,15 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     throw new UsageError(`--out ${options.out} is a file, not a folder\nExample usage: kinhue restore scans/ --out restored/`);
   }
 
-  const model = await readModelInfo(modelDir);
+  const model = await readModelInfo(modelDir).catch((error: unknown) => {
+    if (options.model === undefined && error instanceof ModelError) {
+      throw new ModelError(`the shipped model is missing or damaged (${error.message})`, {
+        file: modelDir,
+        hint: 'reinstall kinhue, or pass a model folder with --model',
+      });
+    }
+    throw error;
+  });
   const settings: RestoreSettings = {
     model: model.name,
     weightsSha256: model.weightsSha256,
@@ -111,7 +121,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     if (!options.force && last?.status === 'done' && last.settings === key && (await stillFinished(f.path, outDir, o, last))) {
       action = 'skip';
     }
-    files.push({ source: f.path, rel: f.rel, outputs: o, action });
+    files.push({ source: f.path, rel: f.rel, outputs: o, action, status: action === 'skip' ? 'skipped' : 'planned' });
   }
   const todo = files.filter((f) => f.action !== 'skip');
   onEvent({ type: 'plan', files, toRun: todo.length, skipped: files.length - todo.length, outDir, notes: discovery.notes });
@@ -135,7 +145,6 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   let stopping = false;
   let hard = false;
   let fatal: Error | undefined;
-  const inFlight = new Set<PlannedFile>();
   const onStop = (): void => {
     if (stopping) return;
     stopping = true;
@@ -154,7 +163,6 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
 
   const runOne = async (file: PlannedFile): Promise<void> => {
     if (stopping || fatal) return;
-    inFlight.add(file);
     onEvent({ type: 'start', rel: file.rel });
     const job: FileJob = { source: file.source, rel: file.rel, outDir, outputs: file.outputs, settings, maxPixels: options.maxPixels };
     try {
@@ -165,6 +173,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
       }
       await appendManifest(manifestPath, doneRecord(file, outcome.record, outcome, key));
       summary.done++;
+      file.status = 'done';
       onEvent({
         type: 'done', rel: file.rel, output: file.outputs.image, seconds: outcome.seconds,
         done: summary.done, failed: summary.failed.length, total: todo.length, warnings: outcome.record.warnings,
@@ -179,12 +188,11 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
       const data: SerialisedError = serialiseError(error);
       const failure: FileFailure = { source: file.source, rel: file.rel, code: data.code, message: data.message, hint: data.hint };
       summary.failed.push(failure);
+      file.status = 'failed';
       await appendManifest(manifestPath, failedRecord(file, failure, key)).catch((e: unknown) => {
         fatal ??= e as Error;
       });
       onEvent({ type: 'failed', rel: file.rel, failure, done: summary.done, failed: summary.failed.length, total: todo.length });
-    } finally {
-      inFlight.delete(file);
     }
   };
 
@@ -197,8 +205,9 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     if (hard) await removeTemporaryFiles(outDir, todo);
   }
   if (fatal) throw fatal;
-  summary.interrupted = stopping;
+  for (const f of todo) if (f.status === 'planned') f.status = 'not-run';
   summary.notRun = todo.length - summary.done - summary.failed.length;
+  summary.interrupted = stopping && summary.notRun > 0;
   summary.seconds = (performance.now() - started) / 1000;
   return summary;
 }

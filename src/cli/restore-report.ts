@@ -71,6 +71,7 @@ export function summaryToJson(summary: RestoreSummary): string {
     source: f.source,
     relative: f.rel,
     action: f.action,
+    status: f.status,
     output: f.outputs.image,
     confidenceMap: summary.settings.confidence ? f.outputs.confidence : null,
     record: f.outputs.record,

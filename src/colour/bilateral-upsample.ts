@@ -133,20 +133,30 @@ export function sliceRows(
   const { gw, gh, gz, data, cell } = grid;
   const zMax = gz - 1;
   const inv = 1 / grid.rangeStep;
+  const cellStride = gz * 3;
+  const rowStride = gw * cellStride;
   const cx0 = new Int32Array(fullWidth);
   const cx1 = new Int32Array(fullWidth);
   const ctx = new Float32Array(fullWidth);
   for (let x = 0; x < fullWidth; x++) {
     const [i0, i1, t] = gridPoint(x, fullWidth, grid.width, cell, gw);
-    cx0[x] = i0 * gz * 3;
-    cx1[x] = i1 * gz * 3;
+    cx0[x] = i0 * cellStride;
+    cx1[x] = i1 * cellStride;
     ctx[x] = t;
   }
-  const rowStride = gw * gz * 3;
+  // The two grid rows around a pixel row, blended once per row: each pixel then reads 2 x 2 x 3 values.
+  const row = new Float32Array(rowStride);
+  let lastKey = -1;
   for (let j = 0; j < rows; j++) {
     const [r0, r1, ty] = gridPoint(y0 + j, fullHeight, grid.height, cell, gh);
-    const o0 = r0 * rowStride;
-    const o1 = r1 * rowStride;
+    const key = r0 * 4096 + Math.round(ty * 4095);
+    if (key !== lastKey) {
+      lastKey = key;
+      const o0 = r0 * rowStride;
+      const o1 = r1 * rowStride;
+      const uy = 1 - ty;
+      for (let k = 0; k < rowStride; k++) row[k] = uy * data[o0 + k]! + ty * data[o1 + k]!;
+    }
     const base = j * fullWidth;
     for (let x = 0; x < fullWidth; x++) {
       let z = L[base + x]! * inv;
@@ -155,30 +165,14 @@ export function sliceRows(
       let z0 = z | 0;
       if (z0 > gz - 2) z0 = gz - 2;
       const tz = z - z0;
+      const uz = 1 - tz;
       const tx = ctx[x]!;
-      const wz = z0 * 3;
-      const p00 = o0 + cx0[x]! + wz;
-      const p01 = o0 + cx1[x]! + wz;
-      const p10 = o1 + cx0[x]! + wz;
-      const p11 = o1 + cx1[x]! + wz;
-      const w00 = (1 - ty) * (1 - tx);
-      const w01 = (1 - ty) * tx;
-      const w10 = ty * (1 - tx);
-      const w11 = ty * tx;
-      let sa = 0;
-      let sb = 0;
-      let sw = 0;
-      for (let k = 0; k < 2; k++) {
-        const wk = k === 0 ? 1 - tz : tz;
-        const d = k * 3;
-        const c00 = w00 * wk;
-        const c01 = w01 * wk;
-        const c10 = w10 * wk;
-        const c11 = w11 * wk;
-        sa += c00 * data[p00 + d]! + c01 * data[p01 + d]! + c10 * data[p10 + d]! + c11 * data[p11 + d]!;
-        sb += c00 * data[p00 + d + 1]! + c01 * data[p01 + d + 1]! + c10 * data[p10 + d + 1]! + c11 * data[p11 + d + 1]!;
-        sw += c00 * data[p00 + d + 2]! + c01 * data[p01 + d + 2]! + c10 * data[p10 + d + 2]! + c11 * data[p11 + d + 2]!;
-      }
+      const ux = 1 - tx;
+      const p = cx0[x]! + z0 * 3;
+      const q = cx1[x]! + z0 * 3;
+      const sa = ux * (uz * row[p]! + tz * row[p + 3]!) + tx * (uz * row[q]! + tz * row[q + 3]!);
+      const sb = ux * (uz * row[p + 1]! + tz * row[p + 4]!) + tx * (uz * row[q + 1]! + tz * row[q + 4]!);
+      const sw = ux * (uz * row[p + 2]! + tz * row[p + 5]!) + tx * (uz * row[q + 2]! + tz * row[q + 5]!);
       outA[base + x] = sw > 0 ? sa / sw : 0;
       outB[base + x] = sw > 0 ? sb / sw : 0;
     }

@@ -8,3 +8,4 @@ export * from './xmp.js';
 export * from './atomic.js';
 export { exifOrientation, exifForUprightOutput } from './exif.js';
 export { iccColourSpace, iccFitsChannels, srgbProfile } from './icc.js';
+export * from './grey-map.js';

@@ -56,6 +56,9 @@ async function tryWasm(): Promise<boolean> {
 }
 
 async function choose(prefer: BackendName | undefined): Promise<BackendInfo> {
+  // TensorFlow.js prints its own notices (e.g. on starting the cpu backend in Node); only the CLI
+  // prints in kinhue, and it reports the fallback from `warning`.
+  tf.env().set('PROD', true);
   const order: BackendName[] = ['node', 'wasm', 'cpu'];
   if (prefer) order.sort((x, y) => (x === prefer ? -1 : y === prefer ? 1 : 0));
   for (const name of order) {

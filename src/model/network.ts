@@ -53,8 +53,9 @@ export function createNetwork(options: NetworkOptions = {}): tf.LayersModel {
 
   const input = tf.input({ shape: [null, null, 1], name: 'lightness' });
   // Encoder: 1/2, 1/4, 1/8, 1/16.
-  let x = conv(`${ENCODER}1a`, c).apply(input) as tf.SymbolicTensor;
-  x = conv(`${ENCODER}1b`, c, 2).apply(x) as tf.SymbolicTensor;
+  // The first layer strides at once: a full-resolution layer costs more to train than it gives
+  // a network whose output is at a quarter of the resolution.
+  let x = conv(`${ENCODER}1`, c, 2).apply(input) as tf.SymbolicTensor;
   x = conv(`${ENCODER}2a`, 2 * c).apply(x) as tf.SymbolicTensor;
   x = conv(`${ENCODER}2b`, 2 * c, 2).apply(x) as tf.SymbolicTensor;
   const skip4 = conv(`${ENCODER}3a`, 4 * c).apply(x) as tf.SymbolicTensor;
@@ -66,12 +67,10 @@ export function createNetwork(options: NetworkOptions = {}): tf.LayersModel {
   // Decoder: back to 1/8, then 1/4, joining the encoder's features of the same size.
   x = tf.layers.upSampling2d({ name: 'dec1_up', size: [2, 2] }).apply(x) as tf.SymbolicTensor;
   x = tf.layers.concatenate({ name: 'dec1_join' }).apply([x, skip8]) as tf.SymbolicTensor;
-  x = conv('dec1a', 8 * c).apply(x) as tf.SymbolicTensor;
-  x = conv('dec1b', 8 * c).apply(x) as tf.SymbolicTensor;
+  x = conv('dec1', 4 * c).apply(x) as tf.SymbolicTensor;
   x = tf.layers.upSampling2d({ name: 'dec2_up', size: [2, 2] }).apply(x) as tf.SymbolicTensor;
   x = tf.layers.concatenate({ name: 'dec2_join' }).apply([x, skip4]) as tf.SymbolicTensor;
-  x = conv('dec2a', 6 * c).apply(x) as tf.SymbolicTensor;
-  x = conv('dec2b', 6 * c).apply(x) as tf.SymbolicTensor;
+  x = conv('dec2', 3 * c).apply(x) as tf.SymbolicTensor;
   const logits = tf.layers
     .conv2d({ name: 'logits', filters: q, kernelSize: 1, kernelInitializer: tf.initializers.glorotUniform({ seed: seed++ }) })
     .apply(x) as tf.SymbolicTensor;

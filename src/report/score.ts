@@ -197,7 +197,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     const notes = [
       "Each original's colour is taken out (its CIELAB L* kept, a* = b* = 0) and put back by each method; L* is never changed.",
       'Figures compare the 8-bit sRGB rendering of each result with the original rounded to 8 bits; averages count each photo once (PSNR averaged in dB).',
-      `Models run as restore runs them: at a working size of ${options.workSize ? `${options.workSize} px` : "each model's own"} (long side), colour carried to full size edge-aware.`,
+      `Models run as restore runs them: at ${options.workSize ? `a working size of ${options.workSize} px` : "each model's own working size"} (long side), colour carried to full size edge-aware.`,
       'Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper\'s l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target\'s mean colour everywhere.',
       ...transfer.map((m) => `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`),
       ...discovered.notes,

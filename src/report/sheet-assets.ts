@@ -31,10 +31,11 @@ h2 { margin: 0; font-size: 1.02rem; font-weight: 600; font-family: ui-monospace,
 .track { display: inline-block; width: 90px; height: 8px; background: #e9e6df; border-radius: 4px; overflow: hidden; }
 .fill { display: block; height: 100%; background: var(--accent); }
 .body { display: grid; grid-template-columns: minmax(280px, 1.25fr) minmax(300px, 1fr); gap: 18px; align-items: start; }
-.compare { position: relative; line-height: 0; border-radius: 4px; overflow: hidden; background: #ddd; user-select: none; }
-.compare img { display: block; width: 100%; height: auto; }
+.viewer { display: flex; justify-content: center; background: #eeece7; border-radius: 4px; padding: 6px; }
+.compare { position: relative; display: inline-block; max-width: 100%; line-height: 0; user-select: none; }
+.compare img.after { display: block; max-width: 100%; max-height: 460px; width: auto; height: auto; }
 .before-clip { position: absolute; inset: 0; clip-path: inset(0 50% 0 0); }
-.before-clip img { width: 100%; height: 100%; object-fit: cover; }
+.before-clip img { display: block; width: 100%; height: 100%; }
 .divider { position: absolute; top: 0; bottom: 0; left: 50%; width: 2px; margin-left: -1px; background: #fff;
   box-shadow: 0 0 0 1px rgba(0,0,0,.35); pointer-events: none; }
 .compare input[type=range] { position: absolute; inset: 0; width: 100%; height: 100%; margin: 0; opacity: 0; cursor: ew-resize; }
@@ -47,7 +48,10 @@ figure { margin: 0; }
 figcaption { font-size: .78rem; color: var(--muted); margin-top: 3px; }
 .missing { height: 110px; display: flex; align-items: center; justify-content: center; font-size: .8rem; color: var(--muted);
   background: #eeece7; border-radius: 3px; }
-.chart { margin-top: 12px; }
+.chart { margin-top: 12px; display: flex; gap: 18px; align-items: flex-end; flex-wrap: wrap; }
+.chart .label { font-size: .78rem; color: var(--muted); margin-bottom: 2px; }
+.keyfacts { margin: 0; font-size: .82rem; display: grid; grid-template-columns: auto 1fr; gap: 1px 10px; }
+.keyfacts dt { color: var(--muted); } .keyfacts dd { margin: 0; }
 .hist text { font-size: 9px; fill: var(--muted); font-family: system-ui, sans-serif; }
 details { margin-top: 10px; font-size: .85rem; }
 summary { cursor: pointer; color: var(--accent); }

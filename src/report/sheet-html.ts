@@ -24,7 +24,9 @@ export interface SheetPhoto {
   meanConfidence?: number;
   /** Fractions of pixels per confidence bin, low to high. */
   histogram?: number[];
-  /** Provenance as label/value rows. */
+  /** A few facts shown at once (size, tone, time). */
+  facts?: [string, string][];
+  /** Provenance as label/value rows (shown on request). */
   details: [string, string][];
   /** Why a failed input failed. */
   error?: { code?: string; message: string; hint?: string };
@@ -59,22 +61,27 @@ function confidenceBadge(mean: number | undefined): string {
     `<span class="track"><span class="fill" style="width:${pct}%"></span></span></span>`;
 }
 
-function detailsTable(rows: [string, string][]): string {
+function detailsTable(rows: [string, string][], label: string): string {
   if (rows.length === 0) return '';
   const body = rows.map(([k, v]) => `<tr><th>${escapeHtml(k)}</th><td>${escapeHtml(v)}</td></tr>`).join('');
-  return `<details><summary>provenance</summary><table class="prov">${body}</table></details>`;
+  return `<details><summary>${label}</summary><table class="prov">${body}</table></details>`;
+}
+
+function keyFacts(rows: [string, string][] | undefined): string {
+  if (!rows?.length) return '';
+  return `<dl class="keyfacts">${rows.map(([k, v]) => `<dt>${escapeHtml(k)}</dt><dd>${escapeHtml(v)}</dd>`).join('')}</dl>`;
 }
 
 function doneCard(p: SheetPhoto, index: number): string {
   const name = escapeHtml(p.name);
   const compare = p.scan && p.result
-    ? `<div class="compare" data-compare>` +
+    ? `<div class="viewer"><div class="compare" data-compare>` +
       `${img(p.result, `colourised ${p.name}`, 'after')}` +
       `<div class="before-clip">${img(p.scan, `scan ${p.name}`, 'before')}</div>` +
       `<div class="divider"></div>` +
       `<input type="range" min="0" max="100" value="50" aria-label="move the divider between scan and result">` +
-      `<span class="tag left">scan</span><span class="tag right">result</span></div>`
-    : '';
+      `<span class="tag left">scan</span><span class="tag right">result</span></div></div>`
+    : '<div class="viewer missing">no comparison: the scan or the result is not there</div>';
   return `<article class="photo" data-status="done" data-name="${name}" data-order="${index}" ` +
     `data-confidence="${p.meanConfidence ?? ''}">` +
     `<header><h2>${name}</h2>${confidenceBadge(p.meanConfidence)}</header>` +
@@ -82,8 +89,9 @@ function doneCard(p: SheetPhoto, index: number): string {
     `<div class="trio"><figure>${img(p.scan, `scan ${p.name}`, 'thumb')}<figcaption>scan</figcaption></figure>` +
     `<figure>${img(p.result, `colourised ${p.name}`, 'thumb')}<figcaption>result</figcaption></figure>` +
     `<figure>${img(p.confidence, `confidence map of ${p.name}`, 'thumb')}<figcaption>confidence (white = sure)</figcaption></figure></div>` +
-    (p.histogram ? `<div class="chart">${histogramSvg(p.histogram)}</div>` : '') +
-    detailsTable(p.details) + `</div></div></article>`;
+    `<div class="chart">${p.histogram ? `<div><div class="label">pixels by confidence</div>${histogramSvg(p.histogram)}</div>` : ''}` +
+    `${keyFacts(p.facts)}</div>` +
+    detailsTable(p.details, 'provenance record') + `</div></div></article>`;
 }
 
 function failedCard(p: SheetPhoto, index: number): string {
@@ -93,7 +101,7 @@ function failedCard(p: SheetPhoto, index: number): string {
     `<header><h2>${name}</h2><span class="badge bad">failed${e.code ? ` &middot; ${escapeHtml(e.code)}` : ''}</span></header>` +
     `<p class="message">${escapeHtml(e.message)}</p>` +
     (e.hint ? `<p class="hint">next step: ${escapeHtml(e.hint)}</p>` : '') +
-    detailsTable(p.details) + `</article>`;
+    detailsTable(p.details, 'details') + `</article>`;
 }
 
 /**

@@ -6,7 +6,8 @@
  * embedded preview.
  */
 import { readFile, stat } from 'node:fs/promises';
-import { dirname, extname, join, relative, resolve, sep } from 'node:path';
+import { dirname, extname, isAbsolute, join, relative, resolve, sep } from 'node:path';
+import { pathToFileURL } from 'node:url';
 import { MANIFEST_NAME, readManifest, underFolder, type ManifestRecord, type ProvenanceRecord } from '../batch/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
 import { decodeImage, encodeBuffer, writeFileAtomic, type Pixels } from '../image/index.js';
@@ -45,9 +46,16 @@ async function exists(path: string): Promise<boolean> {
   return stat(path).then((s) => s.isFile(), () => false);
 }
 
-/** A relative URL from the page's folder to a file: each segment percent-encoded, '/' between. */
+/**
+ * A relative URL from the page's folder to a file: each segment percent-encoded, '/' between. On
+ * another drive (Windows) no relative path exists: then a file: URL.
+ * @example
+ * relativeUrl('/a/out', '/a/scans/hay cart.jpg'); // '../scans/hay%20cart.jpg'
+ */
 export function relativeUrl(fromDir: string, file: string): string {
-  return relative(fromDir, file).split(sep).map(encodeURIComponent).join('/');
+  const rel = relative(fromDir, file);
+  if (isAbsolute(rel)) return pathToFileURL(file).href;
+  return rel.split(sep).map(encodeURIComponent).join('/');
 }
 
 /** A JPEG preview of pixels as a data: URI, long side at most `size`. */
@@ -100,6 +108,17 @@ function provenanceRows(p: ProvenanceRecord): [string, string][] {
   return rows;
 }
 
+/** The facts worth seeing without opening the record. */
+function keyFactsOf(p: ProvenanceRecord): [string, string][] {
+  const s = p.source;
+  return [
+    ['scan', `${s.width} x ${s.height} px, ${s.bitDepth}-bit ${s.format.toUpperCase()}`],
+    ['tone', p.tone.kind === 'toned' ? `toned (${p.tone.name ?? 'tint'}), tint removed` : p.tone.kind],
+    ['result', `${p.result.format.toUpperCase()}, ${p.result.bitDepth}-bit`],
+    ['time', `${(p.timings.total / 1000).toFixed(1)} s`],
+  ];
+}
+
 function failed(name: string, message: string, details: [string, string][], code?: string, hint?: string): SheetPhoto {
   return { name, status: 'failed', details, error: { code, message, hint } };
 }
@@ -145,6 +164,7 @@ async function photoFor(run: string, record: ManifestRecord, ctx: Context): Prom
     confidence: await imageFor(confidencePath, ctx, size),
     meanConfidence: provenance.meanConfidence,
     histogram,
+    facts: keyFactsOf(provenance),
     details: provenanceRows(provenance),
   };
 }

@@ -1,0 +1,165 @@
+// Restore throughput and memory. Prints, for a folder of 6-megapixel 8-bit JPEG scans: images per minute
+// with --jobs 1 and --jobs 2, the time of decode plus encode alone on the same files (the floor) and the
+// ratio to it; then the peak resident memory of restoring a 100-megapixel 16-bit greyscale TIFF.
+// Goal (issue 4): at least 60 images per minute on a 2-core machine. Figures only, no assertions.
+// Uses models/kinhue-base when present, else a freshly created (untrained) network of the default size:
+// colour quality plays no part in speed.
+import { spawnSync } from 'node:child_process';
+import { existsSync, mkdirSync, mkdtempSync, readFileSync, readdirSync, rmSync } from 'node:fs';
+import { availableParallelism, tmpdir } from 'node:os';
+import { dirname, join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+
+const here = dirname(fileURLToPath(import.meta.url));
+const root = join(here, '..');
+const kinhue = await import(join(root, 'dist', 'index.js'));
+const BIN = join(root, 'bin', 'kinhue.js');
+const SCANS = Number(process.env.KINHUE_BENCH_SCANS ?? 8);
+const WIDTH = 3000;
+const HEIGHT = 2000;
+
+// Child modes: make the 100-MP TIFF, or restore in this process and report peak memory (worker threads
+// share the process, so maxRSS covers them).
+if (process.argv[2] === '--make-big-tiff') {
+  const sharp = (await import('sharp')).default;
+  const [path, side] = [process.argv[3], Number(process.argv[4])];
+  const data = new Uint16Array(side * side);
+  let s = 12345;
+  for (let y = 0; y < side; y++) {
+    for (let x = 0; x < side; x++) {
+      s = (s * 1103515245 + 12345) >>> 0;
+      const disc = Math.hypot(x - side * 0.4, y - side * 0.5) < side * 0.25;
+      data[y * side + x] = Math.round((disc ? 14000 : 30000 + (25000 * x) / side) + ((s >>> 16) % 2000));
+    }
+  }
+  await sharp(data, { raw: { width: side, height: side, channels: 1 } })
+    .toColourspace('grey16')
+    .tiff({ compression: 'deflate', predictor: 'horizontal' })
+    .toFile(path);
+  process.exit(0);
+}
+if (process.argv[2] === '--restore-in-process') {
+  const [input, out, model] = process.argv.slice(3);
+  const t0 = performance.now();
+  const summary = await kinhue.restore({ inputs: [input], out, model, jobs: 1 });
+  const seconds = (performance.now() - t0) / 1000;
+  console.log(JSON.stringify({ seconds, maxRssMB: process.resourceUsage().maxRSS / 1024, done: summary.done, failed: summary.failed }));
+  process.exit(0);
+}
+
+const tmp = mkdtempSync(join(tmpdir(), 'kinhue-bench-restore-'));
+try {
+  await main();
+} finally {
+  rmSync(tmp, { recursive: true, force: true });
+}
+
+async function main() {
+  const sharp = (await import('sharp')).default;
+  let modelDir = join(root, 'models', 'kinhue-base');
+  if (!existsSync(join(modelDir, 'kinhue-model.json'))) {
+    await kinhue.initBackend();
+    const network = kinhue.createNetwork({ seed: 1 });
+    modelDir = join(tmp, 'model');
+    await kinhue.saveModel(network, modelDir, { name: 'bench-untrained' });
+    network.dispose();
+    console.log('model: a fresh untrained network of the default size (models/kinhue-base not present)');
+  } else console.log(`model: ${modelDir}`);
+
+  // Sepia-toned grainy scans, 3000 x 2000 (6 MP), 8-bit RGB JPEG at quality 90.
+  const scans = join(tmp, 'scans');
+  mkdirSync(scans);
+  const rgb = new Uint8Array(WIDTH * HEIGHT * 3);
+  for (let k = 0; k < SCANS; k++) {
+    let s = 777 + k;
+    for (let y = 0; y < HEIGHT; y++) {
+      for (let x = 0; x < WIDTH; x++) {
+        s = (s * 1103515245 + 12345) >>> 0;
+        const disc = Math.hypot(x - WIDTH * (0.3 + 0.05 * k), y - HEIGHT * 0.5) < HEIGHT * 0.3;
+        const band = Math.sin((x + y * (k + 1)) / 90) > 0.6;
+        const v = Math.max(0, Math.min(237, (disc ? 70 : band ? 150 : 190 - (60 * y) / HEIGHT) + ((s >>> 16) % 24) - 12));
+        const i = (y * WIDTH + x) * 3;
+        rgb[i] = v + 18;
+        rgb[i + 1] = Math.round(v * 0.86 + 8);
+        rgb[i + 2] = Math.round(v * 0.68);
+      }
+    }
+    await sharp(rgb, { raw: { width: WIDTH, height: HEIGHT, channels: 3 } })
+      .jpeg({ quality: 90 })
+      .toFile(join(scans, `scan-${String(k + 1).padStart(2, '0')}.jpg`));
+  }
+  const files = readdirSync(scans).map((f) => join(scans, f));
+  console.log(`${files.length} scans of ${WIDTH} x ${HEIGHT} (${((WIDTH * HEIGHT) / 1e6).toFixed(0)} MP), 8-bit JPEG; ${availableParallelism()} cores`);
+
+  // The floor: decode plus encode alone, one file after another on one core (kinhue's own image module).
+  const floorOut = join(tmp, 'floor');
+  mkdirSync(floorOut);
+  const f0 = performance.now();
+  for (const f of files) {
+    const img = await kinhue.decodeImage(f);
+    const px = img.pixels;
+    // The result is RGB: encode 3 channels as restore does.
+    const rgb = px.channels >= 3 ? px : { ...px, channels: 3, data: expandGrey(px.data) };
+    await kinhue.encodeImage(rgb, join(floorOut, `${img.path.split('/').pop()}`), { format: 'jpeg', exif: img.exif, icc: img.icc });
+  }
+  const floorPerImage = (performance.now() - f0) / 1000 / files.length;
+  console.log(`floor (decode + encode alone, 1 core): ${floorPerImage.toFixed(2)} s per image, ${(60 / floorPerImage).toFixed(1)} images/min`);
+
+  for (const jobs of [1, 2]) {
+    const out = join(tmp, `out-${jobs}`);
+    const t0 = performance.now();
+    const r = spawnSync(process.execPath, [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--jobs', String(jobs), '--json'], {
+      encoding: 'utf8',
+      maxBuffer: 64 << 20,
+    });
+    const seconds = (performance.now() - t0) / 1000;
+    if (r.status !== 0) {
+      console.log(`restore --jobs ${jobs} failed (exit ${r.status}): ${r.stderr.slice(-500)}`);
+      continue;
+    }
+    const records = files.map((f) => JSON.parse(readFileSync(join(out, f.split('/').pop().replace(/\.jpg$/, '.kinhue.json')), 'utf8')));
+    const stage = (k) => mean(records.map((x) => x.timings[k]));
+    const perImage = seconds / files.length;
+    console.log(
+      `restore --jobs ${jobs}: ${(60 / perImage).toFixed(1)} images/min (${seconds.toFixed(1)} s for ${files.length}, start-up included); ` +
+        `ratio to the floor ${(perImage / floorPerImage).toFixed(1)}x`,
+    );
+    console.log(
+      `  per image, ms (mean): decode ${stage('decode')}, working size ${stage('lightness')}, model ${stage('model')}, ` +
+        `colour ${stage('colour')}, encode ${stage('encode')}, total ${stage('total')}; backend ${records[0].backend}`,
+    );
+  }
+
+  // Peak memory for a 100-megapixel 16-bit greyscale TIFF (10000 x 10000).
+  const side = Number(process.env.KINHUE_BENCH_BIG_SIDE ?? 10000);
+  const bigDir = join(tmp, 'big');
+  mkdirSync(bigDir);
+  const big = join(bigDir, 'big-16bit-grey.tif');
+  const made = spawnSync(process.execPath, [fileURLToPath(import.meta.url), '--make-big-tiff', big, String(side)], { encoding: 'utf8' });
+  if (made.status !== 0) {
+    console.log(`could not make the ${side} x ${side} TIFF: ${made.stderr.slice(-300)}`);
+    return;
+  }
+  const r = spawnSync(process.execPath, [fileURLToPath(import.meta.url), '--restore-in-process', big, join(tmp, 'big-out'), modelDir], {
+    encoding: 'utf8',
+  });
+  if (r.status !== 0) {
+    console.log(`restoring the ${side} x ${side} TIFF failed (exit ${r.status ?? r.signal}): ${r.stderr.slice(-500)}`);
+    return;
+  }
+  const m = JSON.parse(r.stdout.trim().split('\n').pop());
+  console.log(
+    `${((side * side) / 1e6).toFixed(0)} MP 16-bit grey TIFF: peak resident memory ${m.maxRssMB.toFixed(0)} MB (goal under 2048 MB), ` +
+      `${m.seconds.toFixed(1)} s, ${m.done} done${m.failed.length ? `, failed: ${m.failed[0].message}` : ''}`,
+  );
+}
+
+function expandGrey(data) {
+  const out = new data.constructor(data.length * 3);
+  for (let i = 0; i < data.length; i++) out[i * 3] = out[i * 3 + 1] = out[i * 3 + 2] = data[i];
+  return out;
+}
+
+function mean(values) {
+  return Math.round(values.reduce((s, v) => s + v, 0) / values.length);
+}

@@ -1,0 +1,28 @@
+/**
+ * A small grey plane written as an 8-bit grey PNG at a larger size, resized by libvips (bilinear) as it
+ * streams to disk, so even a 100-megapixel map never sits in memory whole. Written atomically.
+ */
+import sharp from 'sharp';
+import { writeAtomic } from './atomic.js';
+
+/**
+ * Writes `values` (width x height, 0-255) as an 8-bit grey PNG of outWidth x outHeight.
+ * @example
+ *   await writeGreyMap(conf8, 128, 96, 4000, 3000, 'out/photo.confidence.png');
+ */
+export async function writeGreyMap(
+  values: Uint8Array,
+  width: number,
+  height: number,
+  outWidth: number,
+  outHeight: number,
+  path: string,
+): Promise<void> {
+  await writeAtomic(path, async (temp) => {
+    await sharp(values, { raw: { width, height, channels: 1 } })
+      .resize(outWidth, outHeight, { fit: 'fill', kernel: 'linear' })
+      .toColourspace('b-w')
+      .png({ compressionLevel: 6 })
+      .toFile(temp);
+  });
+}
