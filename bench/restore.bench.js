@@ -6,7 +6,7 @@
 // colour quality plays no part in speed.
 import { spawnSync } from 'node:child_process';
 import { existsSync, mkdirSync, mkdtempSync, readFileSync, readdirSync, rmSync } from 'node:fs';
-import { availableParallelism, tmpdir } from 'node:os';
+import { availableParallelism, loadavg, tmpdir } from 'node:os';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
 
@@ -89,6 +89,7 @@ async function main() {
       .toFile(join(scans, `scan-${String(k + 1).padStart(2, '0')}.jpg`));
   }
   const files = readdirSync(scans).map((f) => join(scans, f));
+  console.log(`load average before: ${loadavg().map((v) => v.toFixed(1)).join(' ')} (other work on the machine slows every figure but CPU time)`);
   console.log(`${files.length} scans of ${WIDTH} x ${HEIGHT} (${((WIDTH * HEIGHT) / 1e6).toFixed(0)} MP), 8-bit JPEG; ${availableParallelism()} cores`);
 
   // The floor: decode plus encode alone, one file after another on one core (kinhue's own image module).
@@ -108,11 +109,15 @@ async function main() {
   for (const jobs of [1, 2]) {
     const out = join(tmp, `out-${jobs}`);
     const t0 = performance.now();
-    const r = spawnSync(process.execPath, [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--jobs', String(jobs), '--json'], {
-      encoding: 'utf8',
-      maxBuffer: 64 << 20,
-    });
+    const args = [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--jobs', String(jobs), '--json'];
+    // GNU time, where present, adds the CPU seconds used: a figure other load on the machine does not inflate.
+    const timed = existsSync('/usr/bin/time');
+    const r = timed
+      ? spawnSync('/usr/bin/time', ['-f', 'kinhue-bench-cpu %U %S', process.execPath, ...args], { encoding: 'utf8', maxBuffer: 64 << 20 })
+      : spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 64 << 20 });
     const seconds = (performance.now() - t0) / 1000;
+    const cpuLine = /kinhue-bench-cpu ([\d.]+) ([\d.]+)/.exec(r.stderr ?? '');
+    const cpuSeconds = cpuLine ? Number(cpuLine[1]) + Number(cpuLine[2]) : undefined;
     if (r.status !== 0) {
       console.log(`restore --jobs ${jobs} failed (exit ${r.status}): ${r.stderr.slice(-500)}`);
       continue;
@@ -124,6 +129,12 @@ async function main() {
       `restore --jobs ${jobs}: ${(60 / perImage).toFixed(1)} images/min (${seconds.toFixed(1)} s for ${files.length}, start-up included); ` +
         `ratio to the floor ${(perImage / floorPerImage).toFixed(1)}x`,
     );
+    if (cpuSeconds !== undefined) {
+      console.log(
+        `  CPU time ${(cpuSeconds / files.length).toFixed(2)} s per image (all threads, start-up included): ` +
+          `${((60 * availableParallelism()) / (cpuSeconds / files.length)).toFixed(1)} images/min if all ${availableParallelism()} cores were free for it`,
+      );
+    }
     console.log(
       `  per image, ms (mean): decode ${stage('decode')}, working size ${stage('lightness')}, model ${stage('model')}, ` +
         `colour ${stage('colour')}, encode ${stage('encode')}, total ${stage('total')}; backend ${records[0].backend}`,

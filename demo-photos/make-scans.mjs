@@ -31,7 +31,7 @@ const ORIGINAL_LONG_SIDE = 1600;
 const ALBUM = [
   { id: 'wrenfold-01-hill-pasture', source: 'lomiri-wallpapers-16.04--aitzgorri_by_Aitzol_Berasategi.jpg',
     tone: 'sepia', black: 0.1, white: 0.9, gamma: 1.05, grain: 0.035, blur: 1.0, vignette: 0.25, seed: 101, out: 'jpeg' },
-  { id: 'wrenfold-02-stable-door', source: 'lomiri-wallpapers-16.04--friends_by_Aitzol_Berasategi.jpg',
+  { id: 'wrenfold-02-spaniels', source: 'lomiri-wallpapers-16.04--friends_by_Aitzol_Berasategi.jpg',
     tone: 'warm', black: 0.07, white: 0.92, gamma: 1.0, grain: 0.03, blur: 0.9, vignette: 0.2, seed: 202, out: 'jpeg' },
   { id: 'wrenfold-03-new-calf', source: 'gcompris-qt-data--erase-calf.webp',
     tone: 'none', black: 0.06, white: 0.93, gamma: 1.0, grain: 0.03, blur: 0.8, vignette: 0.15, seed: 303, out: 'jpeg' },

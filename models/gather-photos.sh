@@ -16,14 +16,14 @@ set -euo pipefail
 
 root="$(cd "$(dirname "$0")/.." && pwd)"
 list="$root/models/photo-list.tsv"
-target=".data/pool"
+target="$root/.data/pool"
 demo=""
 debs=""
 while [ $# -gt 0 ]; do
   case "$1" in
     --demo) demo="${2:?--demo needs a folder}"; shift 2 ;;
     --debs) debs="${2:?--debs needs a folder}"; shift 2 ;;
-    -h|--help) sed -n '2,16p' "$0"; exit 0 ;;
+    -h|--help) sed -n '2,13p' "$0"; exit 0 ;;
     -*) echo "gather-photos: unknown option $1 (see --help)" >&2; exit 2 ;;
     *) target="$1"; shift ;;
   esac

@@ -82,7 +82,7 @@ are estimates learnt from other photographs: a colourised photo is an interpreta
 \`\`\`sh
 npm run train:default
 # which runs:
-node bin/kinhue.js train .data/pool --out ${rel} --hours ${f(summary.budget?.hours ?? hours, 2)} --seed ${summary.options.seed}
+node bin/kinhue.js train .data/pool --out ${rel} --hours ${summary.budget?.hours ?? f(hours, 2)} --seed ${summary.options.seed} --eval-every 50
 node models/write-model-card.js ${rel}
 \`\`\`
 - ${summary.steps} steps (${f(hours, 2)} hours on one core of a 2-core laptop-class CPU, WebAssembly backend), Adam with learning rate ${summary.options.learningRate},

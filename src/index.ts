@@ -8,4 +8,5 @@ export { DEFAULT_MODEL_DIR } from './model/index.js';
 export * from './image/index.js';
 export * from './training/index.js';
 export * from './batch/index.js';
+export * from './hints/index.js';
 export * from './report/index.js';

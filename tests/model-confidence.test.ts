@@ -1,6 +1,7 @@
 import { describe, expect, it } from 'vitest';
 import { initBackend } from '../src/model/backend.js';
 import { abBins } from '../src/model/bins.js';
+import { confidenceQuarters } from '../src/model/calibration.js';
 import { binHistogram, rebalanceWeights } from '../src/model/encoding.js';
 import { downsamplePlane } from '../src/model/loss.js';
 import { createNetwork } from '../src/model/network.js';
@@ -59,6 +60,14 @@ function scene(next: () => number): Scene {
   return { L, ab };
 }
 
+describe('confidenceQuarters', () => {
+  it('averages the errors of the top and bottom quarters by confidence', () => {
+    const q = confidenceQuarters([0.9, 0.1, 0.5, 0.8, 0.2, 0.3, 0.7, 0.6], [1, 10, 4, 2, 9, 8, 3, 5]);
+    expect(q).toEqual({ mostConfident: 1.5, leastConfident: 9.5, pixels: 2 });
+    expect(() => confidenceQuarters([1, 2], [1])).toThrow(RangeError);
+  });
+});
+
 describe('confidence', () => {
   it('the most confident quarter has a lower a*b* error than the least confident quarter', async () => {
     await initBackend();
@@ -95,13 +104,12 @@ describe('confidence', () => {
       }
     }
     network.dispose();
-    const order = confidences.map((_, i) => i).sort((i, j) => confidences[j] - confidences[i]);
-    const quarter = Math.floor(order.length / 4);
-    const mean = (ids: number[]) => ids.reduce((s, i) => s + errors[i], 0) / ids.length;
-    const top = mean(order.slice(0, quarter));
-    const bottom = mean(order.slice(-quarter));
+    const { mostConfident: top, leastConfident: bottom } = confidenceQuarters(confidences, errors);
     console.log(`confidence test: mean a*b* error, most confident quarter ${top.toFixed(2)}, least confident quarter ${bottom.toFixed(2)}`);
     expect(confidences.every((c) => c >= 0 && c <= 1)).toBe(true);
     expect(top).toBeLessThan(bottom);
+    // Not by luck of ordering: a clear gap (half; this test's own margin), and confidence varies.
+    expect(top).toBeLessThan(bottom / 2);
+    expect(Math.max(...confidences) - Math.min(...confidences)).toBeGreaterThan(0.1);
   });
 });

@@ -13,7 +13,7 @@ import { makeSheet, relativeUrl } from '../src/report/index.js';
 // opened in a real browser: Debian's headless Chromium driven by playwright-core.
 
 const REPO = join(__dirname, '..');
-const SCANS = '/tmp/report/scans'; // DEV ONLY
+const SCANS = join(REPO, 'demo-photos', 'scans');
 const CHROMIUM = '/usr/bin/chromium';
 const SHOTS = join(REPO, 'tests', 'out');
 
@@ -78,6 +78,8 @@ beforeAll(async () => {
   page.on('pageerror', (e) => problems.push(String(e)));
   page.on('console', (m) => { if (m.type() === 'error' || m.type() === 'warning') problems.push(m.text()); });
   await page.goto(pathToFileURL(sheetPath).href, { waitUntil: 'load' });
+  // Decode every picture (those below the fold too) so checks and screenshots see them all.
+  await page.evaluate(() => Promise.all(Array.from(document.images).map((i) => i.decode().catch(() => undefined))));
 }, 180_000);
 
 afterAll(async () => {

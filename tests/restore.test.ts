@@ -6,6 +6,8 @@ import { join } from 'node:path';
 import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { readManifest, restore, type RestoreEvent } from '../src/batch/index.js';
+import { check } from '../src/cli/commands/restore.js';
+import { UsageError } from '../src/errors.js';
 import { createNetwork, initBackend, saveModel } from '../src/model/index.js';
 
 const BIN = join(__dirname, '..', 'bin', 'kinhue.js');
@@ -209,6 +211,24 @@ describe('restore: invariants, failures and resume', () => {
 });
 
 describe('restore CLI', () => {
+  it('checks its command line without side effects (check is pure)', () => {
+    expect(check({ inputs: ['scans/'], out: 'restored' })).toBe(true);
+    expect(check({ inputs: ['a.tif'], out: 'o', jobs: 2, 'work-size': 512, temperature: 0.38, quality: 90, format: 'png' })).toBe(true);
+    for (const bad of [
+      { inputs: [], out: 'o' },
+      { inputs: ['a'], out: '' },
+      { inputs: ['a'], out: 'o', jobs: 0 },
+      { inputs: ['a'], out: 'o', jobs: 1.5 },
+      { inputs: ['a'], out: 'o', 'work-size': 32 },
+      { inputs: ['a'], out: 'o', temperature: 0 },
+      { inputs: ['a'], out: 'o', temperature: 1.5 },
+      { inputs: ['a'], out: 'o', quality: 101 },
+    ]) {
+      expect(() => check(bad as never), JSON.stringify(bad)).toThrow(UsageError);
+      expect(() => check(bad as never)).toThrow(/Example usage: kinhue restore/);
+    }
+  });
+
   it('prints help, refuses bad command lines with exit code 2, and writes nothing on a dry run', async () => {
     const help = cli(['restore', '--help']);
     expect(help.status).toBe(0);

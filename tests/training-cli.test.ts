@@ -1,8 +1,14 @@
-import { describe, expect, it } from 'vitest';
+import { mkdir, mkdtemp, rm } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import sharp from 'sharp';
+import { describe, expect, it, vi } from 'vitest';
+import { main } from '../src/cli/main.js';
 import { check as checkTrain } from '../src/cli/commands/train.js';
 import { check as checkTune } from '../src/cli/commands/tune.js';
 import { formatDuration, Progress } from '../src/cli/progress.js';
 import { UsageError } from '../src/errors.js';
+import { readTrainingLog } from '../src/training/index.js';
 
 const ok = { photos: ['photos/'], out: 'models/mine', hours: 1, batch: 16, crop: 128, seed: 1, holdout: 0.1, resume: false, 'eval-every': 100, 'checkpoint-minutes': 5 };
 
@@ -68,5 +74,48 @@ describe('progress display', () => {
     expect(formatDuration(42)).toBe('42s');
     expect(formatDuration(185)).toBe('3m 05s');
     expect(formatDuration(3725)).toBe('1h 02m');
+  });
+});
+
+describe('kinhue train on the command line', () => {
+  it('trains, refuses to overwrite the run, and resumes it', async () => {
+    const dir = await mkdtemp(join(tmpdir(), 'kinhue-training-cli-'));
+    const photos = join(dir, 'photos');
+    await mkdir(photos);
+    for (let k = 0; k < 4; k++) {
+      // Sky above, grass below: a colour photo in miniature (our own test image).
+      const w = 64;
+      const h = 48;
+      const data = Buffer.alloc(w * h * 3);
+      for (let i = 0; i < w * h; i++) data.set(i < (w * h) / 2 ? [90 + 20 * k, 150, 230] : [70, 140 - 10 * k, 60], i * 3);
+      await sharp(data, { raw: { width: w, height: h, channels: 3 } }).png().toFile(join(photos, `p${k}.png`));
+    }
+    const out = join(dir, 'model');
+    const printed: string[] = [];
+    const log = vi.spyOn(console, 'log').mockImplementation((...args) => void printed.push(args.join(' ')));
+    const error = vi.spyOn(console, 'error').mockImplementation(() => {});
+    const stderr = vi.spyOn(process.stderr, 'write').mockImplementation(() => true);
+    try {
+      process.exitCode = undefined;
+      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32', '--eval-every', '1']);
+      expect(process.exitCode ?? 0).toBe(0);
+      expect(printed.join('\n')).toMatch(/trained 2 steps \(4 crops\)/);
+      expect(printed.join('\n')).toMatch(/grey \(L\* only\)/);
+
+      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32']);
+      expect(process.exitCode).toBe(2);
+      expect(error.mock.calls.flat().join('\n')).toMatch(/--resume/);
+
+      process.exitCode = undefined;
+      await main(['train', photos, '--out', out, '--steps', '3', '--resume']);
+      expect(process.exitCode ?? 0).toBe(0);
+      expect((await readTrainingLog(out)).map((e) => e.step)).toEqual([1, 2, 3]);
+    } finally {
+      log.mockRestore();
+      error.mockRestore();
+      stderr.mockRestore();
+      process.exitCode = undefined;
+      await rm(dir, { recursive: true, force: true });
+    }
   });
 });

@@ -4,7 +4,10 @@ export * from './options.js';
 export * from './discovery.js';
 export * from './naming.js';
 export * from './manifest.js';
-export * from './colourise.js';
+export {
+  colouriseLightness, fullSizeGrid, workingColour, workingSize,
+  type ColouriseOptions, type RefineStep, type WorkingColour,
+} from './colourise.js';
 export * from './restore-file.js';
 export * from './restore.js';
 export { readModelInfo, type ModelInfo } from './model-info.js';

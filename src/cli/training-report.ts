@@ -35,7 +35,7 @@ export function fitOptions<T>(yargs: Argv<T>): Argv<T & FitArgs> {
     .option('seed', { type: 'number', default: 1, describe: 'seed of every random choice (same seed, same model)' })
     .option('holdout', { type: 'number', default: 0.1, describe: 'fraction of the photos held out for evaluation (at least 2 photos)' })
     .option('resume', { type: 'boolean', default: false, describe: 'continue the run whose checkpoint is in --out' })
-    .option('learning-rate', { type: 'number', describe: 'optimiser learning rate' })
+    .option('learning-rate', { type: 'number', describe: 'optimiser learning rate (default 1e-3)' })
     .option('eval-every', { type: 'number', default: 100, describe: 'evaluate on the held-out photos every this many steps' })
     .option('checkpoint-minutes', { type: 'number', default: 5, describe: 'minutes between checkpoints' }) as unknown as Argv<T & FitArgs>;
 }

@@ -71,13 +71,9 @@ class GridLevel implements Level {
     this.diag = diag;
   }
 
-  /** Sum of w_ij v_j over the neighbours of pixel i at (x, y); the interior path skips bounds checks. */
+  /** Sum of w_ij v_j over the neighbours of a border pixel i at (x, y). */
   private sum(v: Float64Array, i: number, x: number, y: number): number {
     const { width: w, height: h, east: E, south: S, southEast: SE, southWest: SW } = this.s;
-    if (x > 0 && y > 0 && x < w - 1 && y < h - 1) {
-      return E[i]! * v[i + 1]! + E[i - 1]! * v[i - 1]! + S[i]! * v[i + w]! + S[i - w]! * v[i - w]!
-        + SE[i]! * v[i + w + 1]! + SE[i - w - 1]! * v[i - w - 1]! + SW[i]! * v[i + w - 1]! + SW[i - w + 1]! * v[i - w + 1]!;
-    }
     let s = 0;
     if (x < w - 1) s += E[i]! * v[i + 1]!;
     if (x > 0) s += E[i - 1]! * v[i - 1]!;
@@ -94,14 +90,20 @@ class GridLevel implements Level {
     return s;
   }
 
+  // The interior loops are written out in full: a call per pixel costs as much as the arithmetic.
   multiply(p: Float64Array, q: Float64Array): number {
-    const { width: w, height: h } = this.s;
+    const { width: w, height: h, east: E, south: S, southEast: SE, southWest: SW } = this.s;
     const { diag, active } = this;
     let dot = 0;
-    for (let y = 0, i = 0; y < h; y++) {
-      for (let x = 0; x < w; x++, i++) {
+    for (let y = 0; y < h; y++) {
+      const edgeRow = y === 0 || y === h - 1;
+      for (let x = 0, i = y * w; x < w; x++, i++) {
         if (!active[i]) { q[i] = 0; continue; }
-        const v = diag[i]! * p[i]! - this.sum(p, i, x, y);
+        const s = edgeRow || x === 0 || x === w - 1
+          ? this.sum(p, i, x, y)
+          : E[i]! * p[i + 1]! + E[i - 1]! * p[i - 1]! + S[i]! * p[i + w]! + S[i - w]! * p[i - w]!
+            + SE[i]! * p[i + w + 1]! + SE[i - w - 1]! * p[i - w - 1]! + SW[i]! * p[i + w - 1]! + SW[i - w + 1]! * p[i - w + 1]!;
+        const v = diag[i]! * p[i]! - s;
         q[i] = v;
         dot += p[i]! * v;
       }
@@ -110,14 +112,20 @@ class GridLevel implements Level {
   }
 
   sweep(x: Float64Array, b: Float64Array, forward: boolean): void {
-    const { width: w, height: h } = this.s;
+    const { width: w, height: h, east: E, south: S, southEast: SE, southWest: SW } = this.s;
     const { diag, active } = this;
+    const step = forward ? 1 : -1;
     for (let k = 0; k < h; k++) {
       const y = forward ? k : h - 1 - k;
-      for (let m = 0; m < w; m++) {
-        const px = forward ? m : w - 1 - m;
+      const edgeRow = y === 0 || y === h - 1;
+      for (let m = 0, px = forward ? 0 : w - 1; m < w; m++, px += step) {
         const i = y * w + px;
-        if (active[i]) x[i] = (b[i]! + this.sum(x, i, px, y)) / diag[i]!;
+        if (!active[i]) continue;
+        const s = edgeRow || px === 0 || px === w - 1
+          ? this.sum(x, i, px, y)
+          : E[i]! * x[i + 1]! + E[i - 1]! * x[i - 1]! + S[i]! * x[i + w]! + S[i - w]! * x[i - w]!
+            + SE[i]! * x[i + w + 1]! + SE[i - w - 1]! * x[i - w - 1]! + SW[i]! * x[i + w - 1]! + SW[i - w + 1]! * x[i - w + 1]!;
+        x[i] = (b[i]! + s) / diag[i]!;
       }
     }
   }
@@ -195,23 +203,35 @@ function aggregate(level: Level): { group: Int32Array; count: number } {
   const group = new Int32Array(n).fill(-1);
   const index = new Int32Array(4096), weight = new Float64Array(4096);
   let count = 0;
+  const alone: number[] = [];
   for (let i = 0; i < n; i++) {
     if (!active[i] || group[i] !== -1) continue;
     const k = level.neighbours(i, index, weight);
     let strongest = 0;
     for (let e = 0; e < k; e++) strongest = Math.max(strongest, weight[e]!);
-    group[i] = count;
     // Add the strongest free strong neighbours, up to the group size.
-    for (let size = 1; size < GROUP; size++) {
+    let size = 1;
+    for (; size < GROUP; size++) {
       let best = -1, bestWeight = STRENGTH * strongest;
       for (let e = 0; e < k; e++) {
         const j = index[e]!;
-        if (active[j] && group[j] === -1 && weight[e]! >= bestWeight && weight[e]! > 0) { best = j; bestWeight = weight[e]!; }
+        if (active[j] && group[j] === -1 && j !== i && weight[e]! >= bestWeight && weight[e]! > 0) { best = j; bestWeight = weight[e]!; }
       }
       if (best < 0) break;
       group[best] = count;
     }
-    count++;
+    if (size === 1) { alone.push(i); group[i] = -2; continue; }
+    group[i] = count++;
+  }
+  // A node whose neighbours were all taken joins the group it is most strongly joined to.
+  for (const i of alone) {
+    const k = level.neighbours(i, index, weight);
+    let best = -1, bestWeight = 0;
+    for (let e = 0; e < k; e++) {
+      const g = group[index[e]!]!;
+      if (g >= 0 && weight[e]! > bestWeight) { best = g; bestWeight = weight[e]!; }
+    }
+    group[i] = best >= 0 ? best : count++;
   }
   return { group, count };
 }

@@ -10,3 +10,4 @@ export * from './train-step.js';
 export * from './metadata.js';
 export * from './storage.js';
 export * from './predict.js';
+export * from './calibration.js';

@@ -67,18 +67,20 @@ function rgb8(pixels: Pixels, file: string): Uint8Array {
 }
 
 /** Decodes one original and checks it is a colour photo. */
-async function readOriginal(file: string, maxPixels?: number): Promise<{ rgb: Uint8Array; lab: LabPlanes; width: number; height: number }> {
+async function readOriginal(file: string, maxPixels?: number): Promise<{ rgb: Uint8Array; lab: LabPlanes; width: number; height: number; toned?: string }> {
   const { pixels } = await decodeImage(file, { maxPixels });
   const rgb = rgb8(pixels, file);
   const lab = srgbToLab(rgb, 3);
   const tone = classifyTone(lab);
-  if (tone.kind !== 'colour') {
-    throw new InputError(ErrorCodes.BAD_DATA, `is a ${tone.kind === 'toned' ? `toned (${tone.name ?? 'tinted'}) monochrome` : 'grey'} photo; scoring needs colour originals`, {
+  if (tone.kind === 'grey') {
+    throw new InputError(ErrorCodes.BAD_DATA, 'is a grey photo (RGB without colour); scoring needs colour originals', {
       file,
-      hint: 'score colour photographs (their colour is taken out and put back); leave monochrome prints out',
+      hint: 'score colour photographs (their colour is taken out and put back); leave grey scans out',
     });
   }
-  return { rgb, lab, width: pixels.width, height: pixels.height };
+  // Colour photos of one dominant hue (a warm sunset, a brown calf) can look toned to the classifier,
+  // so a toned verdict is reported, not refused.
+  return { rgb, lab, width: pixels.width, height: pixels.height, ...(tone.kind === 'toned' ? { toned: tone.name ?? 'tinted' } : {}) };
 }
 
 /** Renders a candidate to 8-bit sRGB and measures it against the original. */
@@ -165,6 +167,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
 
     const photos: PhotoScore[] = [];
     const failures: ScoreFailure[] = [];
+    const toned: string[] = [];
     for (let k = 0; k < files.length; k++) {
       const { path, rel } = files[k];
       try {
@@ -184,6 +187,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
           }
         }
         photos.push({ file: rel, width, height, originalColourfulness: colourfulness(original.rgb, 3), figures });
+        if (original.toned) toned.push(`${rel} (${original.toned})`);
       } catch (error) {
         if (!(error instanceof KinhueError)) throw error;
         const failure = failureOf(rel, error);
@@ -200,6 +204,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
       `Models run as restore runs them: at ${options.workSize ? `a working size of ${options.workSize} px` : "each model's own working size"} (long side), colour carried to full size edge-aware.`,
       'Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper\'s l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target\'s mean colour everywhere.',
       ...transfer.map((m) => `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`),
+      ...(toned.length ? [`Colour of a single hue, as in a toned monochrome print: ${toned.join(', ')}. Scored; check these are colour photographs, not tinted prints.`] : []),
       ...discovered.notes,
     ];
     return {

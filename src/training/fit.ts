@@ -23,93 +23,16 @@ import {
   rebalanceWeights,
   saveModel,
   type ModelMetadataInput,
-  type NetworkOptions,
   type TrainerState,
 } from '../model/index.js';
 import { VERSION } from '../version.js';
 import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js';
 import { CropSampler, type SamplerState } from './crop-sampler.js';
 import { evaluatePhotos, type Evaluation } from './evaluation.js';
+import { SUMMARY_FILE, resolveSettings, type FitEvent, type FitMode, type FitOptions, type FitResult, type FitSettings } from './fit-options.js';
 import { loadPhotoSet, type Photo, type PhotoSet } from './photo-set.js';
 import { Random, type RandomState } from './random.js';
 import { appendTrainingLog, truncateTrainingLog } from './training-log.js';
-
-export type FitMode = 'train' | 'tune';
-
-export interface FitOptions {
-  /** Photo files and folders (searched recursively). */
-  photos: string[];
-  /** The model folder to write (created if missing). */
-  out: string;
-  /** 'train' starts from a new network, 'tune' from an existing model. Default 'train'. */
-  mode?: FitMode;
-  /** The model to tune (required for mode 'tune'). */
-  from?: string;
-  /** Time budget in hours (training time over all resumed sessions). */
-  hours?: number;
-  /** Step budget (total, over all resumed sessions). */
-  steps?: number;
-  /** Crops per step. Default 16. */
-  batch?: number;
-  /** Crop side in pixels (a multiple of the network's, 8 for the default). Default 128. */
-  crop?: number;
-  /** Seed of every random choice. Default 1. */
-  seed?: number;
-  /** Fraction of the photos held out for evaluation. Default 0.1 (at least 2 photos). */
-  holdout?: number;
-  /** Optimiser learning rate. Default 1e-3 for train, 1e-4 for tune. */
-  learningRate?: number;
-  /** Keep the encoder's weights fixed (tune). */
-  freezeEncoder?: boolean;
-  /** Continue the run whose checkpoint is in `out`. */
-  resume?: boolean;
-  /** Evaluate on the held-out photos every this many steps. Default 100. */
-  evalEvery?: number;
-  /** Minutes between checkpoints. Default 5. */
-  checkpointMinutes?: number;
-  /** Long side, in pixels, photos are kept and evaluated at. Default 3 x crop. */
-  photoSize?: number;
-  /** Which model to keep in `out`: the last, or the best by held-out CIEDE2000. Default: last for train, best for tune. */
-  keep?: 'last' | 'best';
-  /** Size of a new network (train only). */
-  network?: NetworkOptions;
-  /** Annealed-mean temperature used for evaluation. Default the model's (0.38). */
-  temperature?: number;
-  /** Stops the run cleanly (a checkpoint is written) after the current step. */
-  signal?: AbortSignal;
-}
-
-/** What the loop reports while it runs. */
-export type FitEvent =
-  | { type: 'reading'; done: number; total: number; file: string }
-  | { type: 'data'; train: number; holdout: number; grey: number; unreadable: { file: string; reason: string }[]; otherFiles: number }
-  | { type: 'resumed'; step: number; seconds: number }
-  | { type: 'baseline'; grey: Evaluation; start: Evaluation }
-  | { type: 'step'; step: number; loss: number; seconds: number; secondsLeft: number; fraction: number; heldOut?: number }
-  | { type: 'evaluation'; step: number; loss: number; evaluation: Evaluation; best: boolean }
-  | { type: 'checkpoint'; step: number; file: string }
-  | { type: 'model'; step: number; dir: string };
-
-/** The outcome of a run, also written to `training-summary.json` and the model's metadata. */
-export interface FitResult {
-  mode: FitMode;
-  out: string;
-  /** Total optimiser steps (over all sessions). */
-  steps: number;
-  /** Crops seen: steps x batch. */
-  crops: number;
-  /** Training seconds over all sessions. */
-  seconds: number;
-  /** Why the run stopped. */
-  stoppedBy: 'steps' | 'time' | 'interrupted';
-  photos: { train: number; holdout: number; grey: number; unreadable: number };
-  /** Held-out figures: the grey baseline, the model before training, and the model kept in `out`. */
-  heldOut: { grey: Evaluation; before: Evaluation; after: Evaluation; keptStep: number };
-  options: { batch: number; crop: number; seed: number; holdout: number; learningRate: number; freezeEncoder: boolean; keep: 'last' | 'best'; photoSize: number };
-}
-
-/** The summary file written beside the model. */
-export const SUMMARY_FILE = 'training-summary.json';
 
 interface CheckpointState {
   kind: 'kinhue-training-checkpoint';
@@ -121,7 +44,7 @@ interface CheckpointState {
   lossCount: number;
   rng: RandomState;
   sampler: SamplerState;
-  options: FitResult['options'];
+  options: FitSettings;
   trainFiles: string[];
   holdoutFiles: string[];
   best: { step: number; evaluation: Evaluation } | null;
@@ -155,17 +78,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   if (mode === 'tune' && !options.from) throw new UsageError('tune needs a model to start from', 'pass --from <model folder>.');
 
   // The checkpoint's settings win on resume: the same run must continue.
-  const crop = saved?.options.crop ?? options.crop ?? 128;
-  const settings: FitResult['options'] = saved?.options ?? {
-    batch: options.batch ?? 16,
-    crop,
-    seed: options.seed ?? 1,
-    holdout: options.holdout ?? 0.1,
-    learningRate: options.learningRate ?? (mode === 'tune' ? 1e-4 : 1e-3),
-    freezeEncoder: options.freezeEncoder ?? false,
-    keep: options.keep ?? (mode === 'tune' ? 'best' : 'last'),
-    photoSize: options.photoSize ?? crop * 3,
-  };
+  const settings: FitSettings = saved?.options ?? resolveSettings(options, mode);
   const maxSteps = options.steps ?? Infinity;
   const maxSeconds = options.hours === undefined ? Infinity : options.hours * 3600;
   if (maxSteps === Infinity && maxSeconds === Infinity) throw new UsageError('no budget given', 'pass --hours, --steps or both.');
@@ -246,7 +159,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   }
   onEvent({ type: 'baseline', grey, start: before });
 
-  const meta = (evaluation: Evaluation, keptStep: number, seconds: number): ModelMetadataInput => ({
+  const meta = (evaluation: Evaluation, evaluatedStep: number, seconds: number): ModelMetadataInput => ({
     temperature,
     classWeights,
     training: {
@@ -255,19 +168,19 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       photos: set.train.length,
       heldOutPhotos: set.holdout.length,
       skippedGreyOrToned: set.grey.length,
-      steps: keptStep,
-      crops: keptStep * settings.batch,
+      steps: step,
+      crops: step * settings.batch,
       seconds: Math.round(seconds),
       ...settings,
-      heldOut: { grey, before, after: evaluation },
+      heldOut: { grey, before, after: evaluation, evaluatedAtStep: evaluatedStep },
       backend: backend.name,
     },
   });
-  const saveKept = async (evaluation: Evaluation, seconds: number): Promise<void> => {
-    await saveModel(network, out, meta(evaluation, step, seconds));
+  const saveKept = async (evaluation: Evaluation, evaluatedStep: number, seconds: number): Promise<void> => {
+    await saveModel(network, out, meta(evaluation, evaluatedStep, seconds));
     onEvent({ type: 'model', step, dir: out });
   };
-  if (!saved && settings.keep === 'best') await saveKept(before, 0);
+  if (!saved && settings.keep === 'best') await saveKept(before, 0, 0);
 
   const sessionStart = Date.now();
   const elapsed = (): number => priorSeconds + (Date.now() - sessionStart) / 1000;
@@ -298,6 +211,21 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     onEvent({ type: 'checkpoint', step, file: checkpointFile });
   };
 
+  /** Evaluates the current weights, logs the result, and saves the model when keeping the best. */
+  const recordEvaluation = async (): Promise<void> => {
+    const evaluation = await evaluate(set.holdout);
+    lastEvaluation = { step, evaluation };
+    const improved = !best || evaluation.ciede2000 < best.evaluation.ciede2000;
+    if (improved) best = { step, evaluation };
+    const loss = lossSum / Math.max(1, lossCount);
+    const { ciede2000, psnr, colourfulness } = evaluation;
+    await appendTrainingLog(out, { step, seconds: elapsed(), loss, ciede2000, psnr, colourfulness, best: improved, time: new Date().toISOString() });
+    onEvent({ type: 'evaluation', step, loss, evaluation, best: improved });
+    lossSum = 0;
+    lossCount = 0;
+    if (improved && settings.keep === 'best') await saveKept(evaluation, step, elapsed());
+  };
+
   let stoppedBy: FitResult['stoppedBy'] = 'steps';
   for (;;) {
     if (step >= maxSteps) break;
@@ -320,33 +248,15 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     const fraction = Math.max(maxSteps === Infinity ? 0 : step / maxSteps, maxSeconds === Infinity ? 0 : seconds / maxSeconds);
     onEvent({ type: 'step', step, loss, seconds, secondsLeft: Math.max(0, secondsLeft), fraction: Math.min(1, fraction), heldOut: lastEvaluation?.evaluation.ciede2000 ?? best?.evaluation.ciede2000 });
 
-    if (step % evalEvery === 0) {
-      lastEvaluation = { step, evaluation: await evaluate(set.holdout) };
-      const improved = !best || lastEvaluation.evaluation.ciede2000 < best.evaluation.ciede2000;
-      if (improved) best = { ...lastEvaluation };
-      const meanLoss = lossSum / Math.max(1, lossCount);
-      await appendTrainingLog(out, { step, seconds: elapsed(), loss: meanLoss, ...pick(lastEvaluation.evaluation), best: improved, time: new Date().toISOString() });
-      onEvent({ type: 'evaluation', step, loss: meanLoss, evaluation: lastEvaluation.evaluation, best: improved });
-      lossSum = 0;
-      lossCount = 0;
-      if (improved && settings.keep === 'best') await saveKept(lastEvaluation.evaluation, elapsed());
-    }
+    if (step % evalEvery === 0) await recordEvaluation();
     if (Date.now() - lastCheckpoint >= checkpointMs) {
       await writeCheckpoint();
-      if (settings.keep === 'last') await saveKept(lastEvaluation?.evaluation ?? before, elapsed());
+      if (settings.keep === 'last') await saveKept(lastEvaluation?.evaluation ?? before, lastEvaluation?.step ?? 0, elapsed());
     }
   }
 
   // The end: one more evaluation of the last weights when the loop did not just make one.
-  if (step > 0 && lastEvaluation?.step !== step && (stoppedBy !== 'interrupted' || settings.keep === 'last')) {
-    lastEvaluation = { step, evaluation: await evaluate(set.holdout) };
-    const improved = !best || lastEvaluation.evaluation.ciede2000 < best.evaluation.ciede2000;
-    if (improved) best = { ...lastEvaluation };
-    const meanLoss = lossSum / Math.max(1, lossCount);
-    await appendTrainingLog(out, { step, seconds: elapsed(), loss: meanLoss, ...pick(lastEvaluation.evaluation), best: improved, time: new Date().toISOString() });
-    onEvent({ type: 'evaluation', step, loss: meanLoss, evaluation: lastEvaluation.evaluation, best: improved });
-    if (improved && settings.keep === 'best') await saveKept(lastEvaluation.evaluation, elapsed());
-  }
+  if (step > 0 && lastEvaluation?.step !== step && (stoppedBy !== 'interrupted' || settings.keep === 'last')) await recordEvaluation();
   await writeCheckpoint();
   const seconds = elapsed();
   let after: Evaluation;
@@ -357,7 +267,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   } else {
     after = lastEvaluation?.step === step ? lastEvaluation.evaluation : await evaluate(set.holdout);
     keptStep = step;
-    await saveKept(after, seconds);
+    await saveKept(after, step, seconds);
   }
 
   const result: FitResult = {
@@ -371,7 +281,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     heldOut: { grey, before, after, keptStep },
     options: settings,
   };
-  const record = { ...result, budget: { hours: options.hours ?? null, steps: options.steps ?? null }, backend: backend.name, holdoutFiles: set.holdout.map((p) => p.file) };
+  const record = { ...result, budget: { hours: options.hours ?? null, steps: options.steps ?? null }, backend: backend.name, holdoutFiles: set.holdout.map((p) => p.file), skippedGreyOrToned: set.grey, unreadable: set.unreadable };
   await writeFileAtomic(join(out, SUMMARY_FILE), `${JSON.stringify(record, null, 2)}\n`);
   trainer.dispose?.();
   network.dispose();
@@ -388,10 +298,6 @@ function setWeights(network: tf.LayersModel, weights: Float32Array[]): void {
   const tensors = weights.map((w, i) => tf.tensor(w, current[i]!.shape));
   network.setWeights(tensors);
   tf.dispose(tensors);
-}
-
-function pick(e: Evaluation): { ciede2000: number; psnr: number; colourfulness: number } {
-  return { ciede2000: e.ciede2000, psnr: e.psnr, colourfulness: e.colourfulness };
 }
 
 async function exists(path: string): Promise<boolean> {

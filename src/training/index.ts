@@ -6,4 +6,5 @@ export * from './crop-sampler.js';
 export * from './evaluation.js';
 export * from './checkpoint.js';
 export * from './training-log.js';
+export * from './fit-options.js';
 export * from './fit.js';

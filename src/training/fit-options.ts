@@ -1,0 +1,107 @@
+/**
+ * The options, progress events and result of a training run ({@link fit}), and how the options
+ * resolve to the settings a run records and keeps when resumed.
+ */
+import { DEFAULT_WORKING_SIZE, type NetworkOptions } from '../model/index.js';
+import type { Evaluation } from './evaluation.js';
+
+export type FitMode = 'train' | 'tune';
+
+export interface FitOptions {
+  /** Photo files and folders (searched recursively). */
+  photos: string[];
+  /** The model folder to write (created if missing). */
+  out: string;
+  /** 'train' starts from a new network, 'tune' from an existing model. Default 'train'. */
+  mode?: FitMode;
+  /** The model to tune (required for mode 'tune'). */
+  from?: string;
+  /** Time budget in hours (training time over all resumed sessions). */
+  hours?: number;
+  /** Step budget (total, over all resumed sessions). */
+  steps?: number;
+  /** Crops per step. Default 16. */
+  batch?: number;
+  /** Crop side in pixels, a multiple of 16 (the network's). Default 128. */
+  crop?: number;
+  /** Seed of every random choice. Default 1. */
+  seed?: number;
+  /** Fraction of the photos held out for evaluation. Default 0.1 (at least 2 photos). */
+  holdout?: number;
+  /** Optimiser learning rate. Default 1e-3 for train, 1e-4 for tune. */
+  learningRate?: number;
+  /** Keep the encoder's weights fixed (tune). */
+  freezeEncoder?: boolean;
+  /** Continue the run whose checkpoint is in `out`. */
+  resume?: boolean;
+  /** Evaluate on the held-out photos every this many steps. Default 100. */
+  evalEvery?: number;
+  /** Minutes between checkpoints. Default 5. */
+  checkpointMinutes?: number;
+  /** Long side, in pixels, photos are kept and evaluated at. Default the model's working size (512) or 3 x crop if larger. */
+  photoSize?: number;
+  /** Which model to keep in `out`: the last, or the best by held-out CIEDE2000. Default: last for train, best for tune. */
+  keep?: 'last' | 'best';
+  /** Size of a new network (train only). */
+  network?: NetworkOptions;
+  /** Annealed-mean temperature used for evaluation. Default the model's (0.38). */
+  temperature?: number;
+  /** Stops the run cleanly (a checkpoint is written) after the current step. */
+  signal?: AbortSignal;
+}
+
+/** What the loop reports while it runs. */
+export type FitEvent =
+  | { type: 'reading'; done: number; total: number; file: string }
+  | { type: 'data'; train: number; holdout: number; grey: number; unreadable: { file: string; reason: string }[]; otherFiles: number }
+  | { type: 'resumed'; step: number; seconds: number }
+  | { type: 'baseline'; grey: Evaluation; start: Evaluation }
+  | { type: 'step'; step: number; loss: number; seconds: number; secondsLeft: number; fraction: number; heldOut?: number }
+  | { type: 'evaluation'; step: number; loss: number; evaluation: Evaluation; best: boolean }
+  | { type: 'checkpoint'; step: number; file: string }
+  | { type: 'model'; step: number; dir: string };
+
+/** The outcome of a run, also written to `training-summary.json` and the model's metadata. */
+export interface FitResult {
+  mode: FitMode;
+  out: string;
+  /** Total optimiser steps (over all sessions). */
+  steps: number;
+  /** Crops seen: steps x batch. */
+  crops: number;
+  /** Training seconds over all sessions. */
+  seconds: number;
+  /** Why the run stopped. */
+  stoppedBy: 'steps' | 'time' | 'interrupted';
+  photos: { train: number; holdout: number; grey: number; unreadable: number };
+  /** Held-out figures: the grey baseline, the model before training, and the model kept in `out`. */
+  heldOut: { grey: Evaluation; before: Evaluation; after: Evaluation; keptStep: number };
+  options: { batch: number; crop: number; seed: number; holdout: number; learningRate: number; freezeEncoder: boolean; keep: 'last' | 'best'; photoSize: number };
+}
+
+/** The summary file written beside the model. */
+export const SUMMARY_FILE = 'training-summary.json';
+
+/** The settings a run is made with; a resumed run keeps those of its checkpoint. */
+export type FitSettings = FitResult['options'];
+
+/**
+ * Fills in the defaults: 16 crops of 128 px a step, seed 1, 10 percent held out, learning rate 1e-3
+ * for train and a tenth of that for tune (common practice for fine-tuning), photos kept at the model's
+ * working size so crops show things at the scale restore sees them.
+ * @example
+ *   resolveSettings({ photos: ['p/'], out: 'm', steps: 10 }, 'train').batch; // 16
+ */
+export function resolveSettings(options: FitOptions, mode: FitMode): FitSettings {
+  const crop = options.crop ?? 128;
+  return {
+    batch: options.batch ?? 16,
+    crop,
+    seed: options.seed ?? 1,
+    holdout: options.holdout ?? 0.1,
+    learningRate: options.learningRate ?? (mode === 'tune' ? 1e-4 : 1e-3),
+    freezeEncoder: options.freezeEncoder ?? false,
+    keep: options.keep ?? (mode === 'tune' ? 'best' : 'last'),
+    photoSize: options.photoSize ?? Math.max(DEFAULT_WORKING_SIZE, crop * 3),
+  };
+}

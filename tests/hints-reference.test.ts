@@ -1,0 +1,98 @@
+// Reference photographs (Welsh, Ashikhmin & Mueller 2002): colour carried over by matching luminance and
+// local texture, blended with the model's prediction by its confidence.
+import { mkdir, mkdtemp } from 'node:fs/promises';
+import { tmpdir } from 'node:os';
+import { join } from 'node:path';
+import sharp from 'sharp';
+import { describe, expect, it } from 'vitest';
+import { workingLab } from '../src/batch/working-lab.js';
+import { meanAbError } from '../src/colour/index.js';
+import { decodeImage, type Pixels } from '../src/image/index.js';
+import { loadReference, localDeviation, prepareGuidance } from '../src/hints/index.js';
+
+/** A crop of interleaved pixels (fractions of the width and height). */
+function crop(px: Pixels, x0: number, y0: number, x1: number, y1: number): Pixels {
+  const left = Math.round(px.width * x0), top = Math.round(px.height * y0);
+  const width = Math.round(px.width * x1) - left, height = Math.round(px.height * y1) - top;
+  const data = new Uint8Array(width * height * px.channels);
+  for (let y = 0; y < height; y++) {
+    const from = ((top + y) * px.width + left) * px.channels;
+    data.set(px.data.subarray(from, from + width * px.channels), y * width * px.channels);
+  }
+  return { width, height, channels: px.channels, depth: 8, data };
+}
+
+describe('reference photographs', () => {
+  // Real photographs: the demo album's colour originals (demo-photos/SOURCES.md). The scan is the right and
+  // upper part of a photograph, taken to L* alone; the reference is the left and lower part of the same
+  // photograph in colour: the same scene under a different crop (about half of each is shared).
+  // "The model alone" is a flat grey prediction at confidence 0.25 (no trained model ships with the tests;
+  // an untrained network predicts close to grey).
+  const photos = ['wrenfold-01-hill-pasture.jpg', 'wrenfold-04-hill-pony.jpg', 'wrenfold-07-orchard-clocks.jpg'];
+
+  it.each(photos)('%s: a reference of the same scene lowers the mean a*b* error below the model alone', async (name) => {
+    const dir = await mkdtemp(join(tmpdir(), 'kinhue-reference-'));
+    const file = join('demo-photos/originals', name);
+    const { pixels } = await decodeImage(file);
+    const refPath = join(dir, 'reference.png');
+    const left = 0, top = Math.round(pixels.height * 0.15);
+    await sharp(file).extract({ left, top, width: Math.round(pixels.width * 0.7), height: pixels.height - top }).png().toFile(refPath);
+
+    const scan = crop(pixels, 0.3, 0, 1, 0.85);
+    const s = 384 / Math.max(scan.width, scan.height);
+    const w = Math.round(scan.width * s), h = Math.round(scan.height * s);
+    const truth = workingLab(scan, w, h);
+    const grey = { L: truth.L, a: new Float32Array(w * h), b: new Float32Array(w * h) };
+    const alone = meanAbError(grey, truth);
+
+    const guidance = await prepareGuidance(join(dir, 'scan.png'), scan.width, scan.height, { reference: refPath });
+    console.log(name, 'alone');
+    const work = {
+      width: w, height: h, L: truth.L, a: new Float32Array(w * h), b: new Float32Array(w * h),
+      confidence: new Float32Array(w * h).fill(0.25), confidenceWidth: w, confidenceHeight: h,
+    };
+    guidance.refine!(work);
+    const withReference = meanAbError({ L: truth.L, a: work.a, b: work.b }, truth);
+    console.log(name, alone.toFixed(2), withReference.toFixed(2)); expect(withReference).toBeLessThan(alone);
+  });
+
+  it('a grey or toned reference is refused with a message naming it', async () => {
+    // The album's scans: wrenfold-03 is a neutral grey print, wrenfold-01 a toned one (demo-photos/SOURCES.md).
+    await expect(loadReference('demo-photos/scans/wrenfold-03-new-calf.jpg')).rejects.toMatchObject({
+      code: 'KH_BAD_HINTS', file: 'demo-photos/scans/wrenfold-03-new-calf.jpg', message: expect.stringContaining('this one is grey'),
+    });
+    await expect(loadReference('demo-photos/scans/wrenfold-01-hill-pasture.jpg')).rejects.toMatchObject({
+      code: 'KH_BAD_HINTS', message: expect.stringContaining('toned monochrome'),
+    });
+    await expect(loadReference('no/such/reference.jpg')).rejects.toMatchObject({ code: 'KH_BAD_HINTS' });
+  });
+
+  it('a folder of references pools their samples (one reference for a series)', async () => {
+    const dir = await mkdtemp(join(tmpdir(), 'kinhue-reference-'));
+    await mkdir(join(dir, 'series'));
+    for (const name of ['wrenfold-02-spaniels.jpg', 'wrenfold-05-billy-goat.jpg']) {
+      await sharp(join('demo-photos/originals', name)).resize(400).toFile(join(dir, 'series', name));
+    }
+    const ref = await loadReference(join(dir, 'series'));
+    expect(ref.files).toHaveLength(2);
+    expect(ref.L.length).toBe(512);
+    expect(new Set(ref.source)).toEqual(new Set([0, 1]));
+    await mkdir(join(dir, 'empty'));
+    await expect(loadReference(join(dir, 'empty'))).rejects.toMatchObject({ code: 'KH_BAD_HINTS', message: expect.stringContaining('no images') });
+  });
+
+  it('local deviation is the 5 x 5 standard deviation (population form, as Welsh et al. use it)', () => {
+    const w = 7, h = 6;
+    const L = Float32Array.from({ length: w * h }, (_, i) => (i * 37) % 11);
+    const dev = localDeviation(L, w, h);
+    for (const [x, y] of [[3, 3], [0, 0], [6, 5], [2, 4]] as const) {
+      const values: number[] = [];
+      for (let v = Math.max(0, y - 2); v <= Math.min(h - 1, y + 2); v++) {
+        for (let u = Math.max(0, x - 2); u <= Math.min(w - 1, x + 2); u++) values.push(L[v * w + u]!);
+      }
+      const mean = values.reduce((s, v) => s + v, 0) / values.length;
+      const sd = Math.sqrt(values.reduce((s, v) => s + (v - mean) ** 2, 0) / values.length);
+      expect(dev[y * w + x]).toBeCloseTo(sd, 4);
+    }
+  });
+});
