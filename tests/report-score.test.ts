@@ -13,7 +13,7 @@ import { UsageError } from '../src/errors.js';
 import { abBins, binHistogram, createNetwork, initBackend, loadModel, rebalanceWeights, saveModel } from '../src/model/index.js';
 import { formatScoreTable, score, scoreToCsv, writeScoreFiles, type ScoreReport } from '../src/report/index.js';
 
-// End to end on three small colour photos, a grey one and a file that is not an image. The grey and
+// End to end on four small colour photos (one sepia-toned), a grey one and a file that is not an image. The grey and
 // transfer rows are recomputed here with culori (an independent CIELAB / CIEDE2000 implementation),
 // the model rows with restore's own colourisation measured by culori.
 
@@ -80,6 +80,16 @@ beforeAll(async () => {
     rgbOf.set(`photo-${k}.png`, rgb);
     await sharp(rgb, { raw: { width: W, height: H, channels: 3 } }).png().toFile(join(photos, `photo-${k}.png`));
   }
+  // A sepia-toned print kept as RGB: colour of one hue. Scored, with a note (it may be a tinted print).
+  const sepia = new Uint8Array(W * H * 3);
+  for (let i = 0; i < W * H; i++) {
+    const v = 40 + ((i * 5) % 200);
+    sepia[i * 3] = Math.min(255, v + 18);
+    sepia[i * 3 + 1] = Math.round(v * 0.86 + 8);
+    sepia[i * 3 + 2] = Math.round(v * 0.68);
+  }
+  rgbOf.set('sepia.png', sepia);
+  await sharp(sepia, { raw: { width: W, height: H, channels: 3 } }).png().toFile(join(photos, 'sepia.png'));
   await sharp(Buffer.alloc(W * H, 120), { raw: { width: W, height: H, channels: 1 } }).png().toFile(join(photos, 'grey.png'));
   await writeFile(join(photos, 'notes.jpg'), 'this is text, not a photo\n');
 
@@ -104,7 +114,8 @@ afterAll(async () => {
 
 describe('kinhue score', () => {
   it('scores the colour photos and lists the grey one and the non-image as failures', () => {
-    expect(report.photos.map((p) => p.file)).toEqual(['photo-0.png', 'photo-1.png', 'photo-2.png']);
+    expect(report.photos.map((p) => p.file)).toEqual(['photo-0.png', 'photo-1.png', 'photo-2.png', 'sepia.png']);
+    expect(report.notes.join('\n')).toMatch(/single hue[^\n]*sepia\.png/);
     const failures = Object.fromEntries(report.failures.map((f) => [f.file, f.code]));
     expect(failures).toEqual({ 'grey.png': 'KH_BAD_DATA', 'notes.jpg': 'KH_NOT_AN_IMAGE' });
     expect(report.methods.map((m) => m.id)).toEqual(['grey', 'transfer:1', 'model:1', 'transfer:2', 'model:2']);
@@ -119,7 +130,7 @@ describe('kinhue score', () => {
       expect(Math.abs(got.ciede2000 - ref.ciede2000)).toBeLessThan(0.02);
       expect(Math.abs(got.abError - ref.abError)).toBeLessThan(0.02);
       expect(got.colourfulness).toBeLessThan(0.5); // Hasler & Suesstrunk 2003: 0 for grey, here up to rounding
-      expect(p.originalColourfulness).toBeGreaterThan(20);
+      if (p.file.startsWith('photo-')) expect(p.originalColourfulness).toBeGreaterThan(20);
     }
   });
 
@@ -129,7 +140,7 @@ describe('kinhue score', () => {
     expect(t1.target!.source).toBe('class-weights');
     expect(t1.target!.statistics.mean[1]).toBeCloseTo(10, 0);
     expect(t1.target!.statistics.mean[2]).toBeCloseTo(25, 0);
-    // Model 2 has no weights: the pooled statistics of the three scored photos, by culori.
+    // Model 2 has no weights: the pooled statistics of the four scored photos, by culori.
     expect(t2.target!.source).toBe('scored-photos');
     let sa = 0, sb = 0, n = 0;
     for (const rgb of rgbOf.values()) {
@@ -167,7 +178,7 @@ describe('kinhue score', () => {
     } finally {
       model.network.dispose();
     }
-    const mean = report.photos.reduce((s, p) => s + p.figures['model:2'].ciede2000, 0) / 3;
+    const mean = report.photos.reduce((s, p) => s + p.figures['model:2'].ciede2000, 0) / report.photos.length;
     expect(report.average!.figures['model:2'].ciede2000).toBeCloseTo(mean, 10);
   });
 
@@ -180,18 +191,18 @@ describe('kinhue score', () => {
     expect(new Set(rows.map((l) => l.length)).size).toBe(1);
     expect(table).toContain('grey (L* only)');
     expect(table).toContain('Reinhard transfer (small-a)');
-    expect(table).toContain('average of 3');
+    expect(table).toContain('average of 4');
     expect(table).toMatch(/notes\.jpg: not an image/);
 
     const csv = scoreToCsv(report).split('\r\n');
     expect(csv[0]).toBe('photo,method,model,psnr_db,ciede2000_mean,ab_error_mean,colourfulness,original_colourfulness');
-    expect(csv).toHaveLength(1 + (3 + 1) * 5 + 1); // header, (photos + average) x methods, final line break
+    expect(csv).toHaveLength(1 + (4 + 1) * 5 + 1); // header, (photos + average) x methods, final line break
 
     const out = join(root, 'scores');
     const files = await writeScoreFiles(report, out);
     const json = JSON.parse(await readFile(files.json, 'utf8')) as ScoreReport;
     expect(json.kind).toBe('kinhue-score');
-    expect(json.photos).toHaveLength(3);
+    expect(json.photos).toHaveLength(4);
     expect((await readFile(files.csv, 'utf8')).split('\r\n')[1]).toMatch(/^photo-0\.png,grey \(L\* only\),,/);
   });
 

@@ -18,6 +18,7 @@ const CHROMIUM = '/usr/bin/chromium';
 const SHOTS = join(REPO, 'tests', 'out');
 
 let root: string;
+let profile: string;
 let run: string;
 let summary: RestoreSummary;
 let context: BrowserContext;
@@ -66,7 +67,9 @@ beforeAll(async () => {
   sheetPath = (await makeSheet({ run })).output;
 
   await mkdir(SHOTS, { recursive: true });
-  context = await chromium.launchPersistentContext(await mkdtemp(join(tmpdir(), 'kinhue-chromium-')), {
+  // A fresh profile for every run: nothing remembered from earlier runs or other programs.
+  profile = await mkdtemp(join(tmpdir(), 'kinhue-chromium-'));
+  context = await chromium.launchPersistentContext(profile, {
     executablePath: CHROMIUM,
     headless: true,
     args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking',
@@ -84,6 +87,7 @@ beforeAll(async () => {
 
 afterAll(async () => {
   await context?.close();
+  if (profile) await rm(profile, { recursive: true, force: true });
   if (root) await rm(root, { recursive: true, force: true });
 });
 

@@ -35,6 +35,10 @@ export interface RestoreOptions {
   confidence?: boolean;
   /** Redo files the manifest says are finished. */
   force?: boolean;
+  /** Folder of `<name>.hints.json` files (searched before each scan's own folder, where they are always looked for). */
+  hints?: string;
+  /** A reference colour photograph, or a folder of them, for every scan (Welsh et al. 2002). */
+  reference?: string;
   /** Plan only: discover, name outputs, read the manifest, but run nothing and write nothing. */
   dryRun?: boolean;
   /** Pixel limit per image (decompression-bomb guard); default from KINHUE_MAX_PIXELS or the image module's. */
@@ -57,6 +61,10 @@ export interface RestoreSettings {
   format: FormatChoice;
   quality: number | null;
   confidence: boolean;
+  /** Absolute hints folder, when given (absent otherwise, so earlier runs keep their key). */
+  hints?: string;
+  /** Absolute reference photo or folder, when given. */
+  reference?: string;
 }
 
 /**

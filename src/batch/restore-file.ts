@@ -13,6 +13,7 @@ import {
   type BitDepth, type Pixels, type ToneReport,
 } from '../image/index.js';
 import type { KinhueModel } from '../model/index.js';
+import { prepareGuidance, type GuidanceRecord } from '../hints/index.js';
 import { VERSION } from '../version.js';
 import { fullSizeGrid, mean, workingColour, workingSize, type RefineStep } from './colourise.js';
 import { underFolder } from './discovery.js';
@@ -62,6 +63,8 @@ export interface ProvenanceRecord {
   /** Milliseconds per stage. */
   timings: { hash: number; decode: number; lightness: number; model: number; colour: number; encode: number; total: number };
   warnings: string[];
+  /** Hints and reference photos: what was used, or why a hints file was ignored. Absent when neither applied. */
+  guidance?: GuidanceRecord;
 }
 
 export interface FileOutcome {
@@ -120,10 +123,18 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
   if (tone.kind === 'colour') warnings.push('the source is a colour photograph: only its lightness was used and its colours were replaced');
   const tLightness = clock();
 
+  // Hints (<name>.hints.json) and reference photos, applied at the working size; a bad hints file is ignored.
+  const guidance = await prepareGuidance(job.source, W, H, { hintsDir: settings.hints, reference: settings.reference, relative: job.rel });
+  const refine: RefineStep | undefined = options.refine || guidance.refine
+    ? async (w) => { await options.refine?.(w); guidance.refine?.(w); }
+    : undefined;
   const work = await workingColour(Lwork, ws.width, ws.height, model, {
     temperature: settings.temperature,
-    refine: options.refine,
+    refine,
   });
+  if (guidance.record.hints?.ignored) warnings.push(`hints file not used: ${guidance.record.hints.ignored}`);
+  for (const note of guidance.record.hints?.adjustments ?? []) warnings.push(`hint ${note}`);
+  for (const note of guidance.record.reference?.notes ?? []) warnings.push(`reference ${note}`);
   const tModel = clock();
 
   // Pass 2: the source's own L* with the new a*b*, to sRGB at the output depth; the confidence map beside it.
@@ -211,6 +222,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
       total: 0,
     },
     warnings,
+    ...(guidance.record.hints || guidance.record.reference ? { guidance: guidance.record } : {}),
   };
   record.timings.total = Math.round(performance.now() - t0);
   await writeFileAtomic(underFolder(job.outDir, outputs.record), `${JSON.stringify(record, null, 2)}\n`);

@@ -12,6 +12,7 @@ import { discoverInputs, underFolder } from './discovery.js';
 import { appendManifest, readManifest, type ManifestRecord } from './manifest.js';
 import { planOutputs, type PlannedOutputs } from './naming.js';
 import { DEFAULT_MODEL_DIR } from '../model/index.js';
+import { cachedReference } from '../hints/index.js';
 import { MANIFEST_NAME, defaultJobs, settingsKey, type RestoreOptions, type RestoreSettings } from './options.js';
 import { WorkerPool } from './pool.js';
 import type { FileJob, ProvenanceRecord } from './restore-file.js';
@@ -105,7 +106,11 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     format: options.format ?? 'same',
     quality: options.quality ?? null,
     confidence: options.confidence ?? true,
+    ...(options.hints ? { hints: resolve(options.hints) } : {}),
+    ...(options.reference ? { reference: resolve(options.reference) } : {}),
   };
+  // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.
+  if (settings.reference) await cachedReference(settings.reference);
   const key = settingsKey(settings);
 
   const discovery = await discoverInputs(options.inputs, outDir);

@@ -173,8 +173,10 @@ export function sliceRows(
       const sa = ux * (uz * row[p]! + tz * row[p + 3]!) + tx * (uz * row[q]! + tz * row[q + 3]!);
       const sb = ux * (uz * row[p + 1]! + tz * row[p + 4]!) + tx * (uz * row[q + 1]! + tz * row[q + 4]!);
       const sw = ux * (uz * row[p + 2]! + tz * row[p + 5]!) + tx * (uz * row[q + 2]! + tz * row[q + 5]!);
-      outA[base + x] = sw > 0 ? sa / sw : 0;
-      outB[base + x] = sw > 0 ? sb / sw : 0;
+      // Every cell holds the background weight, so sw > 0.
+      const r = 1 / sw;
+      outA[base + x] = sa * r;
+      outB[base + x] = sb * r;
     }
   }
 }

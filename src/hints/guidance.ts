@@ -54,7 +54,7 @@ export interface GuidanceRecord {
     iterations?: number;
     milliseconds?: number;
   };
-  reference?: { files: string[]; samples: number; milliseconds?: number };
+  reference?: { files: string[]; samples: number; notes?: string[]; milliseconds?: number };
 }
 
 export interface Guidance {
@@ -159,7 +159,7 @@ export async function prepareGuidance(source: string, width: number, height: num
     }
   }
   const reference = options.reference ? await cachedReference(options.reference) : undefined;
-  if (reference) record.reference = { files: reference.files, samples: reference.L.length };
+  if (reference) record.reference = { files: reference.files, samples: reference.L.length, ...(reference.notes.length ? { notes: reference.notes } : {}) };
   if (!hints && !reference) return { record };
 
   const refine = (work: GuidedColour): void => {

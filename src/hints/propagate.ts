@@ -107,3 +107,27 @@ export function propagateHints(input: PropagationInput, hints: HintConstraints, 
   for (let i = 0; i < n; i++) if (hints.fixed[i]) { a[i] = hints.a[i]!; b[i] = hints.b[i]!; }
   return { a, b, iterations: report.iterations, residual: report.residual };
 }
+
+/**
+ * Edge-aware smoothing of a noisy a*b* estimate T: minimises sum over edges w_rs (U_r - U_s)^2 +
+ * mu sum (U_r - T_r)^2 with the same luminance weights, so stray colours average out within regions of
+ * like luminance but not across edges (as Irony, Cohen-Or & Lischinski 2005 regularise example-based
+ * colour with Levin et al.'s optimisation). `strength` is mu, per pixel, against neighbour weights of at most 1.
+ *
+ * @example
+ *   const smooth = smoothColour(L, a, b, 512, 384, 0.05);
+ */
+export function smoothColour(L: Float32Array, a: Float32Array, b: Float32Array, width: number, height: number, strength: number): { a: Float32Array; b: Float32Array } {
+  const n = width * height;
+  const g = levinAffinity(L, width, height);
+  const extra = new Float64Array(n).fill(strength);
+  const bA = new Float64Array(n), bB = new Float64Array(n);
+  for (let i = 0; i < n; i++) { bA[i] = strength * a[i]!; bB[i] = strength * b[i]!; }
+  const solver = new MultigridSolver({
+    width, height, east: Float64Array.from(g.east), south: Float64Array.from(g.south),
+    southEast: Float64Array.from(g.southEast), southWest: Float64Array.from(g.southWest), extra, active: new Uint8Array(n).fill(1),
+  });
+  const xA = Float64Array.from(a), xB = Float64Array.from(b);
+  solver.solve(bA, bB, xA, xB, 1e-3, 100);
+  return { a: Float32Array.from(xA), b: Float32Array.from(xB) };
+}

@@ -10,10 +10,13 @@ import { extname, join } from 'node:path';
 import { shrinkPlane, srgbToLab, type LabPlanes } from '../colour/index.js';
 import { classifyTone, decodeImage, type Pixels } from '../image/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
+import { smoothColour } from './propagate.js';
 
 /** Pooled samples of one or more reference photographs. */
 export interface ReferenceSet {
   files: string[];
+  /** Things to tell the person (a reference that looks toned). */
+  notes: string[];
   /** Per sample: luminance, local deviation, colour, and which reference it came from. */
   L: Float32Array;
   deviation: Float32Array;
@@ -25,9 +28,15 @@ export interface ReferenceSet {
 }
 
 // Welsh et al. used about 200 samples on a jittered grid; 16 x 16 per reference, up to 1024 pooled.
-const GRID = Number(process.env.KH_GRID ?? 16);
+const GRID = 16;
 const MAX_SAMPLES = 1024;
-const NEAREST = Number(process.env.KH_K ?? 1);
+/**
+ * Our additions to the paper, chosen on the album's photographs (tests/hints-reference.test.ts): a pixel takes
+ * the mean colour of its 8 best matches rather than the single best, and the result is smoothed edge-aware
+ * (smoothColour, strength 0.02), which halves the stray colours of mismatched pixels.
+ */
+const NEAREST = 8;
+export const REFERENCE_SMOOTHING = 0.02;
 /** Long side at which references are read (the working size restore uses by default). */
 const REFERENCE_SIDE = 512;
 const IMAGE_EXTENSIONS = new Set(['.jpg', '.jpeg', '.png', '.tif', '.tiff', '.webp']);
@@ -38,7 +47,7 @@ function refuse(file: string, message: string, hint: string): KinhueError {
 
 /**
  * Reads a reference photograph, or every image in a folder (not its subfolders), and samples it.
- * A grey or toned reference is refused: it has no colours to give.
+ * A grey reference is refused: it has no colours to give.
  *
  * @example
  *   const ref = await loadReference('family/colour-1968.jpg');
@@ -53,19 +62,23 @@ export async function loadReference(path: string): Promise<ReferenceSet> {
   }
   const perReference = Math.max(16, Math.min(GRID * GRID, Math.floor(MAX_SAMPLES / files.length)));
   const parts: Array<ReturnType<typeof sampleReference>> = [];
+  const notes: string[] = [];
   for (const file of files) {
     const decoded = await decodeImage(file);
     const lab = referenceLab(decoded.pixels);
     const tone = classifyTone(lab.lab);
     if (tone.kind === 'grey') {
-      throw refuse(file, `a reference must be a colour photograph; this one is ${tone.kind === 'grey' ? 'grey' : `a toned monochrome (${tone.name ?? 'tinted'})`}`,
+      throw refuse(file, `a reference must be a colour photograph; this one is grey (95% of its pixels have chroma under ${tone.chroma95.toFixed(1)})`,
         'use a colour photograph of the same scene, people or place');
     }
+    // Warm or cool colour photographs can look toned to the tone test; they are used, with a note.
+    if (tone.kind === 'toned') notes.push(`${file}: its colours lie along one hue (${tone.name ?? 'tinted'}), as a toned print's do; check that it is a colour photograph`);
     parts.push(sampleReference(lab.lab, lab.width, lab.height, perReference, parts.length));
   }
   const total = parts.reduce((s, p) => s + p.L.length, 0);
   const set: ReferenceSet = {
     files,
+    notes,
     L: new Float32Array(total), deviation: new Float32Array(total), a: new Float32Array(total), b: new Float32Array(total),
     source: new Uint16Array(total), stats: parts.map((p) => p.stats),
   };
@@ -168,12 +181,13 @@ function sampleReference(lab: LabPlanes, width: number, height: number, count: n
 
 /**
  * a*b* for a scan's L* (0-100) from the reference samples: each pixel takes the colour of the sample whose
- * remapped luminance and 5 x 5 deviation are nearest (half weight each).
+ * remapped luminance and 5 x 5 deviation are nearest (half weight each); see NEAREST for what we add.
  *
  * @example
  *   const { a, b } = transferReference(ref, work.L, work.width, work.height);
  */
-export function transferReference(ref: ReferenceSet, L: Float32Array, width: number, height: number): { a: Float32Array; b: Float32Array } {
+export function transferReference(ref: ReferenceSet, L: Float32Array, width: number, height: number,
+  smoothing = REFERENCE_SMOOTHING): { a: Float32Array; b: Float32Array } {
   const n = width * height;
   const scan = meanAndSd(L);
   const deviation = localDeviation(L, width, height);
@@ -223,5 +237,5 @@ export function transferReference(ref: ReferenceSet, L: Float32Array, width: num
     a[i] = sa2 / K;
     b[i] = sb2 / K;
   }
-  return { a, b };
+  return smoothing > 0 ? smoothColour(L, a, b, width, height, smoothing) : { a, b };
 }

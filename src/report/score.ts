@@ -154,7 +154,9 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     if (needsPool) pooled = await pooledStatistics(files, options.maxPixels);
     const labels = modelLabels(models);
     const methods: ScoreMethod[] = [{ id: 'grey', label: 'grey (L* only)', kind: 'grey' }];
+    const modelOf = new Map<string, KinhueModel>();
     models.forEach((model, i) => {
+      modelOf.set(`model:${i + 1}`, model);
       methods.push({
         id: `transfer:${i + 1}`,
         label: `Reinhard transfer (${labels[i]})`,
@@ -180,7 +182,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
           else if (method.kind === 'transfer') {
             figures[method.id] = measure(reinhardTransfer(grey, method.target!.statistics, { channels: ['a', 'b'] }), original);
           } else {
-            const model = models[Number(method.id.slice('model:'.length)) - 1];
+            const model = modelOf.get(method.id)!;
             const workSize = options.workSize ?? model.meta.workingSize;
             const { a, b } = await colouriseLightness(lab.L, width, height, model, { workSize, temperature: options.temperature });
             figures[method.id] = measure({ L: lab.L, a, b }, original);

@@ -27,6 +27,8 @@ export interface RestoreArgs {
   force: boolean;
   'dry-run': boolean;
   json: boolean;
+  hints?: string;
+  reference?: string;
 }
 
 /**
@@ -51,6 +53,8 @@ export function check(argv: Partial<RestoreArgs>): true {
   }
   if (quality !== undefined && !(Number.isInteger(quality) && quality >= 1 && quality <= 100)) fail(`--quality must be a whole number from 1 to 100, got ${quality}`);
   if (format !== undefined && !FORMAT_CHOICES.includes(format)) fail(`--format must be one of ${FORMAT_CHOICES.join(', ')}, got ${format}`);
+  if (argv.hints !== undefined && (typeof argv.hints !== 'string' || argv.hints.trim() === '')) fail('--hints needs the folder holding <name>.hints.json files');
+  if (argv.reference !== undefined && (typeof argv.reference !== 'string' || argv.reference.trim() === '')) fail('--reference needs a colour photograph or a folder of them');
   return true;
 }
 
@@ -71,8 +75,11 @@ export const command: CommandModule<object, RestoreArgs> = {
       .option('force', { type: 'boolean', default: false, describe: 'redo files an earlier run finished' })
       .option('dry-run', { type: 'boolean', default: false, describe: 'list what would run; write nothing' })
       .option('json', { type: 'boolean', default: false, describe: 'print a machine-readable summary on stdout' })
+      .option('hints', { type: 'string', describe: 'folder of <name>.hints.json colour hints (they are also found beside each scan); make one with kinhue hints <scan>' })
+      .option('reference', { type: 'string', describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from' })
       .example(EXAMPLE, 'restore the demo album with the shipped model')
       .example('kinhue restore "archive/**/*.tif" --out restored --format png --jobs 2', 'TIFF scans found by a glob, written as PNG on two cores')
+      .example('kinhue restore demo-photos/scans --out demo-restored --reference demo-photos/originals/wrenfold-05-billy-goat.jpg', 'colours taken from a reference photograph')
       .epilog('Run the same command again to finish an interrupted run: finished files are skipped, failed ones retried.\n' +
         'Exit codes: 0 all done, 1 some files failed (listed), 2 usage error, 3 internal error, 130 stopped with Ctrl-C.') as unknown as Argv<RestoreArgs>)
       .check((argv) => check(argv as Partial<RestoreArgs>)),
@@ -130,6 +137,8 @@ export const command: CommandModule<object, RestoreArgs> = {
           confidence: argv.confidence,
           force: argv.force,
           dryRun: argv['dry-run'],
+          hints: argv.hints,
+          reference: argv.reference,
           signal: soft.signal,
           hardSignal: hard.signal,
         },
