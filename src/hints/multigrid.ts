@@ -39,10 +39,10 @@ interface Level {
   n: number;
   diag: Float64Array;
   active: Uint8Array;
-  /** q = A p; returns p . q. */
-  multiply(p: Float64Array, q: Float64Array): number;
-  /** One Gauss-Seidel sweep on A x = b. */
-  sweep(x: Float64Array, b: Float64Array, forward: boolean): void;
+  /** q = A p for two vectors at once (a* and b*); returns p . q for each. */
+  multiply(pA: Float64Array, pB: Float64Array, qA: Float64Array, qB: Float64Array): [number, number];
+  /** One Gauss-Seidel sweep on A x = b for two systems at once. */
+  sweep(xA: Float64Array, xB: Float64Array, bA: Float64Array, bB: Float64Array, forward: boolean): void;
   /** Writes pixel i's neighbours and weights into the scratch arrays; returns how many. */
   neighbours(i: number, index: Int32Array, weight: Float64Array): number;
 }
@@ -91,27 +91,35 @@ class GridLevel implements Level {
   }
 
   // The interior loops are written out in full: a call per pixel costs as much as the arithmetic.
-  multiply(p: Float64Array, q: Float64Array): number {
+  multiply(pA: Float64Array, pB: Float64Array, qA: Float64Array, qB: Float64Array): [number, number] {
     const { width: w, height: h, east: E, south: S, southEast: SE, southWest: SW } = this.s;
     const { diag, active } = this;
-    let dot = 0;
+    let dotA = 0, dotB = 0;
     for (let y = 0; y < h; y++) {
       const edgeRow = y === 0 || y === h - 1;
       for (let x = 0, i = y * w; x < w; x++, i++) {
-        if (!active[i]) { q[i] = 0; continue; }
-        const s = edgeRow || x === 0 || x === w - 1
-          ? this.sum(p, i, x, y)
-          : E[i]! * p[i + 1]! + E[i - 1]! * p[i - 1]! + S[i]! * p[i + w]! + S[i - w]! * p[i - w]!
-            + SE[i]! * p[i + w + 1]! + SE[i - w - 1]! * p[i - w - 1]! + SW[i]! * p[i + w - 1]! + SW[i - w + 1]! * p[i - w + 1]!;
-        const v = diag[i]! * p[i]! - s;
-        q[i] = v;
-        dot += p[i]! * v;
+        if (!active[i]) { qA[i] = 0; qB[i] = 0; continue; }
+        let sA: number, sB: number;
+        if (edgeRow || x === 0 || x === w - 1) {
+          sA = this.sum(pA, i, x, y);
+          sB = this.sum(pB, i, x, y);
+        } else {
+          const e0 = E[i]!, e1 = E[i - 1]!, s0 = S[i]!, s1 = S[i - w]!, d0 = SE[i]!, d1 = SE[i - w - 1]!, f0 = SW[i]!, f1 = SW[i - w + 1]!;
+          sA = e0 * pA[i + 1]! + e1 * pA[i - 1]! + s0 * pA[i + w]! + s1 * pA[i - w]!
+            + d0 * pA[i + w + 1]! + d1 * pA[i - w - 1]! + f0 * pA[i + w - 1]! + f1 * pA[i - w + 1]!;
+          sB = e0 * pB[i + 1]! + e1 * pB[i - 1]! + s0 * pB[i + w]! + s1 * pB[i - w]!
+            + d0 * pB[i + w + 1]! + d1 * pB[i - w - 1]! + f0 * pB[i + w - 1]! + f1 * pB[i - w + 1]!;
+        }
+        const d = diag[i]!;
+        const vA = d * pA[i]! - sA, vB = d * pB[i]! - sB;
+        qA[i] = vA; qB[i] = vB;
+        dotA += pA[i]! * vA; dotB += pB[i]! * vB;
       }
     }
-    return dot;
+    return [dotA, dotB];
   }
 
-  sweep(x: Float64Array, b: Float64Array, forward: boolean): void {
+  sweep(xA: Float64Array, xB: Float64Array, bA: Float64Array, bB: Float64Array, forward: boolean): void {
     const { width: w, height: h, east: E, south: S, southEast: SE, southWest: SW } = this.s;
     const { diag, active } = this;
     const step = forward ? 1 : -1;
@@ -121,11 +129,20 @@ class GridLevel implements Level {
       for (let m = 0, px = forward ? 0 : w - 1; m < w; m++, px += step) {
         const i = y * w + px;
         if (!active[i]) continue;
-        const s = edgeRow || px === 0 || px === w - 1
-          ? this.sum(x, i, px, y)
-          : E[i]! * x[i + 1]! + E[i - 1]! * x[i - 1]! + S[i]! * x[i + w]! + S[i - w]! * x[i - w]!
-            + SE[i]! * x[i + w + 1]! + SE[i - w - 1]! * x[i - w - 1]! + SW[i]! * x[i + w - 1]! + SW[i - w + 1]! * x[i - w + 1]!;
-        x[i] = (b[i]! + s) / diag[i]!;
+        let sA: number, sB: number;
+        if (edgeRow || px === 0 || px === w - 1) {
+          sA = this.sum(xA, i, px, y);
+          sB = this.sum(xB, i, px, y);
+        } else {
+          const e0 = E[i]!, e1 = E[i - 1]!, s0 = S[i]!, s1 = S[i - w]!, d0 = SE[i]!, d1 = SE[i - w - 1]!, f0 = SW[i]!, f1 = SW[i - w + 1]!;
+          sA = e0 * xA[i + 1]! + e1 * xA[i - 1]! + s0 * xA[i + w]! + s1 * xA[i - w]!
+            + d0 * xA[i + w + 1]! + d1 * xA[i - w - 1]! + f0 * xA[i + w - 1]! + f1 * xA[i - w + 1]!;
+          sB = e0 * xB[i + 1]! + e1 * xB[i - 1]! + s0 * xB[i + w]! + s1 * xB[i - w]!
+            + d0 * xB[i + w + 1]! + d1 * xB[i - w - 1]! + f0 * xB[i + w - 1]! + f1 * xB[i - w + 1]!;
+        }
+        const inv = 1 / diag[i]!;
+        xA[i] = (bA[i]! + sA) * inv;
+        xB[i] = (bB[i]! + sB) * inv;
       }
     }
   }
@@ -162,28 +179,37 @@ class SparseLevel implements Level {
     readonly active: Uint8Array,
   ) {}
 
-  multiply(p: Float64Array, q: Float64Array): number {
+  multiply(pA: Float64Array, pB: Float64Array, qA: Float64Array, qB: Float64Array): [number, number] {
     const { start, column, weight, diag, active } = this;
-    let dot = 0;
+    let dotA = 0, dotB = 0;
     for (let i = 0; i < this.n; i++) {
-      if (!active[i]) { q[i] = 0; continue; }
-      let s = 0;
-      for (let k = start[i]!; k < start[i + 1]!; k++) s += weight[k]! * p[column[k]!]!;
-      const v = diag[i]! * p[i]! - s;
-      q[i] = v;
-      dot += p[i]! * v;
+      if (!active[i]) { qA[i] = 0; qB[i] = 0; continue; }
+      let sA = 0, sB = 0;
+      for (let k = start[i]!; k < start[i + 1]!; k++) {
+        const j = column[k]!, v = weight[k]!;
+        sA += v * pA[j]!; sB += v * pB[j]!;
+      }
+      const d = diag[i]!;
+      const vA = d * pA[i]! - sA, vB = d * pB[i]! - sB;
+      qA[i] = vA; qB[i] = vB;
+      dotA += pA[i]! * vA; dotB += pB[i]! * vB;
     }
-    return dot;
+    return [dotA, dotB];
   }
 
-  sweep(x: Float64Array, b: Float64Array, forward: boolean): void {
+  sweep(xA: Float64Array, xB: Float64Array, bA: Float64Array, bB: Float64Array, forward: boolean): void {
     const { start, column, weight, diag, active, n } = this;
     for (let m = 0; m < n; m++) {
       const i = forward ? m : n - 1 - m;
       if (!active[i]) continue;
-      let s = b[i]!;
-      for (let k = start[i]!; k < start[i + 1]!; k++) s += weight[k]! * x[column[k]!]!;
-      x[i] = s / diag[i]!;
+      let sA = bA[i]!, sB = bB[i]!;
+      for (let k = start[i]!; k < start[i + 1]!; k++) {
+        const j = column[k]!, v = weight[k]!;
+        sA += v * xA[j]!; sB += v * xB[j]!;
+      }
+      const inv = 1 / diag[i]!;
+      xA[i] = sA * inv;
+      xB[i] = sB * inv;
     }
   }
 
@@ -278,11 +304,11 @@ function coarsen(level: Level, group: Int32Array, count: number): SparseLevel {
 function factor(level: Level): Float64Array {
   const n = level.n;
   const a = new Float64Array(n * n);
-  const unit = new Float64Array(n), column = new Float64Array(n);
+  const unit = new Float64Array(n), column = new Float64Array(n), spare = new Float64Array(n);
   for (let j = 0; j < n; j++) {
     unit.fill(0);
     unit[j] = 1;
-    level.multiply(unit, column);
+    level.multiply(unit, unit, column, spare);
     if (!level.active[j]) column[j] = 1;
     for (let i = 0; i < n; i++) a[i * n + j] = column[i]!;
   }
@@ -324,7 +350,7 @@ export class MultigridSolver {
   private readonly levels: Level[];
   private readonly groups: Int32Array[] = [];
   private readonly coarsest: Float64Array;
-  private readonly scratch: Array<{ x: Float64Array; b: Float64Array; r: Float64Array }>;
+  private readonly scratch: Array<{ xA: Float64Array; xB: Float64Array; bA: Float64Array; bB: Float64Array; rA: Float64Array; rB: Float64Array }>;
 
   constructor(system: GridSystem) {
     this.levels = [new GridLevel(system)];
@@ -337,7 +363,10 @@ export class MultigridSolver {
       this.levels.push(coarsen(top, group, count));
     }
     this.coarsest = factor(this.levels[this.levels.length - 1]!);
-    this.scratch = this.levels.map((l) => ({ x: new Float64Array(l.n), b: new Float64Array(l.n), r: new Float64Array(l.n) }));
+    this.scratch = this.levels.map((l) => ({
+      xA: new Float64Array(l.n), xB: new Float64Array(l.n), bA: new Float64Array(l.n), bB: new Float64Array(l.n),
+      rA: new Float64Array(l.n), rB: new Float64Array(l.n),
+    }));
   }
 
   /** Levels in the hierarchy, finest first. */
@@ -345,77 +374,85 @@ export class MultigridSolver {
     return this.levels.length;
   }
 
-  /** x = B b: one symmetric V-cycle from a zero start (a fixed symmetric operator, as PCG needs). */
-  private cycle(k: number, b: Float64Array, x: Float64Array): void {
+  /** x = B b for both channels: one symmetric V-cycle from a zero start (a fixed symmetric operator, as PCG needs). */
+  private cycle(k: number, bA: Float64Array, bB: Float64Array, xA: Float64Array, xB: Float64Array): void {
     const l = this.levels[k]!;
     if (k === this.levels.length - 1) {
-      choleskySolve(this.coarsest, l.n, b, x);
-      for (let i = 0; i < l.n; i++) if (!l.active[i]) x[i] = 0;
+      choleskySolve(this.coarsest, l.n, bA, xA);
+      choleskySolve(this.coarsest, l.n, bB, xB);
+      for (let i = 0; i < l.n; i++) if (!l.active[i]) { xA[i] = 0; xB[i] = 0; }
       return;
     }
-    x.fill(0);
-    l.sweep(x, b, true);
-    const { r } = this.scratch[k]!;
-    l.multiply(x, r);
+    xA.fill(0);
+    xB.fill(0);
+    l.sweep(xA, xB, bA, bB, true);
+    const { rA, rB } = this.scratch[k]!;
+    l.multiply(xA, xB, rA, rB);
     const group = this.groups[k]!;
-    const { x: xc, b: bc } = this.scratch[k + 1]!;
-    bc.fill(0);
-    for (let i = 0; i < l.n; i++) if (group[i]! >= 0) bc[group[i]!] += b[i]! - r[i]!;
-    this.cycle(k + 1, bc, xc);
-    for (let i = 0; i < l.n; i++) if (group[i]! >= 0) x[i] += xc[group[i]!]!;
-    l.sweep(x, b, false);
+    const c = this.scratch[k + 1]!;
+    c.bA.fill(0);
+    c.bB.fill(0);
+    for (let i = 0; i < l.n; i++) {
+      const g = group[i]!;
+      if (g >= 0) { c.bA[g] += bA[i]! - rA[i]!; c.bB[g] += bB[i]! - rB[i]!; }
+    }
+    this.cycle(k + 1, c.bA, c.bB, c.xA, c.xB);
+    for (let i = 0; i < l.n; i++) {
+      const g = group[i]!;
+      if (g >= 0) { xA[i] += c.xA[g]!; xB[i] += c.xB[g]!; }
+    }
+    l.sweep(xA, xB, bA, bB, false);
   }
 
   /**
-   * Solves A x = b for both channels, starting from x (updated in place), until the residual falls
-   * below `tolerance` times the right-hand side's norm.
+   * Solves A x = b for both channels, starting from x (updated in place), until each residual falls
+   * below `tolerance` times its right-hand side's norm.
    */
   solve(bA: Float64Array, bB: Float64Array, xA: Float64Array, xB: Float64Array, tolerance: number, maxIterations: number): SolveReport {
     const l = this.levels[0]!;
     const n = l.n;
-    const channels = [{ b: bA, x: xA }, { b: bB, x: xB }].map(({ b, x }) => {
-      const r = new Float64Array(n);
-      l.multiply(x, r);
-      let bNorm = 0, rNorm = 0;
-      for (let i = 0; i < n; i++) {
-        r[i] = l.active[i] ? b[i]! - r[i]! : 0;
-        if (l.active[i]) bNorm += b[i]! * b[i]!;
-        rNorm += r[i]! * r[i]!;
-      }
-      return { x, r, z: new Float64Array(n), p: new Float64Array(n), q: new Float64Array(n), rz: 0, bNorm: Math.sqrt(bNorm), rNorm: Math.sqrt(rNorm), done: false };
-    });
-    for (const c of channels) {
-      c.done = c.rNorm <= tolerance * c.bNorm;
-      if (c.done) continue;
-      this.cycle(0, c.r, c.z);
-      c.p.set(c.z);
-      for (let i = 0; i < n; i++) c.rz += c.r[i]! * c.z[i]!;
+    const rA = new Float64Array(n), rB = new Float64Array(n), zA = new Float64Array(n), zB = new Float64Array(n);
+    const pA = new Float64Array(n), pB = new Float64Array(n), qA = new Float64Array(n), qB = new Float64Array(n);
+    l.multiply(xA, xB, rA, rB);
+    let normA = 0, normB = 0, rrA = 0, rrB = 0;
+    for (let i = 0; i < n; i++) {
+      if (!l.active[i]) { rA[i] = 0; rB[i] = 0; continue; }
+      rA[i] = bA[i]! - rA[i]!;
+      rB[i] = bB[i]! - rB[i]!;
+      normA += bA[i]! * bA[i]!; normB += bB[i]! * bB[i]!;
+      rrA += rA[i]! * rA[i]!; rrB += rB[i]! * rB[i]!;
     }
+    const stopA = tolerance * tolerance * normA, stopB = tolerance * tolerance * normB;
+    const converged = (): boolean => rrA <= stopA && rrB <= stopB;
     let iterations = 0;
-    while (iterations < maxIterations && channels.some((c) => !c.done)) {
-      iterations++;
-      for (const c of channels) {
-        if (c.done) continue;
-        const pq = l.multiply(c.p, c.q);
-        if (!(pq > 0)) { c.done = true; continue; }
-        const alpha = c.rz / pq;
-        let rr = 0;
+    if (!converged()) {
+      this.cycle(0, rA, rB, zA, zB);
+      pA.set(zA);
+      pB.set(zB);
+      let rzA = 0, rzB = 0;
+      for (let i = 0; i < n; i++) { rzA += rA[i]! * zA[i]!; rzB += rB[i]! * zB[i]!; }
+      while (iterations < maxIterations && !converged()) {
+        iterations++;
+        const [pqA, pqB] = l.multiply(pA, pB, qA, qB);
+        // A channel already solved (or with nothing to do) keeps still: its step length is 0.
+        const alphaA = pqA > 0 && rrA > stopA ? rzA / pqA : 0, alphaB = pqB > 0 && rrB > stopB ? rzB / pqB : 0;
+        rrA = 0; rrB = 0;
         for (let i = 0; i < n; i++) {
-          c.x[i] += alpha * c.p[i]!;
-          c.r[i] -= alpha * c.q[i]!;
-          rr += c.r[i]! * c.r[i]!;
+          xA[i] += alphaA * pA[i]!; xB[i] += alphaB * pB[i]!;
+          const vA = rA[i]! - alphaA * qA[i]!, vB = rB[i]! - alphaB * qB[i]!;
+          rA[i] = vA; rB[i] = vB;
+          rrA += vA * vA; rrB += vB * vB;
         }
-        c.rNorm = Math.sqrt(rr);
-        if (c.rNorm <= tolerance * c.bNorm) { c.done = true; continue; }
-        this.cycle(0, c.r, c.z);
-        let rz = 0;
-        for (let i = 0; i < n; i++) rz += c.r[i]! * c.z[i]!;
-        const beta = rz / c.rz;
-        c.rz = rz;
-        for (let i = 0; i < n; i++) c.p[i] = c.z[i]! + beta * c.p[i]!;
+        if (converged()) break;
+        this.cycle(0, rA, rB, zA, zB);
+        let nextA = 0, nextB = 0;
+        for (let i = 0; i < n; i++) { nextA += rA[i]! * zA[i]!; nextB += rB[i]! * zB[i]!; }
+        const betaA = rzA > 0 ? nextA / rzA : 0, betaB = rzB > 0 ? nextB / rzB : 0;
+        rzA = nextA; rzB = nextB;
+        for (let i = 0; i < n; i++) { pA[i] = zA[i]! + betaA * pA[i]!; pB[i] = zB[i]! + betaB * pB[i]!; }
       }
     }
-    const residual = Math.max(...channels.map((c) => (c.bNorm > 0 ? c.rNorm / c.bNorm : 0)));
+    const residual = Math.max(normA > 0 ? Math.sqrt(rrA / normA) : 0, normB > 0 ? Math.sqrt(rrB / normB) : 0);
     return { iterations, residual };
   }
 }
