@@ -1,8 +1,15 @@
-// Tone classification: grey, toned monochrome (with its tint) or colour. Test images are built in
-// CIELAB with a known tint, rendered to 8-bit sRGB by the colour module, then measured back.
+// Tone classification: grey, toned monochrome (with its tint) or colour. Synthetic test images are built
+// in CIELAB with a known tint, rendered to 8-bit sRGB by the colour module, then measured back; the demo
+// album adds real files: colour photographs from Debian packages and the toned scans made from them
+// (demo-photos/SOURCES.md names each photograph's source and each scan's tone).
+import { dirname, join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import sharp from 'sharp';
 import { describe, expect, it } from 'vitest';
 import { labToSrgb, srgbToLab, type LabPlanes } from '../src/colour/index.js';
-import { classifyTone, toneName } from '../src/image/index.js';
+import { classifyTone, decodeImage, toneName, type ToneName } from '../src/image/index.js';
+
+const DEMO = join(dirname(fileURLToPath(import.meta.url)), '..', 'demo-photos');
 
 const W = 128, H = 96;
 
@@ -32,6 +39,19 @@ function tonedImage(tint: (L: number, x: number, y: number) => [number, number])
 
 /** Strongest in the mid-tones, as toning is: paper white and deep black carry less tint. */
 const midtone = (L: number): number => Math.sin((Math.PI * L) / 100);
+
+/** Seeded Gaussian noise (mulberry32 and Box-Muller), so the noisy cases are the same on every run. */
+function gaussian(seed: number): () => number {
+  let s = seed >>> 0;
+  const uniform = (): number => {
+    s = (s + 0x6d2b79f5) >>> 0;
+    let t = s;
+    t = Math.imul(t ^ (t >>> 15), t | 1);
+    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
+    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
+  };
+  return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
+}
 
 describe('classifyTone', () => {
   it('a neutral grey ramp is grey with no tint', () => {
@@ -89,6 +109,136 @@ describe('classifyTone', () => {
   it('two strong opposing colours are colour, not a tint', () => {
     const { lab } = tonedImage((L, x) => (x < W / 2 ? [40, 30] : [-40, 20]));
     expect(classifyTone(lab).kind).toBe('colour');
+  });
+});
+
+describe('classifyTone: warm or cool colour photographs against toned prints', () => {
+  it('one hue band but unequal chroma at equal lightness (a brown animal on pale grass) is colour', () => {
+    // Every pixel at hue 62 degrees, as in a warm photograph: the old rule called this sepia. The upper half
+    // has chroma 30, the lower 10, over the same L* ramp, which no single toning process does.
+    const { lab } = tonedImage((L, x, y) => {
+      const c = y < H / 2 ? 30 : 10;
+      return [c * Math.cos((62 * Math.PI) / 180), c * Math.sin((62 * Math.PI) / 180)];
+    });
+    const report = classifyTone(lab);
+    expect(report.hueConcentration).toBeGreaterThan(0.95); // one hue band...
+    expect(report.offCurve).toBeGreaterThan(0.4); // ...but half the pixels 10 units off the tone curve
+    expect(report.kind).toBe('colour');
+  });
+
+  it('one hue, but stronger than any toning (a green leaf, C*ab 60-80) is colour', () => {
+    const { lab } = tonedImage((L) => {
+      const c = 60 + (20 * L) / 100;
+      return [c * Math.cos((130 * Math.PI) / 180), c * Math.sin((130 * Math.PI) / 180)];
+    });
+    const report = classifyTone(lab);
+    expect(report.offCurve).toBeLessThan(0.01); // chroma follows L* as in a toned print
+    expect(report.chroma95).toBeGreaterThan(60);
+    expect(report.kind).toBe('colour');
+  });
+
+  it('a second hue family tied to lightness (dark green below a bright orange sky) is colour', () => {
+    // Each L* has one colour, so the tone curve fits; 30% of the pixels are green, 70 degrees from the tint.
+    const { lab } = tonedImage((L) => {
+      const h = (L < 32 ? 130 : 60) * (Math.PI / 180);
+      return [18 * Math.cos(h), 18 * Math.sin(h)];
+    });
+    const report = classifyTone(lab);
+    expect(report.offCurve).toBeLessThan(0.1); // not what finds it
+    expect(report.offHue).toBeGreaterThan(0.2);
+    expect(report.kind).toBe('colour');
+  });
+
+  it('a small, strongly coloured subject on a nearly grey picture is colour', () => {
+    // 2% of the pixels (a yellow bird, 16 x 16) at chroma 40 over a faintly warm grey.
+    const { lab } = tonedImage((L, x, y) => (x >= 56 && x < 72 && y >= 36 && y < 52 ? [-2, 40] : [1, 4]));
+    const report = classifyTone(lab);
+    expect(report.offCurve).toBeLessThan(0.1);
+    expect(report.outliers).toBeGreaterThan(0.015);
+    expect(report.kind).toBe('colour');
+  });
+
+  it('colour texture at the pixel scale is not all taken for noise', () => {
+    // Alternate columns of chroma 40 and 5 at one hue: the neighbour-based noise estimate sees this as
+    // strong noise, but its allowance stops at MAX_CURVE_TOLERANCE (12) and the pixels lie 17 units off.
+    const { lab } = tonedImage((L, x) => {
+      const c = x % 2 === 0 ? 40 : 5;
+      return [c * Math.cos((62 * Math.PI) / 180), c * Math.sin((62 * Math.PI) / 180)];
+    });
+    const report = classifyTone(lab);
+    expect(report.curveTolerance).toBe(12);
+    expect(report.kind).toBe('colour');
+  });
+
+  it('chroma noise on a scan (4:2:0 blocks, 2 units per a*, b*) leaves a sepia print toned and a grey one grey', () => {
+    // Noise of 2 units standard deviation per component, in 2 x 2 blocks as JPEG's half-resolution chroma
+    // (ITU-T T.81 with 4:2:0 sampling) leaves it: C*ab 4 to 5 at the 95th percentile on a grey print.
+    const noisy = (tint: (L: number) => [number, number], seed: number): LabPlanes => {
+      const noise = gaussian(seed);
+      const blocks = new Map<number, [number, number]>();
+      return tonedImage((L, x, y) => {
+        const key = (y >> 1) * W + (x >> 1);
+        if (!blocks.has(key)) blocks.set(key, [2 * noise(), 2 * noise()]);
+        const [na, nb] = blocks.get(key)!;
+        const [a, b] = tint(L);
+        return [a + na, b + nb];
+      }).lab;
+    };
+    const sepia = classifyTone(noisy((L) => [8 * midtone(L), 20 * midtone(L)], 7));
+    expect(sepia.curveTolerance).toBeGreaterThan(6); // raised by the noise
+    expect(sepia.kind).toBe('toned');
+    expect(sepia.name).toBe('sepia');
+    const grey = classifyTone(noisy(() => [0, 0], 11));
+    expect(grey.chroma95).toBeGreaterThan(3); // the noise alone would pass the plain chroma test
+    expect(grey.kind).toBe('grey');
+  });
+});
+
+/** The demo album at full size (as `score` reads originals) and at 512 px (the working size restore and training use). */
+async function albumTone(folder: string, name: string): Promise<ReturnType<typeof classifyTone>[]> {
+  const file = join(DEMO, folder, name);
+  const { pixels } = await decodeImage(file);
+  const full = classifyTone(srgbToLab(pixels.data, pixels.channels));
+  const { data, info } = await sharp(file).resize(512, 512, { fit: 'inside' }).removeAlpha().toColourspace('srgb')
+    .raw({ depth: 'uchar' }).toBuffer({ resolveWithObject: true });
+  const small = classifyTone(srgbToLab(new Uint8Array(data.buffer, data.byteOffset, data.length), info.channels as 3));
+  return [full, small];
+}
+
+describe('classifyTone on the demo album (demo-photos/SOURCES.md)', () => {
+  const originals = [
+    'wrenfold-01-hill-pasture.jpg', 'wrenfold-02-spaniels.jpg', 'wrenfold-03-new-calf.jpg', 'wrenfold-04-hill-pony.jpg',
+    'wrenfold-05-billy-goat.jpg', 'wrenfold-06-gosling.jpg', 'wrenfold-07-orchard-clocks.jpg',
+  ];
+  // 03 (a brown calf on beige ground) and 07 (dandelion clocks in evening light) are warm, one-hue colour
+  // photographs that an earlier rule called sepia.
+  it.each(originals)('original %s is colour', async (name) => {
+    for (const report of await albumTone('originals', name)) expect(report.kind).toBe('colour');
+  });
+
+  // The tone make-scans.mjs gave each scan (SOURCES.md): warm black is a weak warm tone, in the sepia hue band.
+  const scans: Array<[string, 'grey' | 'toned', ToneName | undefined]> = [
+    ['wrenfold-01-hill-pasture.jpg', 'toned', 'sepia'],
+    ['wrenfold-02-spaniels.jpg', 'toned', 'sepia'],
+    ['wrenfold-03-new-calf.jpg', 'grey', undefined],
+    ['wrenfold-04-hill-pony.jpg', 'toned', 'selenium'],
+    ['wrenfold-05-billy-goat.jpg', 'toned', 'cyanotype'],
+    ['wrenfold-06-gosling.tif', 'grey', undefined],
+    ['wrenfold-07-orchard-clocks.jpg', 'toned', 'sepia'],
+  ];
+  it.each(scans)('scan %s is %s (%s)', async (name, kind, tint) => {
+    for (const report of await albumTone('scans', name)) {
+      expect(report.kind).toBe(kind);
+      expect(report.name).toBe(tint);
+    }
+  });
+
+  it('the warm-black scan carries a weaker tint than the sepia ones', async () => {
+    const [warm] = await albumTone('scans', 'wrenfold-02-spaniels.jpg');
+    const [sepia] = await albumTone('scans', 'wrenfold-01-hill-pasture.jpg');
+    // make-scans.mjs maps mid-grey to sRGB (0.53, 0.50, 0.45) for warm black, (0.60, 0.47, 0.33) for sepia.
+    expect(Math.hypot(warm!.tint.a, warm!.tint.b)).toBeLessThan(10);
+    expect(Math.hypot(sepia!.tint.a, sepia!.tint.b)).toBeGreaterThan(15);
   });
 });
 

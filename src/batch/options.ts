@@ -35,8 +35,8 @@ export interface RestoreOptions {
   confidence?: boolean;
   /** Redo files the manifest says are finished. */
   force?: boolean;
-  /** Folder of `<name>.hints.json` files (searched before each scan's own folder, where they are always looked for). */
-  hints?: string;
+  /** Folder of `<name>.hints.json` files (searched before each scan's own folder, where they are always looked for); false: no hints. */
+  hints?: string | false;
   /** A reference colour photograph, or a folder of them, for every scan (Welsh et al. 2002). */
   reference?: string;
   /** Plan only: discover, name outputs, read the manifest, but run nothing and write nothing. */
@@ -61,8 +61,8 @@ export interface RestoreSettings {
   format: FormatChoice;
   quality: number | null;
   confidence: boolean;
-  /** Absolute hints folder, when given (absent otherwise, so earlier runs keep their key). */
-  hints?: string;
+  /** Absolute hints folder, or false for no hints, when given (absent otherwise, so earlier runs keep their key). */
+  hints?: string | false;
   /** Absolute reference photo or folder, when given. */
   reference?: string;
 }

@@ -124,7 +124,9 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
   const tLightness = clock();
 
   // Hints (<name>.hints.json) and reference photos, applied at the working size; a bad hints file is ignored.
-  const guidance = await prepareGuidance(job.source, W, H, { hintsDir: settings.hints, reference: settings.reference, relative: job.rel });
+  const guidance = await prepareGuidance(job.source, W, H, {
+    hintsDir: settings.hints || undefined, useHints: settings.hints !== false, reference: settings.reference, relative: job.rel,
+  });
   const refine: RefineStep | undefined = options.refine || guidance.refine
     ? async (w) => { await options.refine?.(w); guidance.refine?.(w); }
     : undefined;

@@ -106,7 +106,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     format: options.format ?? 'same',
     quality: options.quality ?? null,
     confidence: options.confidence ?? true,
-    ...(options.hints ? { hints: resolve(options.hints) } : {}),
+    ...(options.hints !== undefined ? { hints: options.hints === false ? false : resolve(options.hints) } : {}),
     ...(options.reference ? { reference: resolve(options.reference) } : {}),
   };
   // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.

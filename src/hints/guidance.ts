@@ -29,6 +29,8 @@ export interface GuidedColour {
 export interface GuidanceOptions {
   /** Folder of hints files; searched before the scan's own folder. */
   hintsDir?: string;
+  /** False: look for no hints file at all. Default true. */
+  useHints?: boolean;
   /** A reference colour photograph, or a folder of them. */
   reference?: string;
   /** The scan's path relative to the run's inputs, to look for `<hintsDir>/<relative folder>/<name>.hints.json`. */
@@ -142,7 +144,7 @@ export function cachedReference(path: string): Promise<ReferenceSet> {
 export async function prepareGuidance(source: string, width: number, height: number, options: GuidanceOptions = {}): Promise<Guidance> {
   const record: GuidanceRecord = {};
   let hints: Hints | undefined;
-  const found = await findHints(hintsCandidates(source, options.hintsDir, options.relative));
+  const found = options.useHints === false ? undefined : await findHints(hintsCandidates(source, options.hintsDir, options.relative));
   if (found) {
     try {
       hints = found.text ? parseHints(found.text, found.path) : await readHints(found.path);

@@ -7,7 +7,7 @@ import { writeStarterHints } from '../../hints/index.js';
 import { UsageError } from '../../errors.js';
 import { ExitCode } from '../exit-codes.js';
 
-const EXAMPLE = 'kinhue hints demo-photos/scans/wrenfold-04-hill-pony.jpg';
+const EXAMPLE = 'kinhue hints demo-photos/scans/wrenfold-05-billy-goat.jpg';
 
 /** The `hints` command line as yargs parses it. */
 export interface HintsArgs {
@@ -39,11 +39,11 @@ export const command: CommandModule<object, HintsArgs> = {
       .positional('scan', { type: 'string', describe: 'the scan the hints are for' })
       .option('out', { type: 'string', describe: 'where to write (default: <name>.hints.json beside the scan)' })
       .option('force', { type: 'boolean', default: false, describe: 'replace an existing hints file' })
-      .example(EXAMPLE, 'writes demo-photos/scans/wrenfold-04-hill-pony.hints.json to edit')
-      .epilog('Edit the entries: points {"x", "y", "colour", "radius"} and strokes {"points": [[x, y], ...], "colour", "radius"}, in\n' +
-        'pixels of the scan; colours as "#rrggbb", "#rgb" or "rgb(r, g, b)". An entry with an empty colour is ignored.\n' +
-        'restore then finds <name>.hints.json beside the scan (or in --hints <dir>). A hint sets hue and chroma; the\n' +
-        'scan keeps its own lightness.') as unknown as Argv<HintsArgs>)
+      .example(EXAMPLE, 'writes demo-photos/scans/wrenfold-05-billy-goat.hints.json to edit')
+      .epilog('Edit the entries: points {"x", "y", "colour", "radius"} and strokes {"points": [[x, y], ...], "colour", "radius"}, ' +
+        'in pixels of the scan; colours as "#rrggbb", "#rgb" or "rgb(r, g, b)". An entry with an empty colour is ignored. ' +
+        'restore then finds <name>.hints.json beside the scan (or in --hints <dir>). A hint sets hue and chroma; ' +
+        'the scan keeps its own lightness.') as unknown as Argv<HintsArgs>)
       .check((argv) => check(argv as Partial<HintsArgs>)),
   handler: async (argv: ArgumentsCamelCase<HintsArgs>) => {
     const result = await writeStarterHints(argv.scan, { out: argv.out, force: argv.force });

@@ -27,7 +27,7 @@ export interface RestoreArgs {
   force: boolean;
   'dry-run': boolean;
   json: boolean;
-  hints?: string;
+  hints?: string | false;
   reference?: string;
 }
 
@@ -53,7 +53,7 @@ export function check(argv: Partial<RestoreArgs>): true {
   }
   if (quality !== undefined && !(Number.isInteger(quality) && quality >= 1 && quality <= 100)) fail(`--quality must be a whole number from 1 to 100, got ${quality}`);
   if (format !== undefined && !FORMAT_CHOICES.includes(format)) fail(`--format must be one of ${FORMAT_CHOICES.join(', ')}, got ${format}`);
-  if (argv.hints !== undefined && (typeof argv.hints !== 'string' || argv.hints.trim() === '')) fail('--hints needs the folder holding <name>.hints.json files');
+  if (argv.hints !== undefined && argv.hints !== false && (typeof argv.hints !== 'string' || argv.hints.trim() === '')) fail('--hints needs the folder holding <name>.hints.json files');
   if (argv.reference !== undefined && (typeof argv.reference !== 'string' || argv.reference.trim() === '')) fail('--reference needs a colour photograph or a folder of them');
   return true;
 }
@@ -75,7 +75,7 @@ export const command: CommandModule<object, RestoreArgs> = {
       .option('force', { type: 'boolean', default: false, describe: 'redo files an earlier run finished' })
       .option('dry-run', { type: 'boolean', default: false, describe: 'list what would run; write nothing' })
       .option('json', { type: 'boolean', default: false, describe: 'print a machine-readable summary on stdout' })
-      .option('hints', { type: 'string', describe: 'folder of <name>.hints.json colour hints (they are also found beside each scan); make one with kinhue hints <scan>' })
+      .option('hints', { type: 'string', describe: 'folder of <name>.hints.json colour hints (they are also found beside each scan; --no-hints to use none); make one with kinhue hints <scan>' })
       .option('reference', { type: 'string', describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from' })
       .example(EXAMPLE, 'restore the demo album with the shipped model')
       .example('kinhue restore "archive/**/*.tif" --out restored --format png --jobs 2', 'TIFF scans found by a glob, written as PNG on two cores')
