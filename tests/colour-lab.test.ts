@@ -3,18 +3,8 @@ import {
   D65_WHITE, LAB_EPSILON, LAB_KAPPA, greyToLightness, labF, labToSrgb, labToSrgbColour, labToXyz, lightnessToGrey,
   linearSrgbToXyz, linearToSrgb, linearToSrgb16, linearToSrgb8, srgbColourToLab, srgbToLab, srgbToLinear, xyzToLab,
 } from '../src/colour/index.js';
+import { random } from './helpers/random.js';
 
-/** A small seeded generator (mulberry32, common practice) so every run sees the same colours. */
-function random(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 /** L* of a relative luminance, written out from CIE 15:2004 for the tests (independent of the source). */
 function cieLightness(y: number): number {

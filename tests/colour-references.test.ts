@@ -4,18 +4,8 @@ import { converter, differenceCiede2000, displayable } from 'culori';
 import sharp from 'sharp';
 import { describe, expect, it } from 'vitest';
 import { ciede2000, inSrgbGamut, labToSrgb, srgbToLab } from '../src/colour/index.js';
+import { random } from './helpers/random.js';
 
-/** A small seeded generator (mulberry32, common practice) so every run sees the same colours. */
-function random(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
 
 function randomRgb8(n: number, seed: number): Uint8Array {
   const rnd = random(seed);

@@ -122,7 +122,7 @@ describe('odd shapes', () => {
       // A chain is tridiagonal: solve it directly (Thomas algorithm) as an independent check. Flat L* gives
       // weight 1 per edge; the prior (a* = 0) weighs 1/n x confidence 0.5 per pixel.
       const d = 0.5 / n, m = n - 1;
-      const diag = Array.from({ length: m }, (_, k) => (k === m - 1 ? 1 : 2) + d), rhs = Array.from({ length: m }, (_, k) => (k === 0 ? 30 : 0));
+      const diag = Array.from({ length: m }, (_, k) => (k === m - 1 ? 1 : 2) + d), rhs: number[] = Array.from({ length: m }, (_, k) => (k === 0 ? 30 : 0));
       const c = new Array<number>(m).fill(-1), x = new Array<number>(m).fill(0);
       for (let k = 1; k < m; k++) { const f = -1 / diag[k - 1]!; diag[k] = diag[k]! - f * c[k - 1]!; rhs[k] = rhs[k]! - f * rhs[k - 1]!; }
       x[m - 1] = rhs[m - 1]! / diag[m - 1]!;

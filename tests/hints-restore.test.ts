@@ -6,7 +6,7 @@ import sharp from 'sharp';
 import { beforeAll, describe, expect, it } from 'vitest';
 import { restore } from '../src/batch/index.js';
 import { srgbColourToLab } from '../src/colour/index.js';
-import { createNetwork, initBackend, saveModel } from '../src/model/index.js';
+import { saveUntrainedModel } from './helpers/untrained-model.js';
 import { hintLch, parseCssColour } from '../src/hints/index.js';
 
 let root: string;
@@ -30,10 +30,7 @@ beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'kinhue-hints-restore-'));
   modelDir = join(root, 'model');
   // An untrained network saved as a real model folder: the hints, not the model, give the colour here.
-  await initBackend();
-  const network = createNetwork({ width: 4, seed: 3 });
-  await saveModel(network, modelDir, { name: 'test-untrained', trainedOn: 'nothing (untrained, for tests)' });
-  network.dispose();
+  await saveUntrainedModel(modelDir);
 });
 
 describe('restore with hints', () => {

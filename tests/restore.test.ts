@@ -8,19 +8,13 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { readManifest, restore, type RestoreEvent } from '../src/batch/index.js';
 import { check } from '../src/cli/commands/restore.js';
 import { UsageError } from '../src/errors.js';
-import { createNetwork, initBackend, saveModel } from '../src/model/index.js';
+import { saveUntrainedModel } from './helpers/untrained-model.js';
 
 const BIN = join(__dirname, '..', 'bin', 'kinhue.js');
 let root: string;
 let modelDir: string;
 
 /** A small, untrained network saved as a real model folder: colour quality plays no part in these invariants. */
-async function makeTestModel(dir: string): Promise<void> {
-  await initBackend();
-  const network = createNetwork({ width: 4, seed: 3 });
-  await saveModel(network, dir, { name: 'test-untrained', trainedOn: 'nothing (untrained, for tests)' });
-  network.dispose();
-}
 
 /** A grey scene with shapes and a gradient: something with edges for the model to see. */
 function scene(width: number, height: number, max: number): number[] {
@@ -98,7 +92,7 @@ function cli(args: string[]): { status: number | null; stdout: string; stderr: s
 beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'kinhue-restore-'));
   modelDir = join(root, 'model');
-  await makeTestModel(modelDir);
+  await saveUntrainedModel(modelDir);
 });
 
 afterAll(async () => {

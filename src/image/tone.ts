@@ -36,7 +36,10 @@ export interface ToneReport {
   outliers: number;
   /** The distance counted by `offCurve`: OFF_CURVE_DISTANCE, or more on a noisy image (up to MAX_CURVE_TOLERANCE). */
   curveTolerance: number;
-  /** Fraction of the pixels that are chromatic (C*ab >= HUE_MIN_CHROMA) with a hue more than HUE_FAMILY_DEGREES from the tint's. */
+  /**
+   * Fraction of the pixels that are chromatic (C*ab >= HUE_MIN_CHROMA, or the curve tolerance on a noisy image) with a
+   * hue more than HUE_FAMILY_DEGREES from the dominant hue (the peak of the chromatic pixels' hue histogram).
+   */
   offHue: number;
 }
 
@@ -92,8 +95,9 @@ export const OUTLIER_DISTANCE = 12;
 export const OUTLIER_FRACTION = 0.01;
 /**
  * Hue families: a pixel of chroma 6 or more (its hue is then good to about 10 degrees after 8-bit
- * rounding: our estimate) whose hue is more than 60 degrees from the tint's belongs to another family
- * (sepia against red or green). Toned prints have none beyond stains; 2% of the whole picture is a
+ * rounding: our estimate) whose hue is more than 60 degrees from the dominant hue belongs to another
+ * family (sepia against red or green). The dominant hue is the peak of the hue histogram, not the
+ * mean tint, which a second family would pull towards itself. Toned prints have none beyond stains; 2% of the whole picture is a
  * second family (common practice). Counted over all pixels, not the chromatic ones only, so a nearly
  * grey print with one small coloured mark is not called colour for it.
  */
@@ -103,6 +107,9 @@ export const OFF_HUE_FRACTION = 0.02;
 
 const HIST_STEP = 0.1;
 const HIST_BINS = 2000;
+/** The hue-by-chroma histogram of chromatic pixels: 5-degree hue bins, 1-unit chroma bins up to 128. */
+const HUE_BINS = 72;
+const HUE_CHROMA_BINS = 129;
 /** L* bins of the tone curve, 2 units wide: finer than a toned print's tint changes with density. */
 const L_BINS = 50;
 /**
@@ -161,7 +168,7 @@ export function classifyTone(lab: LabPlanes): ToneReport {
     outliers: fractionAbove(curve.offHist, curve.count, OUTLIER_DISTANCE),
     curveTolerance,
     // a hue counts once its chroma stands clear of the noise
-    offHue: fractionAbove(curve.offHueHist, curve.count, Math.max(HUE_MIN_CHROMA, curveTolerance)),
+    offHue: offFamily(curve.hueChromaHist, Math.max(HUE_MIN_CHROMA, curveTolerance)) / curve.count,
   };
   const onCurve = report.offCurve < OFF_CURVE_FRACTION && report.outliers < OUTLIER_FRACTION;
   // Grey: nearly every pixel neutral, or (on a noisy scan) neutral once the noise is averaged out along L*.
@@ -228,14 +235,12 @@ function overall(lab: LabPlanes, stride: number): Overall {
  */
 function aroundCurve(lab: LabPlanes, stride: number, first: Overall) {
   const { L, a, b } = lab;
-  const { curveA, curveB, meanA, meanB } = first;
+  const { curveA, curveB } = first;
   const n = a.length;
   const offHist = new Uint32Array(HIST_BINS + 1);
   const neighbourHist = new Uint32Array(HIST_BINS + 1);
   const curveChromaHist = new Uint32Array(HIST_BINS + 1);
-  const offHueHist = new Uint32Array(HIST_BINS + 1);
-  const tintChroma = Math.hypot(meanA, meanB);
-  const cosFamily = Math.cos((HUE_FAMILY_DEGREES * Math.PI) / 180);
+  const hueChromaHist = new Uint32Array(HUE_BINS * HUE_CHROMA_BINS);
   let count = 0, neighbours = 0;
   for (let i = 0; i < n; i += stride) {
     count++;
@@ -251,10 +256,48 @@ function aroundCurve(lab: LabPlanes, stride: number, first: Overall) {
       neighbours++;
     }
     const c = norm(ai, bi);
-    // cos of the angle between the pixel's hue and the tint's, without atan2
-    if (c > 0 && (tintChroma === 0 || (ai * meanA + bi * meanB) / (c * tintChroma) < cosFamily)) offHueHist[histBin(c)]++;
+    if (c >= HUE_MIN_CHROMA) {
+      const h = Math.floor(((Math.atan2(bi, ai) / (2 * Math.PI) + 1) % 1) * HUE_BINS) % HUE_BINS;
+      hueChromaHist[Math.min(HUE_CHROMA_BINS - 1, Math.floor(c)) * HUE_BINS + h]++;
+    }
   }
-  return { count, offHist, neighbourHist, neighbours, curveChromaHist, offHueHist };
+  return { count, offHist, neighbourHist, neighbours, curveChromaHist, hueChromaHist };
+}
+
+/**
+ * Pixels of chroma `minChroma` or more whose hue is more than HUE_FAMILY_DEGREES from the dominant hue:
+ * the peak of their hue histogram (summed over a window of about 35 degrees), refined as the circular
+ * mean of the bins within half that family width of it.
+ */
+function offFamily(hueChromaHist: Uint32Array, minChroma: number): number {
+  const hues = new Float64Array(HUE_BINS);
+  for (let c = Math.min(HUE_CHROMA_BINS - 1, Math.ceil(minChroma)); c < HUE_CHROMA_BINS; c++) {
+    for (let h = 0; h < HUE_BINS; h++) hues[h] += hueChromaHist[c * HUE_BINS + h]!;
+  }
+  const binDegrees = 360 / HUE_BINS;
+  const window = Math.round(17.5 / binDegrees);
+  let peak = 0, best = -1;
+  for (let h = 0; h < HUE_BINS; h++) {
+    let sum = 0;
+    for (let d = -window; d <= window; d++) sum += hues[(h + d + HUE_BINS) % HUE_BINS]!;
+    if (sum > best) { best = sum; peak = h; }
+  }
+  if (best <= 0) return 0;
+  const half = Math.round(HUE_FAMILY_DEGREES / 2 / binDegrees);
+  let x = 0, y = 0;
+  for (let d = -half; d <= half; d++) {
+    const h = (peak + d + HUE_BINS) % HUE_BINS;
+    const angle = ((h + 0.5) * 2 * Math.PI) / HUE_BINS;
+    x += hues[h]! * Math.cos(angle);
+    y += hues[h]! * Math.sin(angle);
+  }
+  const dominant = Math.atan2(y, x);
+  const cosFamily = Math.cos((HUE_FAMILY_DEGREES * Math.PI) / 180);
+  let off = 0;
+  for (let h = 0; h < HUE_BINS; h++) {
+    if (Math.cos(((h + 0.5) * 2 * Math.PI) / HUE_BINS - dominant) < cosFamily) off += hues[h]!;
+  }
+  return off;
 }
 
 /**
