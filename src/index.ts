@@ -3,8 +3,6 @@ export * from './errors.js';
 export { VERSION } from './version.js';
 export * from './colour/index.js';
 export * from './model/index.js';
-// model/ and batch/ both name the shipped model folder (the same path); model/ owns it.
-export { DEFAULT_MODEL_DIR } from './model/index.js';
 export * from './image/index.js';
 export * from './training/index.js';
 export * from './batch/index.js';

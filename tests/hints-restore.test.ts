@@ -63,6 +63,14 @@ describe('restore with hints', () => {
     expect(bad.guidance.hints.ignored).toContain('entry 2');
     expect(bad.warnings.join('\n')).toContain('hints file not used');
 
+    // A re-run skips both; once a hints file is edited, that scan alone is done again.
+    const again = await restore({ inputs: [scans], out, model: modelDir, jobs: 1, workSize: 64 });
+    expect([again.skipped, again.done]).toEqual([2, 0]);
+    await writeFile(join(scans, 'bad.hints.json'), hints([{ x: 33, y: 32, colour: '#c0504a' }]));
+    const edited = await restore({ inputs: [scans], out, model: modelDir, jobs: 1, workSize: 64 });
+    expect([edited.skipped, edited.done]).toEqual([1, 1]);
+    expect(edited.files.find((f) => f.rel === 'bad.png')?.status).toBe('done');
+
     // --no-hints: no hints file is looked for, and the settings (hence the resume key) say so.
     const plain = await restore({ inputs: [join(scans, 'good.png')], out: join(root, 'plain'), model: modelDir, jobs: 1, workSize: 64, hints: false });
     expect(plain.settings.hints).toBe(false);

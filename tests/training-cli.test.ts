@@ -41,6 +41,7 @@ describe('train and tune command lines', () => {
       [{ seed: -2 }, /--seed/],
       [{ 'learning-rate': 0 }, /--learning-rate/],
       [{ 'eval-every': 0 }, /--eval-every/],
+      [{ rebalance: 1.5 }, /--rebalance/],
     ];
     for (const [change, message] of cases) {
       const error = usage(() => checkTrain({ ...ok, ...change } as never));

@@ -25,6 +25,8 @@ export interface ManifestRecord {
   sha256?: string;
   /** The settings key (see settingsKey). */
   settings: string;
+  /** SHA-256 of the hints file used, null when there was none (absent in records that predate it). */
+  hintsSha256?: string | null;
   /** Seconds the file took. */
   seconds?: number;
   /** For failures: the error code, message and next step. */

@@ -12,7 +12,7 @@ import { discoverInputs, underFolder } from './discovery.js';
 import { appendManifest, readManifest, type ManifestRecord } from './manifest.js';
 import { planOutputs, type PlannedOutputs } from './naming.js';
 import { DEFAULT_MODEL_DIR } from '../model/index.js';
-import { cachedReference } from '../hints/index.js';
+import { cachedReference, hintsFingerprint } from '../hints/index.js';
 import { MANIFEST_NAME, defaultJobs, settingsKey, type RestoreOptions, type RestoreSettings } from './options.js';
 import { WorkerPool } from './pool.js';
 import type { FileJob, ProvenanceRecord } from './restore-file.js';
@@ -27,6 +27,8 @@ export interface PlannedFile {
   /** Source path relative to the inputs' common base. */
   rel: string;
   outputs: PlannedOutputs;
+  /** SHA-256 of the scan's hints file when planned; null when it has none or hints are off. */
+  hintsSha256: string | null;
   action: PlanAction;
   /** After the run: what happened ('planned' on a dry run). */
   status: 'planned' | 'done' | 'failed' | 'skipped' | 'not-run';
@@ -122,11 +124,15 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     const f = discovery.files[i]!;
     const o = outputs[i]!;
     const last = previous.get(o.image);
+    const hintsSha256 = settings.hints === false ? null : await hintsFingerprint(f.path, settings.hints || undefined, f.rel);
     let action: PlanAction = last?.status === 'failed' ? 'retry' : 'run';
-    if (!options.force && last?.status === 'done' && last.settings === key && (await stillFinished(f.path, outDir, o, last))) {
+    if (
+      !options.force && last?.status === 'done' && last.settings === key && (last.hintsSha256 ?? null) === hintsSha256 &&
+      (await stillFinished(f.path, outDir, o, last))
+    ) {
       action = 'skip';
     }
-    files.push({ source: f.path, rel: f.rel, outputs: o, action, status: action === 'skip' ? 'skipped' : 'planned' });
+    files.push({ source: f.path, rel: f.rel, outputs: o, hintsSha256, action, status: action === 'skip' ? 'skipped' : 'planned' });
   }
   const todo = files.filter((f) => f.action !== 'skip');
   onEvent({ type: 'plan', files, toRun: todo.length, skipped: files.length - todo.length, outDir, notes: discovery.notes });
@@ -248,6 +254,7 @@ function doneRecord(
     size: outcome.size,
     mtimeMs: outcome.mtimeMs,
     sha256: outcome.sha256,
+    hintsSha256: file.hintsSha256,
     settings: key,
     seconds: Number(outcome.seconds.toFixed(3)),
   };

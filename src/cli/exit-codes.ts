@@ -10,6 +10,8 @@ export const ExitCode = {
   USAGE: 2,
   /** A bug or an unexpected failure in kinhue itself. */
   INTERNAL: 3,
+  /** Stopped with Ctrl-C: finished files are complete, the next run goes on from there (128 + SIGINT). */
+  INTERRUPTED: 130,
 } as const;
 
 /** The exit code for an error that stopped a whole command. */

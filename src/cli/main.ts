@@ -21,7 +21,7 @@ export async function main(args: string[]): Promise<void> {
     .strict()
     .demandCommand(1, 'Name a command.\nExample usage: kinhue restore demo-photos/scans --out restored')
     .recommendCommands()
-    .wrap(Math.min(100, process.stdout.columns ?? 100))
+    .wrap(Math.min(100, process.stdout.columns || 100))
     .fail((message, error) => {
       // Validation failures arrive as a message; errors thrown by a handler arrive as `error`.
       throw error ?? new UsageError(message);

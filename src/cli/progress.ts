@@ -45,7 +45,8 @@ export class Progress {
     if (this.tty) {
       if (!force && now - this.lastDraw < 100) return;
       this.lastDraw = now;
-      const columns = (this.stream as { columns?: number }).columns ?? 100;
+      // Some terminals report a width of 0 (under `script`, say): treat that as unknown.
+      const columns = (this.stream as { columns?: number }).columns || 100;
       const line = `${fraction === undefined ? '' : `${bar(fraction, this.barWidth)} ${percent(fraction)}  `}${text}`;
       this.stream.write(`\r\x1b[2K${line.slice(0, Math.max(10, columns - 1))}`);
       this.drawn = true;

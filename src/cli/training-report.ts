@@ -19,6 +19,7 @@ export interface FitArgs {
   holdout: number;
   resume: boolean;
   'learning-rate'?: number;
+  rebalance?: number;
   'eval-every': number;
   'checkpoint-minutes': number;
 }
@@ -36,6 +37,7 @@ export function fitOptions<T>(yargs: Argv<T>): Argv<T & FitArgs> {
     .option('holdout', { type: 'number', default: 0.1, describe: 'fraction of the photos held out for evaluation (at least 2 photos)' })
     .option('resume', { type: 'boolean', default: false, describe: 'continue the run whose checkpoint is in --out' })
     .option('learning-rate', { type: 'number', describe: 'optimiser learning rate (default 1e-3)' })
+    .option('rebalance', { type: 'number', describe: 'class rebalancing lambda, 0-1: 0.5 favours vivid colours, higher is more cautious (default 0.5)' })
     .option('eval-every', { type: 'number', default: 100, describe: 'evaluate on the held-out photos every this many steps' })
     .option('checkpoint-minutes', { type: 'number', default: 5, describe: 'minutes between checkpoints' }) as unknown as Argv<T & FitArgs>;
 }
@@ -59,6 +61,7 @@ export function checkFitArgs(argv: Partial<FitArgs>, example: string): true {
   if (argv.holdout !== undefined && !(argv.holdout > 0 && argv.holdout <= 0.5)) fail(`--holdout must be a fraction above 0 and at most 0.5, got ${argv.holdout}`);
   const lr = argv['learning-rate'];
   if (lr !== undefined && !(lr > 0 && lr < 1)) fail(`--learning-rate must be between 0 and 1, got ${lr}`);
+  if (argv.rebalance !== undefined && !(argv.rebalance > 0 && argv.rebalance <= 1)) fail(`--rebalance must be above 0 and at most 1, got ${argv.rebalance}`);
   const every = argv['eval-every'];
   if (every !== undefined && !(Number.isInteger(every) && every >= 1)) fail(`--eval-every must be a whole number of at least 1, got ${every}`);
   const minutes = argv['checkpoint-minutes'];
@@ -79,6 +82,7 @@ export function fitOptionsFrom(argv: FitArgs): FitOptions {
     holdout: argv.holdout,
     resume: argv.resume,
     learningRate: argv['learning-rate'],
+    rebalance: argv.rebalance,
     evalEvery: argv['eval-every'],
     checkpointMinutes: argv['checkpoint-minutes'],
   };

@@ -4,6 +4,7 @@
  * of what was used for the scan's provenance. A bad hints file never stops a restore: the scan is restored
  * without hints and the record says why.
  */
+import { createHash } from 'node:crypto';
 import { readFile } from 'node:fs/promises';
 import { basename, dirname, extname, join, resolve } from 'node:path';
 import { resizePlane } from '../colour/index.js';
@@ -98,6 +99,18 @@ export async function readHints(path: string): Promise<Hints> {
     throw new KinhueError(ErrorCodes.UNREADABLE, 'the hints file could not be read', { file: path, hint: 'check that it exists and is readable', cause: error });
   }
   return parseHints(text, path);
+}
+
+/**
+ * SHA-256 of the hints file restore would use for a scan, or null when there is none, so a re-run
+ * redoes a scan whose hints were edited since it was restored.
+ *
+ * @example
+ *   await hintsFingerprint('scans/barn.jpg'); // 'a3f1...' or null
+ */
+export async function hintsFingerprint(source: string, hintsDir?: string, relative?: string): Promise<string | null> {
+  const found = await findHints(hintsCandidates(source, hintsDir, relative));
+  return found ? createHash('sha256').update(found.text).digest('hex') : null;
 }
 
 async function findHints(candidates: string[]): Promise<{ path: string; text: string } | undefined> {

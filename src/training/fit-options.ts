@@ -2,7 +2,7 @@
  * The options, progress events and result of a training run ({@link fit}), and how the options
  * resolve to the settings a run records and keeps when resumed.
  */
-import { DEFAULT_WORKING_SIZE, type NetworkOptions } from '../model/index.js';
+import { DEFAULT_WORKING_SIZE, REBALANCE_LAMBDA, type NetworkOptions } from '../model/index.js';
 import type { Evaluation } from './evaluation.js';
 
 export type FitMode = 'train' | 'tune';
@@ -30,6 +30,11 @@ export interface FitOptions {
   holdout?: number;
   /** Optimiser learning rate. Default 1e-3 for train, 1e-4 for tune. */
   learningRate?: number;
+  /**
+   * Class rebalancing lambda of Zhang et al. (2016): 0.5 (the paper's) favours vivid, rarer colours;
+   * towards 1 the weights even out and colours grow more cautious. Default 0.5.
+   */
+  rebalance?: number;
   /** Keep the encoder's weights fixed (tune). */
   freezeEncoder?: boolean;
   /** Continue the run whose checkpoint is in `out`. */
@@ -76,7 +81,7 @@ export interface FitResult {
   photos: { train: number; holdout: number; grey: number; unreadable: number };
   /** Held-out figures: the grey baseline, the model before training, and the model kept in `out`. */
   heldOut: { grey: Evaluation; before: Evaluation; after: Evaluation; keptStep: number };
-  options: { batch: number; crop: number; seed: number; holdout: number; learningRate: number; freezeEncoder: boolean; keep: 'last' | 'best'; photoSize: number };
+  options: { batch: number; crop: number; seed: number; holdout: number; learningRate: number; rebalance: number; freezeEncoder: boolean; keep: 'last' | 'best'; photoSize: number };
 }
 
 /** The summary file written beside the model. */
@@ -100,6 +105,7 @@ export function resolveSettings(options: FitOptions, mode: FitMode): FitSettings
     seed: options.seed ?? 1,
     holdout: options.holdout ?? 0.1,
     learningRate: options.learningRate ?? (mode === 'tune' ? 1e-4 : 1e-3),
+    rebalance: options.rebalance ?? REBALANCE_LAMBDA,
     freezeEncoder: options.freezeEncoder ?? false,
     keep: options.keep ?? (mode === 'tune' ? 'best' : 'last'),
     photoSize: options.photoSize ?? Math.max(DEFAULT_WORKING_SIZE, crop * 3),

@@ -12,6 +12,7 @@ import { ErrorCodes, KinhueError, UsageError } from '../errors.js';
 import { writeFileAtomic } from '../image/index.js';
 import {
   DEFAULT_TEMPERATURE,
+  REBALANCE_LAMBDA,
   abBins,
   binHistogram,
   createNetwork,
@@ -78,7 +79,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   if (mode === 'tune' && !options.from) throw new UsageError('tune needs a model to start from', 'pass --from <model folder>.');
 
   // The checkpoint's settings win on resume: the same run must continue.
-  const settings: FitSettings = saved?.options ?? resolveSettings(options, mode);
+  // (Checkpoints written before the rebalancing option existed used the paper's 0.5.)
+  const settings: FitSettings = saved ? { ...saved.options, rebalance: saved.options.rebalance ?? REBALANCE_LAMBDA } : resolveSettings(options, mode);
   const maxSteps = options.steps ?? Infinity;
   const maxSeconds = options.hours === undefined ? Infinity : options.hours * 3600;
   if (maxSteps === Infinity && maxSeconds === Infinity) throw new UsageError('no budget given', 'pass --hours, --steps or both.');
@@ -107,7 +109,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   const bins = abBins();
   const counts = new Float64Array(bins.count);
   for (const photo of set.train) binHistogram(photo.a, photo.b, bins, counts);
-  const classWeights = rebalanceWeights(counts);
+  const classWeights = rebalanceWeights(counts, settings.rebalance);
 
   const start = mode === 'tune' ? await loadModel(options.from!) : undefined;
   const network = start ? start.network : createNetwork(options.network);

@@ -10,9 +10,6 @@ import { formatPlan, formatSummary, progressText, summaryToJson } from '../resto
 
 const EXAMPLE = 'kinhue restore demo-photos/scans --out demo-restored';
 
-/** Exit code of a run stopped with Ctrl-C (128 + SIGINT, the shell convention). */
-export const INTERRUPTED_EXIT_CODE = 130;
-
 /** The `restore` command line as yargs parses it. */
 export interface RestoreArgs {
   inputs: string[];
@@ -153,6 +150,6 @@ export const command: CommandModule<object, RestoreArgs> = {
       if (summary.dryRun) console.log(formatPlan(summary.files));
       console.log(formatSummary(summary));
     }
-    process.exitCode = summary.interrupted ? INTERRUPTED_EXIT_CODE : summary.failed.length ? ExitCode.SOME_FAILED : ExitCode.OK;
+    process.exitCode = summary.interrupted ? ExitCode.INTERRUPTED : summary.failed.length ? ExitCode.SOME_FAILED : ExitCode.OK;
   },
 };
