@@ -28,7 +28,7 @@ export interface ToneReport {
   chroma95: number;
   /** Mean resultant length of the (a*, b*) vectors: 1 when every pixel has the same hue, near 0 when hues cancel. */
   hueConcentration: number;
-  /** 95th percentile of the tone curve's chroma at each pixel's L*: the colour left once pixels of equal lightness are averaged. */
+  /** 95th percentile of the tone curve's chroma at each pixel's L*: what colour is left once pixels of equal L* are averaged. */
   toneChroma95: number;
   /** Fraction of pixels whose (a*, b*) lies more than `curveTolerance` from the mean (a*, b*) of pixels of their L*. */
   offCurve: number;
@@ -84,10 +84,11 @@ export const MAX_CURVE_TOLERANCE = 12;
 /**
  * A colour photograph has this fraction of its pixels or more off the tone curve; a toned print
  * (smooth chroma over L*) almost none. 10% is "a meaningful part of the picture" (common practice).
- * Measured at 512 px: the toned demo scans under 1%; 25 of the training pool's warm or cool colour
- * photographs that an earlier rule (hue concentration and spread only) called toned, 14-69%. Five
- * near-monochrome ones (a blue dusk lake, a pale wood grain, two warm cloudscapes, a dim mountain)
- * lie at 1-7% and stay toned: by their colours alone they are what a toned print of them would be.
+ * Measured at 512 px: the toned demo scans under 1%; 26 of the 29 training-pool colour photographs
+ * that an earlier rule (hue concentration and spread only) called toned, 14-69% (the other three are
+ * found by the tests below). Five near-monochrome ones (a blue dusk lake, a pale wood grain, two warm
+ * cloudscapes, a dim mountain) lie at 0.6-6.5% and stay toned: by their colours alone they are what a
+ * toned print of them would be.
  */
 export const OFF_CURVE_FRACTION = 0.1;
 /**
@@ -128,7 +129,10 @@ const NEIGHBOUR_STEP = 3;
  * colour photograph (the upper part of the distribution) do not pass for noise.
  */
 const NOISE_QUANTILE = 0.1;
-/** That quantile of |e1 - e2| for two independent 2-D Gaussian errors of unit deviation per component: sqrt(2) (the difference) times the Rayleigh quantile sqrt(-2 ln(1 - q)). */
+/**
+ * That quantile of |e1 - e2| for two independent 2-D Gaussian errors of unit deviation per component:
+ * sqrt(2) (the difference) times the Rayleigh quantile sqrt(-2 ln(1 - q)).
+ */
 const NEIGHBOUR_QUANTILE_PER_SIGMA = Math.SQRT2 * Math.sqrt(-2 * Math.log(1 - NOISE_QUANTILE));
 /** At most this many pixels are visited (an even stride); enough for stable statistics. */
 const MAX_SAMPLES = 1 << 20;
@@ -160,7 +164,9 @@ export function classifyTone(lab: LabPlanes): ToneReport {
   const hue = (Math.atan2(meanB, meanA) * 180) / Math.PI;
   const curve = aroundCurve(lab, Math.max(1, Math.floor(n / CURVE_SAMPLES)), first);
 
-  const noiseSigma = curve.neighbours > 0 ? percentile(curve.neighbourHist, curve.neighbours, NOISE_QUANTILE) / NEIGHBOUR_QUANTILE_PER_SIGMA : 0;
+  const noiseSigma = curve.neighbours > 0
+    ? percentile(curve.neighbourHist, curve.neighbours, NOISE_QUANTILE) / NEIGHBOUR_QUANTILE_PER_SIGMA
+    : 0;
   const curveTolerance = Math.min(MAX_CURVE_TOLERANCE, Math.max(OFF_CURVE_DISTANCE, NOISE_MULTIPLE * noiseSigma));
   const report: ToneReport = {
     kind: 'colour',
