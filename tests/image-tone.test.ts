@@ -8,6 +8,7 @@ import sharp from 'sharp';
 import { describe, expect, it } from 'vitest';
 import { labToSrgb, srgbToLab, type LabPlanes } from '../src/colour/index.js';
 import { classifyTone, decodeImage, toneName, type ToneName } from '../src/image/index.js';
+import { random } from './helpers/random.js';
 
 const DEMO = join(dirname(fileURLToPath(import.meta.url)), '..', 'demo-photos');
 
@@ -40,16 +41,9 @@ function tonedImage(tint: (L: number, x: number, y: number) => [number, number])
 /** Strongest in the mid-tones, as toning is: paper white and deep black carry less tint. */
 const midtone = (L: number): number => Math.sin((Math.PI * L) / 100);
 
-/** Seeded Gaussian noise (mulberry32 and Box-Muller), so the noisy cases are the same on every run. */
+/** Seeded Gaussian noise (Box-Muller over the shared seeded generator), the same on every run. */
 function gaussian(seed: number): () => number {
-  let s = seed >>> 0;
-  const uniform = (): number => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
+  const uniform = random(seed);
   return () => Math.sqrt(-2 * Math.log(1 - uniform())) * Math.cos(2 * Math.PI * uniform());
 }
 
