@@ -6,24 +6,11 @@
  */
 import {
   bilateralGrid, bilateralUpsample, greyToLightness, lightnessToGrey, limitChroma, resizePlane, shrinkPlane, sliceRows,
-  type BilateralGrid,
+  type BilateralGrid, type WorkingColour,
 } from '../colour/index.js';
 import { predict, type KinhueModel } from '../model/index.js';
 
-/** Colour at the working size, as the refine step sees and changes it. */
-export interface WorkingColour {
-  width: number;
-  height: number;
-  /** L* averaged down to the working size (0-100). */
-  L: Float32Array;
-  /** Predicted a*, b* at the working size; a refine step may change them in place. */
-  a: Float32Array;
-  b: Float32Array;
-  /** Model confidence 0-1 at the model's output size (a quarter of the working size). */
-  confidence: Float32Array;
-  confidenceWidth: number;
-  confidenceHeight: number;
-}
+export type { WorkingColour };
 
 /** Adjusts the working-size colour in place before it is brought to full resolution. */
 export type RefineStep = (work: WorkingColour) => void | Promise<void>;

@@ -11,3 +11,4 @@ export * from './gamut.js';
 export * from './metrics.js';
 export * from './bilateral-upsample.js';
 export * from './chroma-limit.js';
+export * from './working-colour.js';

@@ -7,25 +7,12 @@
 import { createHash } from 'node:crypto';
 import { readFile } from 'node:fs/promises';
 import { basename, dirname, extname, join, resolve } from 'node:path';
-import { resizePlane } from '../colour/index.js';
+import { resizePlane, type WorkingColour } from '../colour/index.js';
 import { ErrorCodes, KinhueError, isKinhueError } from '../errors.js';
 import { parseHints, type Hints } from './hints-file.js';
 import { checkHintsSize, rasteriseHints } from './hint-raster.js';
 import { propagateHints } from './propagate.js';
 import { loadReference, transferReference, type ReferenceSet } from './reference.js';
-
-/** The working-size colour a refine step adjusts in place (the shape restore's `WorkingColour` has). */
-export interface GuidedColour {
-  width: number;
-  height: number;
-  L: Float32Array;
-  a: Float32Array;
-  b: Float32Array;
-  /** Model confidence 0-1, at `confidenceWidth` x `confidenceHeight`. */
-  confidence: Float32Array;
-  confidenceWidth: number;
-  confidenceHeight: number;
-}
 
 export interface GuidanceOptions {
   /** Folder of hints files; searched before the scan's own folder. */
@@ -62,7 +49,7 @@ export interface GuidanceRecord {
 
 export interface Guidance {
   /** The step to apply at the working size; absent when there is nothing to apply. */
-  refine?: (work: GuidedColour) => void;
+  refine?: (work: WorkingColour) => void;
   /** Filled in as the refine step runs. */
   record: GuidanceRecord;
 }
@@ -177,7 +164,7 @@ export async function prepareGuidance(source: string, width: number, height: num
   if (reference) record.reference = { files: reference.files, samples: reference.L.length, ...(reference.notes.length ? { notes: reference.notes } : {}) };
   if (!hints && !reference) return { record };
 
-  const refine = (work: GuidedColour): void => {
+  const refine = (work: WorkingColour): void => {
     const { width: w, height: h } = work;
     const confidence = work.confidenceWidth === w && work.confidenceHeight === h
       ? work.confidence
