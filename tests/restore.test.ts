@@ -249,11 +249,14 @@ describe('restore CLI', () => {
     await mkdir(scans, { recursive: true });
     await grey8Png(join(scans, 'a.png'));
     await writeFile(join(scans, 'b.jpg'), 'not an image');
-    const r = cli(['restore', scans, '--out', join(root, 'json-out'), '--model', modelDir, '--work-size', '64', '--jobs', '1', '--json']);
+    const r = cli(['restore', scans, '--out', join(root, 'json-out'), '--model', modelDir, '--work-size', '64', '--jobs', '1', '--json', '--verbose']);
     expect(r.status).toBe(1);
     const summary = JSON.parse(r.stdout);
     expect(summary).toMatchObject({ total: 2, done: 1, failed: [{ rel: 'b.jpg', code: 'KH_NOT_AN_IMAGE' }] });
     expect(r.stderr).toMatch(/b\.jpg/);
+    // --verbose names the compute backend (tfjs-node where it is installed, else wasm), as the record does.
+    const record = JSON.parse(await readFile(join(root, 'json-out', 'a.kinhue.json'), 'utf8'));
+    expect(r.stderr).toContain(`backend: ${record.backend}`);
   });
 
   it('stops cleanly on Ctrl-C and the next run finishes the rest', async () => {

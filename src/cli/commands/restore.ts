@@ -26,6 +26,7 @@ export interface RestoreArgs {
   json: boolean;
   hints?: string | false;
   reference?: string;
+  verbose?: boolean;
 }
 
 /**
@@ -101,6 +102,7 @@ export const command: CommandModule<object, RestoreArgs> = {
           runStart = performance.now();
           break;
         case 'backend':
+          if (argv.verbose) progress.log(`backend: ${event.name} (TensorFlow.js)`);
           if (event.warning) progress.log(`warning: ${event.warning}`);
           break;
         case 'done':
