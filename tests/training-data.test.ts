@@ -136,9 +136,12 @@ describe('photo sets', () => {
     await png(join(photos, 'sepia.png'), 80, 60, (x) => [Math.round(90 + x * 2), Math.round(70 + x * 1.8), Math.round(50 + x * 1.5)]);
     await writeFile(join(photos, 'broken.jpg'), 'this is text, not a JPEG');
     await writeFile(join(photos, 'notes.txt'), 'sources');
+    // A photo without an extension, as some scanners write them: still read.
+    await png(join(photos, 'scan0007'), 80, 60, scene(2));
 
     const set = await loadPhotoSet([photos], { maxSide: 40, seed: 1, holdout: 0.1 });
-    expect(set.train.length + set.holdout.length).toBe(5);
+    expect(set.train.length + set.holdout.length).toBe(6);
+    expect([...set.train, ...set.holdout].some((p) => p.file.endsWith('scan0007'))).toBe(true);
     expect(set.holdout.length).toBe(2); // at least 2 held out
     expect(set.grey.map((f) => f.split('/').pop())).toEqual(['grey.png', 'sepia.png']);
     expect(set.unreadable.map((u) => u.file.split('/').pop())).toEqual(['broken.jpg']);

@@ -111,6 +111,20 @@ describe('fit: resume', () => {
     expect(summary.heldOut.grey.ciede2000).toBeGreaterThan(0);
   });
 
+  it('a learning rate given on resume applies from the next step and is recorded', async () => {
+    const photos = join(dir, 'scenes');
+    const base = { ...TINY, photos: [photos], seed: 3, learningRate: 3e-3, evalEvery: 100 };
+    await fit({ ...base, out: join(dir, 'same'), steps: 4 });
+    await fit({ ...base, out: join(dir, 'lower'), steps: 2 });
+    const result = await fit({ ...base, out: join(dir, 'lower'), steps: 4, resume: true, learningRate: 1e-4 });
+    expect(result.options.learningRate).toBe(1e-4);
+    expect(result.options.learningRateChanges).toEqual([{ step: 2, learningRate: 1e-4 }]);
+    const lower = (await loadCheckpoint(join(dir, 'lower', CHECKPOINT_FILE))) as { trainer: { learningRate: number }; weights: Float32Array[] };
+    expect(lower.trainer.learningRate).toBe(1e-4);
+    const same = await weightsOf(join(dir, 'same'));
+    expect(lower.weights.some((w, i) => !Buffer.from(w.buffer).equals(Buffer.from(same.weights[i]!.buffer)))).toBe(true);
+  });
+
   it('refuses to start over an existing run without --resume, and to resume where there is none', async () => {
     const photos = join(dir, 'scenes');
     await expect(fit({ ...TINY, photos: [photos], out: join(dir, 'whole'), steps: 1 })).rejects.toMatchObject({ code: 'KH_USAGE' });

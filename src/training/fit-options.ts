@@ -28,7 +28,10 @@ export interface FitOptions {
   seed?: number;
   /** Fraction of the photos held out for evaluation. Default 0.1 (at least 2 photos). */
   holdout?: number;
-  /** Optimiser learning rate. Default 1e-3 for train, 1e-4 for tune. */
+  /**
+   * Optimiser learning rate. Default 1e-3 for train, 1e-4 for tune. Given with `resume`, it replaces the
+   * checkpoint's from the next step on (a step-down schedule); the change is recorded.
+   */
   learningRate?: number;
   /**
    * Class rebalancing lambda of Zhang et al. (2016): 0.5 (the paper's) favours vivid, rarer colours;
@@ -81,7 +84,19 @@ export interface FitResult {
   photos: { train: number; holdout: number; grey: number; unreadable: number };
   /** Held-out figures: the grey baseline, the model before training, and the model kept in `out`. */
   heldOut: { grey: Evaluation; before: Evaluation; after: Evaluation; keptStep: number };
-  options: { batch: number; crop: number; seed: number; holdout: number; learningRate: number; rebalance: number; freezeEncoder: boolean; keep: 'last' | 'best'; photoSize: number };
+  options: {
+    batch: number;
+    crop: number;
+    seed: number;
+    holdout: number;
+    learningRate: number;
+    /** Learning rates set on resume, and the step from which each applied. */
+    learningRateChanges?: { step: number; learningRate: number }[];
+    rebalance: number;
+    freezeEncoder: boolean;
+    keep: 'last' | 'best';
+    photoSize: number;
+  };
 }
 
 /** The summary file written beside the model. */

@@ -81,6 +81,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   // The checkpoint's settings win on resume: the same run must continue.
   // (Checkpoints written before the rebalancing option existed used the paper's 0.5.)
   const settings: FitSettings = saved ? { ...saved.options, rebalance: saved.options.rebalance ?? REBALANCE_LAMBDA } : resolveSettings(options, mode);
+  // (A learning rate given with --resume is the one setting that may change: see FitOptions.learningRate.)
   const maxSteps = options.steps ?? Infinity;
   const maxSeconds = options.hours === undefined ? Infinity : options.hours * 3600;
   if (maxSteps === Infinity && maxSeconds === Infinity) throw new UsageError('no budget given', 'pass --hours, --steps or both.');
@@ -140,6 +141,11 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   if (saved) {
     setWeights(network, saved.weights);
     trainer.setState(saved.trainer as TrainerState);
+    if (options.learningRate !== undefined && options.learningRate !== settings.learningRate) {
+      settings.learningRateChanges = [...(settings.learningRateChanges ?? []), { step: saved.step, learningRate: options.learningRate }];
+      settings.learningRate = options.learningRate;
+    }
+    trainer.learningRate = settings.learningRate;
     rng.setState(saved.rng);
     sampler = new CropSampler(set.train, rng, saved.sampler);
     step = saved.step;

@@ -68,10 +68,10 @@ const IMAGE_EXTENSIONS = new Set(['.jpg', '.jpeg', '.jpe', '.png', '.tif', '.tif
  *   console.log(set.train.length, set.holdout.length, set.grey.length);
  */
 export async function loadPhotoSet(paths: string[], options: PhotoSetOptions): Promise<PhotoSet> {
-  const { files, otherFiles } = await findFiles(paths, options.exclude);
+  const { files } = await findFiles(paths, options.exclude);
   const where = paths.join(', ');
   if (files.length === 0) {
-    throw new KinhueError(ErrorCodes.BAD_DATA, otherFiles > 0 ? `no image files among ${otherFiles} files` : 'no files found', {
+    throw new KinhueError(ErrorCodes.BAD_DATA, 'no files found', {
       file: where,
       hint: 'point kinhue at a folder of colour photographs (JPEG, PNG, TIFF or WebP).',
     });
@@ -80,7 +80,7 @@ export async function loadPhotoSet(paths: string[], options: PhotoSetOptions): P
   const limit = pLimit(options.concurrency ?? 2);
   const unreadable: SkippedFile[] = [];
   const grey: string[] = [];
-  let skippedOther = otherFiles;
+  let skippedOther = 0;
   let done = 0;
   const photos = (
     await Promise.all(
@@ -155,9 +155,8 @@ interface FoundFile {
   named: boolean;
 }
 
-async function findFiles(paths: string[], exclude?: string): Promise<{ files: FoundFile[]; otherFiles: number }> {
+async function findFiles(paths: string[], exclude?: string): Promise<{ files: FoundFile[] }> {
   const files: FoundFile[] = [];
-  let otherFiles = 0;
   const skip = exclude ? resolve(exclude) : undefined;
   const walk = async (dir: string): Promise<void> => {
     if (skip && (dir === skip || dir.startsWith(skip + sep))) return;
@@ -167,8 +166,9 @@ async function findFiles(paths: string[], exclude?: string): Promise<{ files: Fo
       const full = join(dir, entry.name);
       if (entry.isDirectory()) await walk(full);
       else if (entry.isFile()) {
-        if (IMAGE_EXTENSIONS.has(extname(entry.name).toLowerCase())) files.push({ file: full, named: true });
-        else otherFiles++;
+        // Every file is tried (a scanner may write photos without an extension); only those named
+        // like images count as unreadable when they fail.
+        files.push({ file: full, named: IMAGE_EXTENSIONS.has(extname(entry.name).toLowerCase()) });
       }
     }
   };
@@ -189,5 +189,5 @@ async function findFiles(paths: string[], exclude?: string): Promise<{ files: Fo
   }
   // One entry per file even when paths overlap.
   const seen = new Set<string>();
-  return { files: files.filter((f) => (seen.has(f.file) ? false : (seen.add(f.file), true))), otherFiles };
+  return { files: files.filter((f) => (seen.has(f.file) ? false : (seen.add(f.file), true))) };
 }
