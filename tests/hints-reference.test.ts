@@ -1,14 +1,17 @@
 // Reference photographs (Welsh, Ashikhmin & Mueller 2002): colour carried over by matching luminance and
 // local texture, blended with the model's prediction by its confidence.
+import { readdirSync } from 'node:fs';
 import { mkdir, mkdtemp } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import sharp from 'sharp';
-import { describe, expect, it } from 'vitest';
-import { workingLab } from '../src/batch/working-lab.js';
-import { meanAbError } from '../src/colour/index.js';
+import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { colouriseLightness } from '../src/batch/colourise.js';
+import { meanAbError, srgbToLab } from '../src/colour/index.js';
 import { decodeImage, type Pixels } from '../src/image/index.js';
 import { loadReference, localDeviation, prepareGuidance } from '../src/hints/index.js';
+import type { KinhueModel } from '../src/model/index.js';
+import { loadShippedModel } from './helpers/shipped-model.js';
 
 /** A crop of interleaved pixels (fractions of the width and height). */
 function crop(px: Pixels, x0: number, y0: number, x1: number, y1: number): Pixels {
@@ -23,12 +26,18 @@ function crop(px: Pixels, x0: number, y0: number, x1: number, y1: number): Pixel
 }
 
 describe('reference photographs', () => {
-  // Real photographs: the demo album's colour originals (demo-photos/SOURCES.md). The scan is the right and
-  // upper part of a photograph, taken to L* alone; the reference is the left and lower part of the same
-  // photograph in colour: the same scene under a different crop (about half of each is shared).
-  // "The model alone" is a flat grey prediction at confidence 0.25 (no trained model ships with the tests;
-  // an untrained network predicts close to grey).
-  const photos = ['wrenfold-01-hill-pasture.jpg', 'wrenfold-04-hill-pony.jpg', 'wrenfold-07-orchard-clocks.jpg'];
+  // The issue's test: "a reference of the same scene under a different crop brings the mean a*b* error below
+  // the model alone". Real photographs: the demo album's colour originals (demo-photos/SOURCES.md), held out of
+  // the shipped model's training; the same rule as the hints test picks "a few": every other photo in name
+  // order from the first (01, 03, 05, 07). The scan is the right and upper part of a photograph, taken to L*
+  // alone; the reference is the left and lower part of the same photograph in colour: the same scene under a
+  // different crop (about half of each is shared). Both runs colour the scan as restore does (batch's
+  // colouriseLightness at the model's working size, carried to full size): "the model alone" without a refine
+  // step, "with the reference" with the one prepareGuidance builds for --reference.
+  const photos = readdirSync('demo-photos/originals').filter((f) => f.endsWith('.jpg')).sort().filter((_, k) => k % 2 === 0);
+  let model: KinhueModel;
+  beforeAll(async () => { model = await loadShippedModel(); });
+  afterAll(() => model?.network.dispose());
 
   it.each(photos)('%s: a reference of the same scene lowers the mean a*b* error below the model alone', async (name) => {
     const dir = await mkdtemp(join(tmpdir(), 'kinhue-reference-'));
@@ -39,21 +48,24 @@ describe('reference photographs', () => {
     await sharp(file).extract({ left, top, width: Math.round(pixels.width * 0.7), height: pixels.height - top }).png().toFile(refPath);
 
     const scan = crop(pixels, 0.3, 0, 1, 0.85);
-    const s = 384 / Math.max(scan.width, scan.height);
-    const w = Math.round(scan.width * s), h = Math.round(scan.height * s);
-    const truth = workingLab(scan, w, h);
-    const grey = { L: truth.L, a: new Float32Array(w * h), b: new Float32Array(w * h) };
-    const alone = meanAbError(grey, truth);
+    const n = scan.width * scan.height;
+    const rgb = new Uint8Array(n * 3);
+    for (let i = 0; i < n; i++) for (let c = 0; c < 3; c++) rgb[i * 3 + c] = scan.data[i * scan.channels + c]!;
+    const truth = srgbToLab(rgb, 3);
+    const workSize = model.meta.workingSize;
 
     const guidance = await prepareGuidance(join(dir, 'scan.png'), scan.width, scan.height, { reference: refPath });
     expect(guidance.record.reference).toMatchObject({ files: [refPath], samples: 256 });
-    const work = {
-      width: w, height: h, L: truth.L, a: new Float32Array(w * h), b: new Float32Array(w * h),
-      confidence: new Float32Array(w * h).fill(0.25), confidenceWidth: w, confidenceHeight: h,
-    };
-    guidance.refine!(work);
-    const withReference = meanAbError({ L: truth.L, a: work.a, b: work.b }, truth);
-    expect(withReference).toBeLessThan(alone);
+    const alone = await colouriseLightness(truth.L, scan.width, scan.height, model, { workSize });
+    const guided = await colouriseLightness(truth.L, scan.width, scan.height, model, { workSize, refine: guidance.refine });
+    const modelError = meanAbError({ L: truth.L, a: alone.a, b: alone.b }, truth);
+    const referenceError = meanAbError({ L: truth.L, a: guided.a, b: guided.b }, truth);
+    // Measured when written, mean a*b* error, model alone -> with the reference, photos 01-07: shipped model of
+    // commit 0776d48 (2426 steps): 19.5 -> 17.2, 16.7 -> 8.8, 26.1 -> 14.8, 31.0 -> 21.9, 15.0 -> 10.4, 24.3 -> 14.0,
+    // 16.8 -> 10.3; the model of commit 4ce7b29 (691 steps): 30.0 -> 21.0, 29.5 -> 9.2, 25.5 -> 10.0, 25.5 -> 18.5,
+    // 27.0 -> 12.1, 23.9 -> 13.1, 18.4 -> 9.0. Some states of the model in training did better alone on 01
+    // (13.7 -> 15.4; 16.0 -> 16.0).
+    expect(referenceError).toBeLessThan(modelError);
   });
 
   it('a grey reference is refused with a message naming it; a toned one is noted', async () => {

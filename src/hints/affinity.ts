@@ -84,6 +84,38 @@ export function levinAffinity(L: Float32Array, width: number, height: number): A
 }
 
 /**
+ * Cuts the graph where a colour prediction changes (our addition to Levin et al., whose weights see luminance
+ * only): each weight is multiplied by exp(-|delta a*b*|^2 / 2 scale^2) over the predicted a*b* of its two pixels, so
+ * a hint stops where the model sees another object even when luminance runs on (a green field meeting orange
+ * trees of the same lightness). A flat prediction (a grey, untrained model) leaves the graph as it was.
+ *
+ * @example
+ *   const graph = withPredictionEdges(levinAffinity(L, w, h), predictedA, predictedB, PREDICTION_EDGE_SCALE);
+ */
+export function withPredictionEdges(graph: Affinity, a: Float32Array, b: Float32Array, scale: number): Affinity {
+  if (!(scale > 0)) return graph;
+  const { width, height } = graph;
+  const k = 1 / (2 * scale * scale);
+  const factor = (i: number, j: number): number => {
+    const da = a[i]! - a[j]!, db = b[i]! - b[j]!;
+    return Math.exp(-(da * da + db * db) * k);
+  };
+  const east = graph.east.slice(), south = graph.south.slice(), southEast = graph.southEast.slice(), southWest = graph.southWest.slice();
+  for (let y = 0; y < height; y++) {
+    for (let x = 0; x < width; x++) {
+      const i = y * width + x;
+      if (x + 1 < width) east[i]! *= factor(i, i + 1);
+      if (y + 1 < height) {
+        south[i]! *= factor(i, i + width);
+        if (x + 1 < width) southEast[i]! *= factor(i, i + width + 1);
+        if (x > 0) southWest[i]! *= factor(i, i + width - 1);
+      }
+    }
+  }
+  return { width, height, east, south, southEast, southWest };
+}
+
+/**
  * The graph of 2 x 2 blocks: the weight between two blocks is the sum of the fine weights that cross
  * between them (the Galerkin product with piecewise-constant interpolation), halved because that product
  * doubles a 2-D diffusion's strength relative to area terms. Edges stay barriers: a block pair is only

@@ -11,7 +11,7 @@ import { resizePlane, type WorkingColour } from '../colour/index.js';
 import { ErrorCodes, KinhueError, isKinhueError } from '../errors.js';
 import { parseHints, type Hints } from './hints-file.js';
 import { checkHintsSize, rasteriseHints } from './hint-raster.js';
-import { propagateHints } from './propagate.js';
+import { PREDICTION_EDGE_SCALE, propagateHints } from './propagate.js';
 import { loadReference, transferReference, type ReferenceSet } from './reference.js';
 
 export interface GuidanceOptions {
@@ -183,8 +183,9 @@ export async function prepareGuidance(source: string, width: number, height: num
     if (hints) {
       const t = performance.now();
       const drawn = rasteriseHints(hints, work.L, w, h, width, height);
+      // The prediction's own colour boundaries bound the hints too (our addition; see withPredictionEdges).
       const result = propagateHints({ width: w, height: h, L: work.L, a: work.a, b: work.b, confidence }, drawn.constraints,
-        { priorWeight: options.priorWeight });
+        { priorWeight: options.priorWeight, predictionEdges: PREDICTION_EDGE_SCALE });
       work.a.set(result.a);
       work.b.set(result.b);
       Object.assign(record.hints!, {

@@ -1,12 +1,13 @@
 /**
  * Hint propagation after Levin, Lischinski & Weiss (2004): minimise, over a*b*,
  *   sum over edges w_rs (U_r - U_s)^2 + sum over pixels lambda c_r (U_r - P_r)^2,
- * with hinted pixels held fixed, where w are the luminance weights of `affinity.ts`, P the model's
- * prediction and c its confidence. At the optimum each free pixel is the weighted mean of its neighbours
- * and its prediction, so hints fill the regions they sit in while, away from them, the prediction holds.
+ * with hinted pixels held fixed, where w are the luminance weights of `affinity.ts` (for restore also cut
+ * where the prediction's colour changes: `withPredictionEdges`), P the model's prediction and c its confidence.
+ * At the optimum each free pixel is the weighted mean of its neighbours and its prediction, so hints fill the
+ * regions they sit in while, away from them, the prediction holds.
  * Solved by conjugate gradients preconditioned with a multigrid V-cycle (`multigrid.ts`).
  */
-import { levinAffinity } from './affinity.js';
+import { levinAffinity, withPredictionEdges } from './affinity.js';
 import { MultigridSolver } from './multigrid.js';
 
 /** Hard constraints at the working resolution: `fixed[i]` = 1 where pixel i is hinted. */
@@ -37,6 +38,11 @@ export interface PropagationOptions {
   tolerance?: number;
   /** Iteration cap (default 100). */
   maxIterations?: number;
+  /**
+   * Also cut the graph where the prediction's a*b* changes between neighbours (withPredictionEdges), with this
+   * scale in a*b* units per pixel; 0 or absent: luminance only, as Levin et al. Restore uses PREDICTION_EDGE_SCALE.
+   */
+  predictionEdges?: number;
 }
 
 export interface PropagationResult {
@@ -51,6 +57,13 @@ export interface PropagationResult {
 // Common practice, tuned on kinhue's own tests: weak enough that a hint colours the whole region it sits in,
 // strong enough that regions without hints keep the prediction.
 export const DEFAULT_PRIOR_WEIGHT = 1;
+/**
+ * Chosen on the demo album (common practice: no source), over four states of the shipped model and two draws of
+ * 10 random hints: a step of one a*b* unit between neighbouring working pixels, which the model's smooth output
+ * only makes at its colour boundaries, keeps 14% of the weight. The smallest PSNR gain of 10 hints over the model
+ * alone across the seven photos rose from 1.1-2.5 dB to 2.1-3.0 dB (one draw) and from 0.0-2.2 to 0.8-1.9 dB (the other).
+ */
+export const PREDICTION_EDGE_SCALE = 0.5;
 const MIN_CONFIDENCE = 1e-3;
 
 /**
@@ -64,7 +77,7 @@ export function propagateHints(input: PropagationInput, hints: HintConstraints, 
   const { width: w, height: h } = input;
   const n = w * h;
   if (!hints.fixed.some((v) => v)) return { a: input.a.slice(), b: input.b.slice(), iterations: 0, residual: 0 };
-  const graph = levinAffinity(input.L, w, h);
+  const graph = withPredictionEdges(levinAffinity(input.L, w, h), input.a, input.b, options.predictionEdges ?? 0);
   // The prior's total weight over the image, spread per pixel, so hints act alike at any working size.
   const lambda = (options.priorWeight ?? DEFAULT_PRIOR_WEIGHT) / n;
   const east = new Float64Array(n), south = new Float64Array(n), southEast = new Float64Array(n), southWest = new Float64Array(n);
