@@ -105,8 +105,8 @@ npm run train:default
 ${trainDefault.split(' && ').join('\n')}
 \`\`\`
 - ${summary.steps} steps in ${f(hours, 2)} hours of training (one core of a shared 2-core machine, WebAssembly backend), Adam with
-  learning rate ${learningRates}, seed ${summary.options.seed}. The time budget makes the step count depend on the machine;
-  \`--steps ${summary.steps}\` in place of \`--hours\` gives these exact weights again (a seeded run is repeatable step for step).
+  learning rate ${learningRates}, seed ${summary.options.seed}. The run was given \`--hours\`; the recipe names its step count instead, because
+  a time budget makes the count depend on the machine, while a seeded run is repeatable step for step.
 - Class rebalancing (Zhang et al. 2016) with lambda ${rebalance} and sigma 5, from the training photos' a*b* bin frequencies.${rebalance === 0.5 ? '' : `
   Two stronger settings were tried first on the same pool and stopped early, both with colours more vivid than right:
   the paper's lambda 0.5 (learning rate 0.001; an earlier tone classifier held out 16 photos): after 800 steps held-out
