@@ -71,7 +71,7 @@ describe('planOutputs', () => {
 
 describe('manifest', () => {
   const settings: RestoreSettings = {
-    model: 'm', weightsSha256: 'abc', workSize: 512, temperature: 0.38, format: 'same', quality: null, confidence: true,
+    model: 'm', weightsSha256: 'abc', workSize: 512, decoding: 'least-ciede2000', temperature: 0.38, format: 'same', quality: null, confidence: true,
   };
 
   it('keys settings stably and differently when a setting changes', () => {

@@ -65,7 +65,9 @@ describe('model folders', () => {
     expect(Array.from(model.classWeights)).toEqual(Array.from(classWeights));
     expect(Array.from(model.bins.a)).toEqual(Array.from(bins.a));
     const L = plane(40, 24);
-    const p1 = predict(net, L, 40, 24);
+    expect(model.meta.decoding).toBe('least-ciede2000');
+    // The loaded model decodes with its own class weights; the bare network is given the same ones.
+    const p1 = predict(net, L, 40, 24, { classWeights });
     const p2 = predict(model, L, 40, 24);
     expect(Array.from(p2.a)).toEqual(Array.from(p1.a));
     expect(Array.from(p2.confidence)).toEqual(Array.from(p1.confidence));

@@ -208,6 +208,8 @@ describe('restore CLI', () => {
   it('checks its command line without side effects (check is pure)', () => {
     expect(check({ inputs: ['scans/'], out: 'restored' })).toBe(true);
     expect(check({ inputs: ['a.tif'], out: 'o', jobs: 2, 'work-size': 512, temperature: 0.38, quality: 90, format: 'png' })).toBe(true);
+    expect(check({ inputs: ['a'], out: 'o', decoding: 'annealed-mean', temperature: 0.5 })).toBe(true);
+    expect(check({ inputs: ['a'], out: 'o', decoding: 'least-ciede2000' })).toBe(true);
     for (const bad of [
       { inputs: [], out: 'o' },
       { inputs: ['a'], out: '' },
@@ -216,6 +218,8 @@ describe('restore CLI', () => {
       { inputs: ['a'], out: 'o', 'work-size': 32 },
       { inputs: ['a'], out: 'o', temperature: 0 },
       { inputs: ['a'], out: 'o', temperature: 1.5 },
+      { inputs: ['a'], out: 'o', decoding: 'brightest' },
+      { inputs: ['a'], out: 'o', decoding: 'least-ciede2000', temperature: 0.5 },
       { inputs: ['a'], out: 'o', quality: 101 },
     ]) {
       expect(() => check(bad as never), JSON.stringify(bad)).toThrow(UsageError);

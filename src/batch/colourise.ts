@@ -8,7 +8,7 @@ import {
   bilateralGrid, bilateralUpsample, greyToLightness, lightnessToGrey, limitChroma, resizePlane, shrinkPlane, sliceRows,
   type BilateralGrid, type WorkingColour,
 } from '../colour/index.js';
-import { predict, type KinhueModel } from '../model/index.js';
+import { predict, type Decoding, type KinhueModel } from '../model/index.js';
 
 export type { WorkingColour };
 
@@ -18,6 +18,8 @@ export type RefineStep = (work: WorkingColour) => void | Promise<void>;
 export interface ColouriseOptions {
   /** Long side in pixels at which the model runs (never above the image's own). Default 512. */
   workSize?: number;
+  /** How colour is chosen from the prediction. Default: the model's. */
+  decoding?: Decoding;
   /** Annealed-mean temperature. Default: the model's. */
   temperature?: number;
   /** Applied at the working size before upsampling. */
@@ -50,7 +52,7 @@ export async function workingColour(
   model: KinhueModel,
   options: ColouriseOptions = {},
 ): Promise<WorkingColour> {
-  const p = await predict(model, L, width, height, { temperature: options.temperature });
+  const p = await predict(model, L, width, height, { decoding: options.decoding, temperature: options.temperature });
   const guide = shrinkPlane(L, width, height, p.width, p.height);
   const { a, b } = bilateralUpsample(guide, p.a, p.b, p.width, p.height, L, width, height, {
     ...STAGE1,

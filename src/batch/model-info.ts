@@ -1,6 +1,6 @@
 /**
  * What a run needs to know about its model before any worker starts: its name, weights hash, default
- * temperature and working size, from its metadata file, with the weights checked against their hash so
+ * decoding, temperature and working size, from its metadata file, with the weights checked against their hash so
  * a damaged folder fails the run at once. No network is built here (the workers load their own), so the
  * main thread never starts a TensorFlow.js backend.
  */
@@ -8,12 +8,13 @@ import { createHash } from 'node:crypto';
 import { readFile } from 'node:fs/promises';
 import { join, resolve } from 'node:path';
 import { ModelError } from '../errors.js';
-import { METADATA_FILE, WEIGHTS_FILE, parseMetadata } from '../model/index.js';
+import { METADATA_FILE, WEIGHTS_FILE, parseMetadata, type Decoding } from '../model/index.js';
 
 export interface ModelInfo {
   dir: string;
   name: string;
   weightsSha256: string;
+  decoding: Decoding;
   temperature: number;
   /** The working size the model was trained for. */
   workingSize: number;
@@ -53,5 +54,5 @@ export async function readModelInfo(dir: string): Promise<ModelInfo> {
       hint: 'restore the folder from where it came (for the shipped model: reinstall kinhue), or train or tune it again',
     });
   }
-  return { dir: abs, name: meta.name, weightsSha256: meta.weightsSha256, temperature: meta.temperature, workingSize: meta.workingSize };
+  return { dir: abs, name: meta.name, weightsSha256: meta.weightsSha256, decoding: meta.decoding, temperature: meta.temperature, workingSize: meta.workingSize };
 }

@@ -5,6 +5,7 @@
 import { createHash } from 'node:crypto';
 import { availableParallelism } from 'node:os';
 import type { OutputFormat } from '../image/index.js';
+import type { Decoding } from '../model/index.js';
 
 /** `same` keeps each source's own format (falling back to PNG for formats kinhue does not write). */
 export type FormatChoice = 'same' | OutputFormat;
@@ -25,6 +26,8 @@ export interface RestoreOptions {
   jobs?: number;
   /** Long side in pixels at which the model runs. Default: the model's working size (512 for the shipped one). */
   workSize?: number;
+  /** How colour is chosen from the model's prediction. Default: the model's own; annealed mean when only a temperature is given. */
+  decoding?: Decoding;
   /** Annealed-mean temperature. Default: the model's own. */
   temperature?: number;
   /** Output format. Default 'same'. */
@@ -57,6 +60,8 @@ export interface RestoreSettings {
   model: string;
   weightsSha256: string;
   workSize: number;
+  decoding: Decoding;
+  /** Used by annealed-mean decoding only. */
   temperature: number;
   format: FormatChoice;
   quality: number | null;

@@ -131,6 +131,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
     ? async (w) => { await options.refine?.(w); guidance.refine?.(w); }
     : undefined;
   const work = await workingColour(Lwork, ws.width, ws.height, model, {
+    decoding: settings.decoding,
     temperature: settings.temperature,
     refine,
   });

@@ -104,6 +104,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     model: model.name,
     weightsSha256: model.weightsSha256,
     workSize: options.workSize ?? model.workingSize,
+    decoding: options.decoding ?? (options.temperature !== undefined ? 'annealed-mean' : model.decoding),
     temperature: options.temperature ?? model.temperature,
     format: options.format ?? 'same',
     quality: options.quality ?? null,

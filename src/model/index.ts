@@ -4,6 +4,7 @@ export * from './backend.js';
 export * from './wasm-kernels.js';
 export * from './bins.js';
 export * from './encoding.js';
+export * from './decoding.js';
 export * from './network.js';
 export * from './loss.js';
 export * from './train-step.js';

@@ -4,6 +4,7 @@
  */
 import { ModelError } from '../errors.js';
 import type { AbBins } from './bins.js';
+import { DECODINGS, type Decoding } from './decoding.js';
 
 /** File names inside a model folder. */
 export const METADATA_FILE = 'kinhue-model.json';
@@ -28,6 +29,8 @@ export interface ModelMetadata {
   /** ISO 8601 time the folder was written. */
   savedAt: string;
   bins: { grid: number; count: number; a: number[]; b: number[] };
+  /** How colour is chosen from the predicted distribution ('annealed-mean' for folders that do not say). */
+  decoding: Decoding;
   /** Annealed-mean temperature used unless the user picks another. */
   temperature: number;
   /** Long side in pixels that scans are resized to before prediction. */
@@ -45,6 +48,7 @@ export interface ModelMetadata {
 /** What a caller of saveModel supplies; the rest is filled in. */
 export interface ModelMetadataInput {
   name?: string;
+  decoding?: Decoding;
   temperature?: number;
   workingSize?: number;
   bins?: AbBins;
@@ -82,6 +86,9 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
     fail(dir, `${METADATA_FILE} has no valid a*b* bins`);
   }
   if (typeof m.temperature !== 'number' || !(m.temperature > 0)) fail(dir, `${METADATA_FILE} has no valid temperature`);
+  // Folders written before the choice existed were decoded by annealed mean.
+  const decoding = m.decoding ?? 'annealed-mean';
+  if (!DECODINGS.includes(decoding as Decoding)) fail(dir, `${METADATA_FILE} names an unknown decoding ${JSON.stringify(m.decoding)}`);
   if (typeof m.workingSize !== 'number' || !(m.workingSize >= 16)) fail(dir, `${METADATA_FILE} has no valid working size`);
   if (typeof m.weightsSha256 !== 'string' || !/^[0-9a-f]{64}$/.test(m.weightsSha256)) fail(dir, `${METADATA_FILE} has no weights SHA-256`);
   if (!isNumberArray(m.classWeights) || (m.classWeights.length !== 0 && m.classWeights.length !== bins.count)) {
@@ -98,6 +105,7 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
     kinhueVersion: typeof m.kinhueVersion === 'string' ? m.kinhueVersion : 'unknown',
     savedAt: typeof m.savedAt === 'string' ? m.savedAt : '',
     bins: { grid: bins.grid as number, count: bins.count as number, a: bins.a as number[], b: bins.b as number[] },
+    decoding: decoding as Decoding,
     temperature: m.temperature,
     workingSize: m.workingSize,
     network: { input: 'L/100-0.5', multiple: network.multiple as number, outputStride: network.outputStride as number },

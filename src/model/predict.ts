@@ -1,9 +1,10 @@
 /**
  * From an L* plane to a*b* and confidence at a quarter of its resolution: pad to the network's
- * multiple (edge pixels repeated), run the network, crop back, decode by annealed mean.
+ * multiple (edge pixels repeated), run the network, crop back, decode (see decoding.ts).
  */
 import * as tf from '@tensorflow/tfjs';
 import { type AbBins, abBins } from './bins.js';
+import { annealedMeanTensor, DEFAULT_DECODING, leastCiede2000, type Decoding } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
 import { NETWORK_MULTIPLE, OUTPUT_STRIDE, toNetworkInput } from './network.js';
 import type { KinhueModel } from './storage.js';
@@ -15,8 +16,15 @@ import type { KinhueModel } from './storage.js';
 export const CONFIDENCE_TEMPERATURE = 1;
 
 export interface PredictOptions {
+  /**
+   * How a colour is chosen from the predicted distribution. Default: the model's own; 'annealed-mean'
+   * when only a temperature is given.
+   */
+  decoding?: Decoding;
   /** Annealed-mean temperature; default the model's own (0.38 unless trained otherwise). */
   temperature?: number;
+  /** Rebalancing weights a bare network was trained with (a loaded model brings its own). */
+  classWeights?: ArrayLike<number>;
 }
 
 export interface Prediction {
@@ -43,10 +51,21 @@ function padPlane(src: Float32Array, width: number, height: number, pw: number, 
   return out;
 }
 
-/** The network, bins and default temperature of a model or a bare network (bins from abBins()). */
-function parts(model: KinhueModel | tf.LayersModel): { network: tf.LayersModel; bins: AbBins; temperature: number } {
-  if (model instanceof tf.LayersModel) return { network: model, bins: abBins(), temperature: DEFAULT_TEMPERATURE };
-  return { network: model.network, bins: model.bins, temperature: model.meta.temperature };
+interface Parts {
+  network: tf.LayersModel;
+  bins: AbBins;
+  decoding: Decoding;
+  temperature: number;
+  classWeights: ArrayLike<number>;
+}
+
+/** The network, bins and decoding defaults of a model or a bare network (bins from abBins()). */
+function parts(model: KinhueModel | tf.LayersModel): Parts {
+  if (model instanceof tf.LayersModel) {
+    return { network: model, bins: abBins(), decoding: DEFAULT_DECODING, temperature: DEFAULT_TEMPERATURE, classWeights: [] };
+  }
+  const { network, bins, meta, classWeights } = model;
+  return { network, bins, decoding: meta.decoding, temperature: meta.temperature, classWeights };
 }
 
 /**
@@ -65,8 +84,11 @@ export function predict(
   if (!(width >= 1 && height >= 1) || L.length !== width * height) {
     throw new RangeError(`predict: L has ${L.length} values for a ${width} x ${height} image`);
   }
-  const { network, bins, temperature: own } = parts(model);
-  const temperature = options.temperature ?? own;
+  const own = parts(model);
+  const { network, bins } = own;
+  const temperature = options.temperature ?? own.temperature;
+  const decoding = options.decoding ?? (options.temperature !== undefined ? 'annealed-mean' : own.decoding);
+  const classWeights = options.classWeights ?? own.classWeights;
   if (!(temperature > 0)) throw new RangeError(`predict: temperature must be above 0, got ${temperature}`);
   const pw = Math.ceil(width / NETWORK_MULTIPLE) * NETWORK_MULTIPLE;
   const ph = Math.ceil(height / NETWORK_MULTIPLE) * NETWORK_MULTIPLE;
@@ -76,13 +98,13 @@ export function predict(
   const input = toNetworkInput(pw === width && ph === height ? L : padPlane(L, width, height, pw, ph));
   const [ab, conf] = tf.tidy(() => {
     const logits = network.predict(tf.tensor4d(input, [1, ph, pw, 1])) as tf.Tensor4D;
-    const cropped = tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]);
-    const centres = tf.tensor2d(Array.from(bins.a, (a, i) => [a, bins.b[i]]), [q, 2]);
-    const mean = tf.matMul(tf.softmax(tf.div(cropped, temperature)), centres);
+    const cropped = tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]) as tf.Tensor2D;
+    const colour =
+      decoding === 'annealed-mean' ? annealedMeanTensor(cropped, bins, temperature) : leastCiede2000(cropped, bins, classWeights);
     const logp = tf.logSoftmax(CONFIDENCE_TEMPERATURE === 1 ? cropped : tf.div(cropped, CONFIDENCE_TEMPERATURE));
     const entropy = tf.neg(tf.sum(tf.mul(tf.exp(logp), logp), -1));
     const confidence = tf.clipByValue(tf.sub(1, tf.div(entropy, Math.log(q))), 0, 1);
-    return [mean, confidence];
+    return [colour, confidence];
   });
   const abData = ab.dataSync() as Float32Array;
   const confidence = Float32Array.from(conf.dataSync() as Float32Array);

@@ -12,6 +12,7 @@ import * as tf from '@tensorflow/tfjs';
 import { ModelError } from '../errors.js';
 import { VERSION } from '../version.js';
 import { type AbBins, abBins } from './bins.js';
+import { DEFAULT_DECODING } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
 import {
   DEFAULT_WORKING_SIZE,
@@ -94,6 +95,7 @@ export async function saveModel(network: tf.LayersModel, dir: string, meta: Mode
     kinhueVersion: VERSION,
     savedAt: new Date().toISOString(),
     bins: { grid: bins.grid, count: bins.count, a: Array.from(bins.a), b: Array.from(bins.b) },
+    decoding: meta.decoding ?? DEFAULT_DECODING,
     temperature: meta.temperature ?? DEFAULT_TEMPERATURE,
     workingSize: meta.workingSize ?? DEFAULT_WORKING_SIZE,
     network: { input: 'L/100-0.5', multiple: NETWORK_MULTIPLE, outputStride: OUTPUT_STRIDE },

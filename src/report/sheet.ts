@@ -87,6 +87,11 @@ async function imageFor(file: string | undefined, ctx: Context, size?: { width: 
 }
 
 /** Provenance as label/value rows for people. */
+/** How the record's colour was chosen (records written before the choice existed say only a temperature). */
+function decodingLabel(settings: { decoding?: string; temperature: number }): string {
+  return settings.decoding === 'least-ciede2000' ? 'least expected CIEDE2000 colour' : `annealed mean, temperature ${settings.temperature}`;
+}
+
 function provenanceRows(p: ProvenanceRecord): [string, string][] {
   const s = p.source;
   const rows: [string, string][] = [
@@ -96,7 +101,7 @@ function provenanceRows(p: ProvenanceRecord): [string, string][] {
     ['tone', p.tone.kind === 'toned' ? `toned print (${p.tone.name ?? 'tint'}), tint a* ${p.tone.tint.a}, b* ${p.tone.tint.b}: removed` : p.tone.kind],
     ['result', `${p.result.image} (${p.result.format}, ${p.result.bitDepth}-bit)`],
     ['model', `${p.model.name}, weights SHA-256 ${p.model.weightsSha256}`],
-    ['settings', `work size ${p.settings.workSize} px, temperature ${p.settings.temperature}, format ${p.settings.format}` +
+    ['settings', `work size ${p.settings.workSize} px, ${decodingLabel(p.settings)}, format ${p.settings.format}` +
       (p.settings.quality === null ? '' : `, quality ${p.settings.quality}`)],
     ['backend', p.backend],
     ['mean confidence', String(p.meanConfidence)],

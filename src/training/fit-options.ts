@@ -52,7 +52,7 @@ export interface FitOptions {
   keep?: 'last' | 'best';
   /** Size of a new network (train only). */
   network?: NetworkOptions;
-  /** Annealed-mean temperature used for evaluation. Default the model's (0.38). */
+  /** Evaluate (and save the model) with annealed-mean decoding at this temperature. Default: the model's decoding. */
   temperature?: number;
   /** Stops the run cleanly (a checkpoint is written) after the current step. */
   signal?: AbortSignal;

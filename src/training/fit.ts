@@ -11,6 +11,7 @@ import * as tf from '@tensorflow/tfjs';
 import { ErrorCodes, KinhueError, UsageError } from '../errors.js';
 import { writeFileAtomic } from '../image/index.js';
 import {
+  DEFAULT_DECODING,
   DEFAULT_TEMPERATURE,
   REBALANCE_LAMBDA,
   abBins,
@@ -115,6 +116,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   const start = mode === 'tune' ? await loadModel(options.from!) : undefined;
   const network = start ? start.network : createNetwork(options.network);
   const temperature = options.temperature ?? start?.meta.temperature ?? DEFAULT_TEMPERATURE;
+  const decoding = options.temperature !== undefined ? 'annealed-mean' : (start?.meta.decoding ?? DEFAULT_DECODING);
   if (start && start.bins.count !== bins.count) {
     throw new KinhueError(ErrorCodes.BAD_MODEL, `the model predicts ${start.bins.count} colour bins, this kinhue trains ${bins.count}`, {
       file: options.from,
@@ -132,9 +134,10 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   let best: CheckpointState['best'] = null;
   let grey: Evaluation;
   let before: Evaluation;
-  const evaluate = (photos: Photo[]): Promise<Evaluation> =>
+  // Scored the way the saved model will colour: its decoding, with the weights it was trained under.
+  const evaluate = (photos: Photo[], weights: ArrayLike<number> = classWeights): Promise<Evaluation> =>
     evaluatePhotos(photos, (L, w, h) => {
-      const p = predict(network, L, w, h, { temperature });
+      const p = predict(network, L, w, h, { decoding, temperature, classWeights: weights });
       return { a: p.a, b: p.b, width: p.width, height: p.height };
     });
 
@@ -160,7 +163,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   } else {
     sampler = new CropSampler(set.train, rng);
     grey = await evaluatePhotos(set.holdout);
-    before = await evaluate(set.holdout);
+    before = await evaluate(set.holdout, start?.classWeights);
     await mkdir(out, { recursive: true });
     await truncateTrainingLog(out, 0);
     if (settings.keep === 'best') best = { step: 0, evaluation: before };
@@ -168,6 +171,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   onEvent({ type: 'baseline', grey, start: before });
 
   const meta = (evaluation: Evaluation, evaluatedStep: number, seconds: number): ModelMetadataInput => ({
+    decoding,
     temperature,
     classWeights,
     training: {
@@ -289,7 +293,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     heldOut: { grey, before, after, keptStep },
     options: settings,
   };
-  const record = { ...result, budget: { hours: options.hours ?? null, steps: options.steps ?? null }, backend: backend.name, holdoutFiles: set.holdout.map((p) => p.file), skippedGreyOrToned: set.grey, unreadable: set.unreadable };
+  const record = { ...result, budget: { hours: options.hours ?? null, steps: options.steps ?? null }, decoding, temperature, backend: backend.name, holdoutFiles: set.holdout.map((p) => p.file), skippedGreyOrToned: set.grey, unreadable: set.unreadable };
   await writeFileAtomic(join(out, SUMMARY_FILE), `${JSON.stringify(record, null, 2)}\n`);
   trainer.dispose?.();
   network.dispose();

@@ -4,6 +4,7 @@
 import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
 import { FORMAT_CHOICES, restore, type FormatChoice, type RestoreEvent } from '../../batch/index.js';
 import { UsageError } from '../../errors.js';
+import { DECODINGS, type Decoding } from '../../model/index.js';
 import { ExitCode } from '../exit-codes.js';
 import { Progress } from '../progress.js';
 import { formatPlan, formatSummary, progressText, summaryToJson } from '../restore-report.js';
@@ -17,6 +18,7 @@ export interface RestoreArgs {
   model?: string;
   jobs?: number;
   'work-size'?: number;
+  decoding?: Decoding;
   temperature?: number;
   format: FormatChoice;
   quality?: number;
@@ -49,6 +51,8 @@ export function check(argv: Partial<RestoreArgs>): true {
   if (temperature !== undefined && !(Number.isFinite(temperature) && temperature > 0 && temperature <= 1)) {
     fail(`--temperature must be above 0 and at most 1 (lower is more vivid), got ${temperature}`);
   }
+  if (argv.decoding !== undefined && !DECODINGS.includes(argv.decoding)) fail(`--decoding must be one of ${DECODINGS.join(', ')}, got ${argv.decoding}`);
+  if (argv.decoding === 'least-ciede2000' && temperature !== undefined) fail('--temperature applies to --decoding annealed-mean only');
   if (quality !== undefined && !(Number.isInteger(quality) && quality >= 1 && quality <= 100)) fail(`--quality must be a whole number from 1 to 100, got ${quality}`);
   if (format !== undefined && !FORMAT_CHOICES.includes(format)) fail(`--format must be one of ${FORMAT_CHOICES.join(', ')}, got ${format}`);
   if (argv.hints !== undefined && argv.hints !== false && (typeof argv.hints !== 'string' || argv.hints.trim() === '')) fail('--hints needs the folder holding <name>.hints.json files');
@@ -66,7 +70,11 @@ export const command: CommandModule<object, RestoreArgs> = {
       .option('model', { type: 'string', describe: 'model folder (default: the shipped model, models/kinhue-base)' })
       .option('jobs', { type: 'number', describe: 'files restored at once, each on its own core (default: the number of cores)' })
       .option('work-size', { type: 'number', describe: 'long side in pixels at which the model runs (default 512)' })
-      .option('temperature', { type: 'number', describe: 'colour decoding temperature, above 0 to 1; lower is more vivid (default: the model\'s)' })
+      .option('decoding', {
+        type: 'string', choices: DECODINGS as string[],
+        describe: 'how colour is chosen from the model\'s prediction: least-ciede2000, the colour with the least expected error (muted where unsure), or annealed-mean, more vivid and more often wrong (default: the model\'s)',
+      })
+      .option('temperature', { type: 'number', describe: 'annealed-mean temperature, above 0 to 1; lower is more vivid (given alone, selects --decoding annealed-mean)' })
       .option('format', { type: 'string', choices: FORMAT_CHOICES as string[], default: 'same', describe: 'output format; same keeps each scan\'s own' })
       .option('quality', { type: 'number', describe: 'JPEG and WebP quality 1-100' })
       .option('confidence', { type: 'boolean', default: true, describe: 'write <name>.confidence.png (white = confident); --no-confidence to skip' })
@@ -130,6 +138,7 @@ export const command: CommandModule<object, RestoreArgs> = {
           model: argv.model,
           jobs: argv.jobs,
           workSize: argv['work-size'],
+          decoding: argv.decoding,
           temperature: argv.temperature,
           format: argv.format,
           quality: argv.quality,
