@@ -114,7 +114,9 @@ npm run train:default
 ${trainDefault.split(' && ').join('\n')}
 \`\`\`
 - ${summary.steps} steps in ${f(hours, 2)} hours of training (one core of a shared 2-core machine, WebAssembly backend), Adam with
-  learning rate ${learningRates}, seed ${summary.options.seed}.${summary.stoppedBy === 'time' ? ` The run was given \`--hours\`; the recipe names its step count instead, because
+  learning rate ${learningRates}, seed ${summary.options.seed}. The run is seeded and counted in steps, so running the recipe again on the
+  same backend gives the same weights bit for bit (checked on 2026-12-01 with the WebAssembly backend: a second run wrote a
+  \`weights.bin\` with SHA-256 ${meta.weightsSha256}, the one shipped).${summary.stoppedBy === 'time' ? ` The run was given \`--hours\`; the recipe names its step count instead, because
   a time budget makes the count depend on the machine, while a seeded run is repeatable step for step.` : ''}
 - Class rebalancing (Zhang et al. 2016) with lambda ${rebalance} and sigma 5, from the training photos' a*b* bin frequencies.${rebalance === 0.5 ? '' : `
   Two stronger settings were tried first on the same pool and stopped early, both with colours more vivid than right:
