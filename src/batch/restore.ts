@@ -11,7 +11,7 @@ import { readModelInfo } from './model-info.js';
 import { discoverInputs, underFolder } from './discovery.js';
 import { appendManifest, readManifest, type ManifestRecord } from './manifest.js';
 import { planOutputs, type PlannedOutputs } from './naming.js';
-import { DEFAULT_MODEL_DIR } from '../model/index.js';
+import { DEFAULT_MODEL_DIR, chooseDecoding } from '../model/index.js';
 import { cachedReference, hintsFingerprint } from '../hints/index.js';
 import { MANIFEST_NAME, defaultJobs, settingsKey, type RestoreOptions, type RestoreSettings } from './options.js';
 import { WorkerPool } from './pool.js';
@@ -104,7 +104,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     model: model.name,
     weightsSha256: model.weightsSha256,
     workSize: options.workSize ?? model.workingSize,
-    decoding: options.decoding ?? (options.temperature !== undefined ? 'annealed-mean' : model.decoding),
+    decoding: chooseDecoding(options, model.decoding),
     temperature: options.temperature ?? model.temperature,
     format: options.format ?? 'same',
     quality: options.quality ?? null,

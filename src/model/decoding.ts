@@ -21,6 +21,16 @@ export const DEFAULT_DECODING: Decoding = 'least-ciede2000';
 /** Fractions of each bin's chroma offered as candidates (besides grey). */
 export const CANDIDATE_CHROMA = [1 / 3, 2 / 3, 1];
 
+/**
+ * The decoding a caller asked for: the one named; else annealed mean when only a temperature was given
+ * (a temperature has no other use); else the model's own.
+ * @example
+ * chooseDecoding({ temperature: 0.3 }, 'least-ciede2000'); // 'annealed-mean'
+ */
+export function chooseDecoding(asked: { decoding?: Decoding; temperature?: number }, own: Decoding): Decoding {
+  return asked.decoding ?? (asked.temperature !== undefined ? 'annealed-mean' : own);
+}
+
 /** Candidate colours and their CIEDE2000 difference from every bin centre. */
 export interface DecodingTable {
   /** Candidate a* and b*; candidate 0 is neutral grey. */

@@ -4,7 +4,7 @@
  */
 import * as tf from '@tensorflow/tfjs';
 import { type AbBins, abBins } from './bins.js';
-import { annealedMeanTensor, DEFAULT_DECODING, leastCiede2000, type Decoding } from './decoding.js';
+import { annealedMeanTensor, chooseDecoding, DEFAULT_DECODING, leastCiede2000, type Decoding } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
 import { NETWORK_MULTIPLE, OUTPUT_STRIDE, toNetworkInput } from './network.js';
 import type { KinhueModel } from './storage.js';
@@ -87,7 +87,7 @@ export function predict(
   const own = parts(model);
   const { network, bins } = own;
   const temperature = options.temperature ?? own.temperature;
-  const decoding = options.decoding ?? (options.temperature !== undefined ? 'annealed-mean' : own.decoding);
+  const decoding = chooseDecoding(options, own.decoding);
   const classWeights = options.classWeights ?? own.classWeights;
   if (!(temperature > 0)) throw new RangeError(`predict: temperature must be above 0, got ${temperature}`);
   const pw = Math.ceil(width / NETWORK_MULTIPLE) * NETWORK_MULTIPLE;

@@ -11,6 +11,7 @@ import * as tf from '@tensorflow/tfjs';
 import { ErrorCodes, KinhueError, UsageError } from '../errors.js';
 import { writeFileAtomic } from '../image/index.js';
 import {
+  chooseDecoding,
   DEFAULT_DECODING,
   DEFAULT_TEMPERATURE,
   REBALANCE_LAMBDA,
@@ -116,7 +117,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   const start = mode === 'tune' ? await loadModel(options.from!) : undefined;
   const network = start ? start.network : createNetwork(options.network);
   const temperature = options.temperature ?? start?.meta.temperature ?? DEFAULT_TEMPERATURE;
-  const decoding = options.temperature !== undefined ? 'annealed-mean' : (start?.meta.decoding ?? DEFAULT_DECODING);
+  const decoding = chooseDecoding({ temperature: options.temperature }, start?.meta.decoding ?? DEFAULT_DECODING);
   if (start && start.bins.count !== bins.count) {
     throw new KinhueError(ErrorCodes.BAD_MODEL, `the model predicts ${start.bins.count} colour bins, this kinhue trains ${bins.count}`, {
       file: options.from,
