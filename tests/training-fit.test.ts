@@ -19,7 +19,8 @@ import {
 } from '../src/training/index.js';
 
 // Small enough for CI: a narrow network, 32-pixel crops, 2 crops a step (common practice for tests).
-const TINY = { batch: 2, crop: 32, photoSize: 64, network: { width: 4 }, evalEvery: 2, checkpointMinutes: 60 } satisfies Partial<FitOptions>;
+// L* alone unless a test says otherwise: the backbone costs a detector pass per photo.
+const TINY = { batch: 2, crop: 32, photoSize: 64, network: { width: 4 }, evalEvery: 2, checkpointMinutes: 60, backbone: false } satisfies Partial<FitOptions>;
 
 let dir: string;
 beforeAll(async () => {
@@ -67,6 +68,23 @@ async function weightsOf(out: string): Promise<{ weights: Float32Array[]; traine
 }
 
 describe('fit: resume', () => {
+  it('a network reading the backbone resumes bit for bit too, and its folder loads with the backbone', async () => {
+    const photos = join(dir, 'scenes-backbone');
+    await writeScenes(photos, 4, 13);
+    const base = { ...TINY, backbone: DEFAULT_MODEL_DIR, photos: [photos], seed: 4, learningRate: 3e-3 };
+    await fit({ ...base, out: join(dir, 'bb-whole'), steps: 4 });
+    await fit({ ...base, out: join(dir, 'bb-split'), steps: 2 });
+    await fit({ ...base, out: join(dir, 'bb-split'), steps: 4, resume: true });
+    const whole = await weightsOf(join(dir, 'bb-whole'));
+    const split = await weightsOf(join(dir, 'bb-split'));
+    expect(split.weights.map((w) => Array.from(w))).toEqual(whole.weights.map((w) => Array.from(w)));
+    const model = await loadModel(join(dir, 'bb-split'));
+    expect(model.backbone).toBeDefined();
+    expect(model.meta.pooling).toBeDefined();
+    expect(model.network.inputs.length).toBe(4);
+    model.network.dispose();
+  }, 120_000);
+
   it('an interrupted and resumed run reaches the same weights as an uninterrupted one, bit for bit', async () => {
     const photos = join(dir, 'scenes');
     await writeScenes(photos, 6, 11);

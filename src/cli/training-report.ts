@@ -109,6 +109,9 @@ export async function runWithProgress(
       case 'reading':
         progress.update(event.done / event.total, `reading photos ${event.done}/${event.total}`, event.done === event.total);
         break;
+      case 'features':
+        progress.update(event.done / event.total, `reading scenes with the backbone ${event.done}/${event.total}`, event.done + 1 === event.total);
+        break;
       case 'data':
         progress.log(
           `${event.train + event.holdout} colour photos: ${event.train} to learn from, ${event.holdout} held out` +

@@ -12,3 +12,5 @@ export * from './metadata.js';
 export * from './storage.js';
 export * from './predict.js';
 export * from './calibration.js';
+export * from './backbone.js';
+export * from './region-pooling.js';

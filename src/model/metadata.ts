@@ -3,7 +3,9 @@
  * settings the network was trained for, what it was trained on, and the SHA-256 of its weights.
  */
 import { ModelError } from '../errors.js';
+import type { BackboneRecord } from './backbone.js';
 import type { AbBins } from './bins.js';
+import type { PoolingSettings } from './region-pooling.js';
 import { DECODINGS, type Decoding } from './decoding.js';
 
 /** File names inside a model folder. */
@@ -43,6 +45,10 @@ export interface ModelMetadata {
   training: TrainingRecord | null;
   /** SHA-256 (hex) of weights.bin. */
   weightsSha256: string;
+  /** The borrowed backbone whose features the network reads beside L* (backbone.ts); absent for L* alone. */
+  backbone?: BackboneRecord;
+  /** Region pooling before the colour is chosen (region-pooling.ts); absent for none. */
+  pooling?: PoolingSettings;
 }
 
 /** What a caller of saveModel supplies; the rest is filled in. */
@@ -54,6 +60,7 @@ export interface ModelMetadataInput {
   bins?: AbBins;
   classWeights?: ArrayLike<number>;
   training?: TrainingRecord | null;
+  pooling?: PoolingSettings;
 }
 
 const HINT = 'pass a folder written by kinhue train or tune, or leave the model option out to use the shipped model';
@@ -112,5 +119,22 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
     classWeights: m.classWeights,
     training: typeof m.training === 'object' && m.training !== null ? (m.training as TrainingRecord) : null,
     weightsSha256: m.weightsSha256,
+    ...(m.backbone === undefined ? {} : { backbone: parseBackbone(m.backbone, dir) }),
+    ...(m.pooling === undefined ? {} : { pooling: parsePooling(m.pooling, dir) }),
   };
+}
+
+function parseBackbone(json: unknown, dir: string): BackboneRecord {
+  const r = json as Record<string, unknown> | null;
+  const hex = (v: unknown): v is string => typeof v === 'string' && /^[0-9a-f]{64}$/.test(v);
+  if (!r || typeof r.name !== 'string' || !hex(r.topologySha256) || !hex(r.weightsSha256)) fail(dir, `${METADATA_FILE} describes its backbone incompletely`);
+  return { name: r.name, topologySha256: r.topologySha256, weightsSha256: r.weightsSha256 };
+}
+
+function parsePooling(json: unknown, dir: string): PoolingSettings {
+  const r = json as Record<string, unknown> | null;
+  if (!r || typeof r.spatial !== 'number' || !(r.spatial > 0) || typeof r.range !== 'number' || !(r.range > 0)) {
+    fail(dir, `${METADATA_FILE} has region pooling settings that are not two positive numbers`);
+  }
+  return { spatial: r.spatial as number, range: r.range as number };
 }

@@ -5,6 +5,7 @@
  * no gradient for dilated convolutions) and no batch normalisation (small fine-tuning batches).
  */
 import * as tf from '@tensorflow/tfjs';
+import { BACKBONE_CHANNELS } from './backbone.js';
 import { abBins } from './bins.js';
 
 export interface NetworkOptions {
@@ -14,7 +15,15 @@ export interface NetworkOptions {
   width?: number;
   /** Seed for the weight initialisers, for reproducible networks. */
   seed?: number;
+  /**
+   * Read the borrowed backbone's features beside L* (backbone.ts): its maps at 1/8 and 1/16, and the
+   * picture's scene vector spread over the 1/16 grid, fused into the decoder (Iizuka et al. 2016).
+   */
+  backbone?: boolean;
 }
+
+/** Names of the network's inputs when it reads the backbone's features. */
+export const NETWORK_INPUTS = ['lightness', 'features8', 'features16', 'scene'] as const;
 
 /** Input and output sizes must be multiples of this (four stride-2 stages). */
 export const NETWORK_MULTIPLE = 16;
@@ -51,30 +60,62 @@ export function createNetwork(options: NetworkOptions = {}): tf.LayersModel {
       kernelInitializer: init(),
     });
 
-  const input = tf.input({ shape: [null, null, 1], name: 'lightness' });
+  const input = tf.input({ shape: [null, null, 1], name: NETWORK_INPUTS[0] });
+  if (options.backbone) return withBackbone(input, q, c, conv, () => seed++);
   // Encoder: 1/2, 1/4, 1/8, 1/16.
   // The first layer strides at once: a full-resolution layer costs more to train than it gives
   // a network whose output is at a quarter of the resolution.
-  let x = conv(`${ENCODER}1`, c, 2).apply(input) as tf.SymbolicTensor;
-  x = conv(`${ENCODER}2a`, 2 * c).apply(x) as tf.SymbolicTensor;
-  x = conv(`${ENCODER}2b`, 2 * c, 2).apply(x) as tf.SymbolicTensor;
-  const skip4 = conv(`${ENCODER}3a`, 4 * c).apply(x) as tf.SymbolicTensor;
-  x = conv(`${ENCODER}3b`, 4 * c, 2).apply(skip4) as tf.SymbolicTensor;
-  const skip8 = conv(`${ENCODER}4a`, 8 * c).apply(x) as tf.SymbolicTensor;
-  x = conv(`${ENCODER}4b`, 8 * c, 2).apply(skip8) as tf.SymbolicTensor;
-  x = conv(`${ENCODER}5a`, 8 * c).apply(x) as tf.SymbolicTensor;
-  x = conv(`${ENCODER}5b`, 8 * c).apply(x) as tf.SymbolicTensor;
+  let x = apply(conv(`${ENCODER}1`, c, 2), input);
+  x = apply(conv(`${ENCODER}2a`, 2 * c), x);
+  x = apply(conv(`${ENCODER}2b`, 2 * c, 2), x);
+  const skip4 = apply(conv(`${ENCODER}3a`, 4 * c), x);
+  x = apply(conv(`${ENCODER}3b`, 4 * c, 2), skip4);
+  const skip8 = apply(conv(`${ENCODER}4a`, 8 * c), x);
+  x = apply(conv(`${ENCODER}4b`, 8 * c, 2), skip8);
+  x = apply(conv(`${ENCODER}5a`, 8 * c), x);
+  x = apply(conv(`${ENCODER}5b`, 8 * c), x);
   // Decoder: back to 1/8, then 1/4, joining the encoder's features of the same size.
-  x = tf.layers.upSampling2d({ name: 'dec1_up', size: [2, 2] }).apply(x) as tf.SymbolicTensor;
-  x = tf.layers.concatenate({ name: 'dec1_join' }).apply([x, skip8]) as tf.SymbolicTensor;
-  x = conv('dec1', 4 * c).apply(x) as tf.SymbolicTensor;
-  x = tf.layers.upSampling2d({ name: 'dec2_up', size: [2, 2] }).apply(x) as tf.SymbolicTensor;
-  x = tf.layers.concatenate({ name: 'dec2_join' }).apply([x, skip4]) as tf.SymbolicTensor;
-  x = conv('dec2', 3 * c).apply(x) as tf.SymbolicTensor;
-  const logits = tf.layers
-    .conv2d({ name: 'logits', filters: q, kernelSize: 1, kernelInitializer: tf.initializers.glorotUniform({ seed: seed++ }) })
-    .apply(x) as tf.SymbolicTensor;
+  x = apply(conv('dec1', 4 * c), join('dec1_join', [up('dec1_up', x), skip8]));
+  x = apply(conv('dec2', 3 * c), join('dec2_join', [up('dec2_up', x), skip4]));
+  const logits = apply(
+    tf.layers.conv2d({ name: 'logits', filters: q, kernelSize: 1, kernelInitializer: tf.initializers.glorotUniform({ seed: seed++ }) }),
+    x,
+  );
   return tf.model({ inputs: input, outputs: logits, name: 'kinhue' });
+}
+
+type Conv = (name: string, filters: number, stride?: number, kernel?: number) => tf.layers.Layer;
+
+const apply = (layer: tf.layers.Layer, x: tf.SymbolicTensor | tf.SymbolicTensor[]) => layer.apply(x) as tf.SymbolicTensor;
+const join = (name: string, parts: tf.SymbolicTensor[]) => apply(tf.layers.concatenate({ name }), parts);
+const up = (name: string, x: tf.SymbolicTensor) => apply(tf.layers.upSampling2d({ name, size: [2, 2] }), x);
+
+/**
+ * The network that reads the backbone's features beside L*. The backbone already knows what things are,
+ * so the L* path is slim: it gives edges and texture at 1/4 and 1/8. What the detector sees at 1/16 and
+ * the scene vector spread over the 1/16 grid are fused there (after Iizuka et al. 2016), its 1/8 map
+ * joins on the way up, and the output stays at 1/4.
+ */
+function withBackbone(input: tf.SymbolicTensor, q: number, c: number, conv: Conv, nextSeed: () => number): tf.LayersModel {
+  const features8 = tf.input({ shape: [null, null, BACKBONE_CHANNELS.local8], name: NETWORK_INPUTS[1] });
+  const features16 = tf.input({ shape: [null, null, BACKBONE_CHANNELS.local16], name: NETWORK_INPUTS[2] });
+  const scene = tf.input({ shape: [null, null, BACKBONE_CHANNELS.global], name: NETWORK_INPUTS[3] });
+  let x = apply(conv(`${ENCODER}1`, c, 2), input);
+  const skip4 = apply(conv(`${ENCODER}2`, 2 * c, 2), x);
+  const skip8 = apply(conv(`${ENCODER}3`, 4 * c, 2), skip4);
+  x = apply(conv(`${ENCODER}4`, 4 * c, 2), skip8);
+  const local16 = apply(conv('fuse16_local', 4 * c, 1, 1), features16);
+  const whole = apply(conv('fuse16_scene', 4 * c, 1, 1), scene);
+  x = apply(conv('fuse16', 8 * c), join('fuse16_join', [x, local16, whole]));
+  x = apply(conv('fuse16b', 8 * c), x);
+  const local8 = apply(conv('fuse8_local', 4 * c, 1, 1), features8);
+  x = apply(conv('dec1', 4 * c), join('dec1_join', [up('dec1_up', x), skip8, local8]));
+  x = apply(conv('dec2', 3 * c), join('dec2_join', [up('dec2_up', x), skip4]));
+  const logits = apply(
+    tf.layers.conv2d({ name: 'logits', filters: q, kernelSize: 1, kernelInitializer: tf.initializers.glorotUniform({ seed: nextSeed() }) }),
+    x,
+  );
+  return tf.model({ inputs: [input, features8, features16, scene], outputs: logits, name: 'kinhue' });
 }
 
 /**
@@ -131,7 +172,11 @@ function layerScale(model: tf.LayersModel, name: string, probe: number): number 
     const convs = model.layers.filter((l) => l.getClassName() === 'Conv2D');
     const probeModel = tf.model({ inputs: model.inputs, outputs: convs.map((l) => l.output as tf.SymbolicTensor) });
     const outs = tf.tidy(() => {
-      const r = probeModel.predict(tf.zeros([1, probe, probe, 1]));
+      const r = probeModel.predict(model.inputs.map((input) => {
+        const channels = input.shape.at(-1) as number;
+        const side = input.name.startsWith(NETWORK_INPUTS[0]) ? probe : input.name.startsWith(NETWORK_INPUTS[1]) ? probe / 8 : probe / 16;
+        return tf.zeros([1, side, side, channels]);
+      }));
       return (Array.isArray(r) ? r : [r]).map((t) => t.shape[1] as number);
     });
     scales = new Map(convs.map((l, i) => [l.name, probe / outs[i]]));

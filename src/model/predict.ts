@@ -3,11 +3,15 @@
  * multiple (edge pixels repeated), run the network, crop back, decode (see decoding.ts).
  */
 import * as tf from '@tensorflow/tfjs';
+import { shrinkPlane } from '../colour/index.js';
+import { type Backbone, type BackboneFeatures, backboneFeatures, borrowedInputs } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
 import { annealedMeanTensor, chooseDecoding, DEFAULT_DECODING, leastCiede2000, type Decoding } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
+import { type PoolingSettings, poolRegions } from './region-pooling.js';
 import { NETWORK_MULTIPLE, OUTPUT_STRIDE, toNetworkInput } from './network.js';
 import type { KinhueModel } from './storage.js';
+import { networkInputs } from './train-step.js';
 
 /**
  * Temperature of the distribution whose entropy gives the confidence: 1, the network's own
@@ -25,6 +29,11 @@ export interface PredictOptions {
   temperature?: number;
   /** Rebalancing weights a bare network was trained with (a loaded model brings its own). */
   classWeights?: ArrayLike<number>;
+  /** Region pooling before the colour is chosen (region-pooling.ts); false for none. Default: the model's own. */
+  pooling?: PoolingSettings | false;
+  /** For a network that reads a backbone: the picture's features, or the backbone to compute them with (a loaded model brings its own). */
+  features?: BackboneFeatures;
+  backbone?: Backbone;
 }
 
 export interface Prediction {
@@ -53,6 +62,8 @@ function padPlane(src: Float32Array, width: number, height: number, pw: number, 
 
 interface Parts {
   network: tf.LayersModel;
+  pooling?: PoolingSettings;
+  backbone?: Backbone;
   bins: AbBins;
   decoding: Decoding;
   temperature: number;
@@ -64,8 +75,8 @@ function parts(model: KinhueModel | tf.LayersModel): Parts {
   if (model instanceof tf.LayersModel) {
     return { network: model, bins: abBins(), decoding: DEFAULT_DECODING, temperature: DEFAULT_TEMPERATURE, classWeights: [] };
   }
-  const { network, bins, meta, classWeights } = model;
-  return { network, bins, decoding: meta.decoding, temperature: meta.temperature, classWeights };
+  const { network, bins, meta, classWeights, backbone } = model;
+  return { network, bins, decoding: meta.decoding, temperature: meta.temperature, classWeights, backbone, pooling: meta.pooling };
 }
 
 /**
@@ -96,9 +107,17 @@ export function predict(
   const oh = Math.ceil(height / OUTPUT_STRIDE);
   const q = bins.count;
   const input = toNetworkInput(pw === width && ph === height ? L : padPlane(L, width, height, pw, ph));
+  const borrowed = network.inputs.length > 1 ? borrowedFor(L, width, height, pw, ph, options.features, options.backbone ?? own.backbone) : undefined;
+  const pooling = options.pooling ?? own.pooling;
+  const raw = tf.tidy(() => {
+    const logits = network.predict(networkInputs(input, 1, ph, pw, borrowed)) as tf.Tensor4D;
+    return tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]) as tf.Tensor2D;
+  });
+  // Pooled distributions stand in for the network's own from here on: as log-probabilities, which
+  // every decoding and the confidence read as logits.
+  const scores = pooling ? pooledLogits(raw, q, shrinkPlane(L, width, height, ow, oh), ow, oh, pooling) : raw;
   const [ab, conf] = tf.tidy(() => {
-    const logits = network.predict(tf.tensor4d(input, [1, ph, pw, 1])) as tf.Tensor4D;
-    const cropped = tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]) as tf.Tensor2D;
+    const cropped = scores;
     const colour =
       decoding === 'annealed-mean' ? annealedMeanTensor(cropped, bins, temperature) : leastCiede2000(cropped, bins, classWeights);
     const logp = tf.logSoftmax(CONFIDENCE_TEMPERATURE === 1 ? cropped : tf.div(cropped, CONFIDENCE_TEMPERATURE));
@@ -106,6 +125,7 @@ export function predict(
     const confidence = tf.clipByValue(tf.sub(1, tf.div(entropy, Math.log(q))), 0, 1);
     return [colour, confidence];
   });
+  tf.dispose([raw, scores]);
   const abData = ab.dataSync() as Float32Array;
   const confidence = Float32Array.from(conf.dataSync() as Float32Array);
   ab.dispose();
@@ -117,4 +137,20 @@ export function predict(
     b[i] = abData[2 * i + 1];
   }
   return { a, b, confidence, width: ow, height: oh };
+}
+
+/** The backbone's inputs for a picture padded from width x height to pw x ph (the padding repeats the edge). */
+function borrowedFor(L: Float32Array, width: number, height: number, pw: number, ph: number, features?: BackboneFeatures, backbone?: Backbone) {
+  if (!features && !backbone) throw new RangeError('predict: this network reads a backbone, and none was given');
+  const f = features ?? backboneFeatures(backbone!, L, width, height);
+  return borrowedInputs(f, { x: 0, y: 0, width: pw / width, height: ph / height }, pw, ph);
+}
+
+/** Log of the region-pooled distributions of `logits` ([pixels, q] over a width x height grid). */
+function pooledLogits(logits: tf.Tensor2D, q: number, guide: Float32Array, width: number, height: number, settings: PoolingSettings): tf.Tensor2D {
+  const probabilities = tf.tidy(() => tf.softmax(logits).dataSync() as Float32Array);
+  const pooled = poolRegions(probabilities, q, guide, width, height, settings);
+  // A floor keeps the log finite where a bin got nothing (far below any probability that matters).
+  for (let i = 0; i < pooled.length; i++) pooled[i] = Math.log(Math.max(pooled[i]!, 1e-12));
+  return tf.tensor2d(pooled, [width * height, q]);
 }

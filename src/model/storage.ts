@@ -11,6 +11,7 @@ import { fileURLToPath } from 'node:url';
 import * as tf from '@tensorflow/tfjs';
 import { ModelError } from '../errors.js';
 import { VERSION } from '../version.js';
+import { BACKBONE_TOPOLOGY_FILE, BACKBONE_WEIGHTS_FILE, type Backbone, loadBackbone } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
 import { DEFAULT_DECODING } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
@@ -36,6 +37,8 @@ export interface KinhueModel {
   meta: ModelMetadata;
   bins: AbBins;
   classWeights: Float32Array;
+  /** The borrowed backbone, for a network that reads one. */
+  backbone?: Backbone;
   /** The folder it was loaded from (absolute). */
   dir: string;
 }
@@ -73,7 +76,15 @@ async function artifactsOf(network: tf.LayersModel): Promise<tf.io.ModelArtifact
  * @example
  * await saveModel(net, 'models/my-archive', { name: 'my-archive', classWeights, training: { photos: 120 } });
  */
-export async function saveModel(network: tf.LayersModel, dir: string, meta: ModelMetadataInput = {}): Promise<ModelMetadata> {
+export async function saveModel(
+  network: tf.LayersModel,
+  dir: string,
+  meta: ModelMetadataInput = {},
+  backbone?: Backbone,
+): Promise<ModelMetadata> {
+  if ((network.inputs.length > 1) !== Boolean(backbone)) {
+    throw new RangeError(`saveModel: a network with ${network.inputs.length} inputs ${backbone ? 'takes no backbone' : 'needs its backbone'}`);
+  }
   const bins = meta.bins ?? abBins();
   const outChannels = (network.outputs[0].shape as number[]).at(-1);
   if (outChannels !== bins.count) {
@@ -102,8 +113,14 @@ export async function saveModel(network: tf.LayersModel, dir: string, meta: Mode
     classWeights: meta.classWeights ? Array.from(meta.classWeights) : [],
     training: meta.training ?? null,
     weightsSha256: sha256(weights),
+    ...(backbone ? { backbone: backbone.record } : {}),
+    ...(meta.pooling ? { pooling: meta.pooling } : {}),
   };
   await mkdir(dir, { recursive: true });
+  if (backbone) {
+    await writeAtomic(join(dir, BACKBONE_WEIGHTS_FILE), backbone.weights);
+    await writeAtomic(join(dir, BACKBONE_TOPOLOGY_FILE), backbone.topology);
+  }
   await writeAtomic(join(dir, WEIGHTS_FILE), weights);
   await writeAtomic(join(dir, TOPOLOGY_FILE), `${JSON.stringify(topology)}\n`);
   await writeAtomic(join(dir, METADATA_FILE), `${JSON.stringify(full, null, 2)}\n`);
@@ -189,5 +206,13 @@ export async function loadModel(dir: string): Promise<KinhueModel> {
       hint: 'restore the folder from where it came, or train or tune it again',
     });
   }
-  return { network, meta, bins, classWeights: Float32Array.from(meta.classWeights), dir: abs };
+  const backbone = meta.backbone ? await loadBackbone(abs, meta.backbone) : undefined;
+  if ((network.inputs.length > 1) !== Boolean(backbone)) {
+    network.dispose();
+    throw new ModelError(`${TOPOLOGY_FILE} and ${METADATA_FILE} disagree on whether the network reads a backbone`, {
+      file: dir,
+      hint: 'restore the folder from where it came, or train or tune it again',
+    });
+  }
+  return { network, meta, bins, classWeights: Float32Array.from(meta.classWeights), dir: abs, ...(backbone ? { backbone } : {}) };
 }

@@ -4,6 +4,7 @@
  * resumed continues bit-for-bit as if never stopped.
  */
 import * as tf from '@tensorflow/tfjs';
+import { BACKBONE_CHANNELS, type BorrowedInputs } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
 import { batchTargets, weightedCrossEntropy } from './loss.js';
 import { OUTPUT_STRIDE, toNetworkInput } from './network.js';
@@ -45,9 +46,10 @@ export interface Trainer {
   /**
    * One step on a batch: `L` holds n planes of h x w L* values (0-100); `ab` holds per image its
    * a* plane then its b* plane, h x w each, at full resolution. h and w must be multiples of 16.
+   * `borrowed` carries the backbone's features for a network that reads them (borrowedInputs, n of them).
    * Returns the batch loss.
    */
-  step(L: Float32Array, ab: Float32Array, n: number, h: number, w: number): number;
+  step(L: Float32Array, ab: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): number;
   /** Steps taken (including those restored by setState). */
   readonly steps: number;
   /** The Adam step size; may be changed between steps (schedules). */
@@ -94,7 +96,7 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
   }));
   const variables = slots.map((s) => s.variable);
 
-  function step(L: Float32Array, ab: Float32Array, n: number, h: number, w: number): number {
+  function step(L: Float32Array, ab: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): number {
     if (h % 16 !== 0 || w % 16 !== 0) throw new RangeError(`trainer.step: crops must be multiples of 16, got ${w} x ${h}`);
     if (L.length !== n * h * w) throw new RangeError(`trainer.step: L has ${L.length} values, expected ${n * h * w}`);
     const targets = batchTargets(ab, n, h, w, OUTPUT_STRIDE, bins, options.classWeights);
@@ -102,7 +104,7 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
     const correct1 = 1 - Math.pow(beta1, t);
     const correct2 = 1 - Math.pow(beta2, t);
     const loss = tf.tidy(() => {
-      const x = tf.tensor4d(toNetworkInput(L), [n, h, w, 1]);
+      const x = networkInputs(toNetworkInput(L), n, h, w, borrowed);
       const target = tf.tensor4d(targets.target, [n, targets.height, targets.width, q]);
       const weight = tf.tensor3d(targets.weight, [n, targets.height, targets.width]);
       const { value, grads } = tf.variableGrads(
@@ -185,4 +187,22 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
       }
     },
   };
+}
+
+/**
+ * The network's input tensors for n pictures of h x w: the scaled L* alone, or with the backbone's
+ * features beside it. Call inside tf.tidy.
+ * @example
+ * const x = networkInputs(toNetworkInput(L), 1, 384, 512, borrowed);
+ */
+export function networkInputs(input: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): tf.Tensor4D | tf.Tensor4D[] {
+  const lightness = tf.tensor4d(input, [n, h, w, 1]);
+  if (!borrowed) return lightness;
+  const C = BACKBONE_CHANNELS;
+  return [
+    lightness,
+    tf.tensor4d(borrowed.features8, [n, h / 8, w / 8, C.local8]),
+    tf.tensor4d(borrowed.features16, [n, h / 16, w / 16, C.local16]),
+    tf.tensor4d(borrowed.scene, [n, h / 16, w / 16, C.global]),
+  ];
 }

@@ -3,6 +3,7 @@
  * gives one square crop at a random scale and position, mirrored half of the time. All choices come
  * from the run's {@link Random}, and the visiting order is part of the checkpoint.
  */
+import { type BackboneFeatures, type BorrowedInputs, borrowedInputs, BACKBONE_CHANNELS } from '../model/index.js';
 import type { Photo } from './photo-set.js';
 import type { Random } from './random.js';
 import { sampleCrop, type CropWindow } from './resample.js';
@@ -21,6 +22,14 @@ export interface CropBatch {
   size: number;
   L: Float32Array;
   ab: Float32Array;
+  /** The backbone's features placed under each crop, when the sampler was given them. */
+  borrowed?: BorrowedInputs;
+}
+
+/** A photo's backbone features, of the photo as it is and mirrored. */
+export interface PhotoFeatures {
+  plain: BackboneFeatures;
+  mirrored: BackboneFeatures;
 }
 
 /** The largest zoom-out of a crop: its window is at most this many times the crop side. */
@@ -39,6 +48,8 @@ export class CropSampler {
     private readonly photos: Photo[],
     private readonly rng: Random,
     state?: SamplerState,
+    /** Per photo (same order), its backbone features; crops then carry them. */
+    private readonly features?: PhotoFeatures[],
   ) {
     if (photos.length === 0) throw new RangeError('CropSampler needs at least one photo');
     this.state = state ? { order: [...state.order], position: state.position, epoch: state.epoch } : { order: [], position: 0, epoch: -1 };
@@ -49,14 +60,29 @@ export class CropSampler {
     const plane = size * size;
     const L = new Float32Array(n * plane);
     const ab = new Float32Array(n * plane * 2);
+    const cells8 = (size / 8) ** 2;
+    const cells16 = (size / 16) ** 2;
+    const borrowed = this.features && {
+      features8: new Float32Array(n * cells8 * BACKBONE_CHANNELS.local8),
+      features16: new Float32Array(n * cells16 * BACKBONE_CHANNELS.local16),
+      scene: new Float32Array(n * cells16 * BACKBONE_CHANNELS.global),
+    };
     for (let i = 0; i < n; i++) {
-      const photo = this.photos[this.nextIndex()]!;
+      const index = this.nextIndex();
+      const photo = this.photos[index]!;
       const window = this.window(photo, size);
       sampleCrop(photo.L, photo.width, photo.height, window, size, L, i * plane);
       sampleCrop(photo.a, photo.width, photo.height, window, size, ab, i * plane * 2);
       sampleCrop(photo.b, photo.width, photo.height, window, size, ab, i * plane * 2 + plane);
+      if (borrowed) {
+        // A mirrored crop reads the mirrored photo's features, at the mirrored place.
+        const f = this.features![index]!;
+        const x = window.flip ? photo.width - window.x - window.side : window.x;
+        const place = { x: x / photo.width, y: window.y / photo.height, width: window.side / photo.width, height: window.side / photo.height };
+        borrowedInputs(window.flip ? f.mirrored : f.plain, place, size, size, borrowed, i);
+      }
     }
-    return { n, size, L, ab };
+    return { n, size, L, ab, ...(borrowed ? { borrowed } : {}) };
   }
 
   /** A copy of the sampler's position, for a checkpoint. */

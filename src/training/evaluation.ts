@@ -29,7 +29,7 @@ export interface AbPrediction {
 }
 
 /** Colourises one L* plane of `width` x `height`. */
-export type AbPredictor = (L: Float32Array, width: number, height: number) => AbPrediction | Promise<AbPrediction>;
+export type AbPredictor = (L: Float32Array, width: number, height: number, photo: Photo) => AbPrediction | Promise<AbPrediction>;
 
 const originals = new WeakMap<Photo, Uint8Array>();
 
@@ -56,7 +56,7 @@ export async function evaluatePhotos(photos: Photo[], predictor?: AbPredictor): 
     const { width, height, L } = photo;
     let result: LabPlanes;
     if (predictor) {
-      const p = await predictor(L, width, height);
+      const p = await predictor(L, width, height, photo);
       result = {
         L,
         a: p.width === width && p.height === height ? p.a : resizeBilinear(p.a, p.width, p.height, width, height),

@@ -3,6 +3,9 @@
  * resolve to the settings a run records and keeps when resumed.
  */
 import { DEFAULT_WORKING_SIZE, REBALANCE_LAMBDA, type NetworkOptions } from '../model/index.js';
+
+/** Long side of the photos a network with a backbone learns from, and of the pictures it colours: whole scenes, small. */
+export const BACKBONE_PHOTO_SIZE = 320;
 import type { Evaluation } from './evaluation.js';
 
 export type FitMode = 'train' | 'tune';
@@ -52,6 +55,11 @@ export interface FitOptions {
   keep?: 'last' | 'best';
   /** Size of a new network (train only). */
   network?: NetworkOptions;
+  /**
+   * A model folder whose backbone a new network reads (train only; see model/backbone.ts), or false for
+   * a network of L* alone. Default: the shipped model's backbone.
+   */
+  backbone?: string | false;
   /** Evaluate (and save the model) with annealed-mean decoding at this temperature. Default: the model's decoding. */
   temperature?: number;
   /** Stops the run cleanly (a checkpoint is written) after the current step. */
@@ -61,6 +69,7 @@ export interface FitOptions {
 /** What the loop reports while it runs. */
 export type FitEvent =
   | { type: 'reading'; done: number; total: number; file: string }
+  | { type: 'features'; done: number; total: number }
   | { type: 'data'; train: number; holdout: number; grey: number; unreadable: { file: string; reason: string }[]; otherFiles: number }
   | { type: 'resumed'; step: number; seconds: number }
   | { type: 'baseline'; grey: Evaluation; start: Evaluation }
@@ -96,6 +105,8 @@ export interface FitResult {
     freezeEncoder: boolean;
     keep: 'last' | 'best';
     photoSize: number;
+    /** The network reads a backbone's features (absent in runs from before backbones: false). */
+    backbone?: boolean;
   };
 }
 
@@ -112,7 +123,7 @@ export type FitSettings = FitResult['options'];
  * @example
  *   resolveSettings({ photos: ['p/'], out: 'm', steps: 10 }, 'train').batch; // 16
  */
-export function resolveSettings(options: FitOptions, mode: FitMode): FitSettings {
+export function resolveSettings(options: FitOptions, mode: FitMode, backbone: boolean): FitSettings {
   const crop = options.crop ?? 128;
   return {
     batch: options.batch ?? 16,
@@ -123,6 +134,7 @@ export function resolveSettings(options: FitOptions, mode: FitMode): FitSettings
     rebalance: options.rebalance ?? REBALANCE_LAMBDA,
     freezeEncoder: options.freezeEncoder ?? false,
     keep: options.keep ?? (mode === 'tune' ? 'best' : 'last'),
-    photoSize: options.photoSize ?? Math.max(DEFAULT_WORKING_SIZE, crop * 3),
+    photoSize: options.photoSize ?? (backbone ? BACKBONE_PHOTO_SIZE : Math.max(DEFAULT_WORKING_SIZE, crop * 3)),
+    backbone,
   };
 }

@@ -16,7 +16,13 @@ import {
   DEFAULT_TEMPERATURE,
   REBALANCE_LAMBDA,
   abBins,
+  backboneFeatures,
   binHistogram,
+  DEFAULT_MODEL_DIR,
+  DEFAULT_POOLING,
+  loadBackbone,
+  type Backbone,
+  type BackboneFeatures,
   createNetwork,
   createTrainer,
   freezeEncoder,
@@ -30,7 +36,7 @@ import {
 } from '../model/index.js';
 import { VERSION } from '../version.js';
 import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js';
-import { CropSampler, type SamplerState } from './crop-sampler.js';
+import { CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
 import { evaluatePhotos, type Evaluation } from './evaluation.js';
 import { SUMMARY_FILE, resolveSettings, type FitEvent, type FitMode, type FitOptions, type FitResult, type FitSettings } from './fit-options.js';
 import { loadPhotoSet, type Photo, type PhotoSet } from './photo-set.js';
@@ -82,7 +88,10 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
 
   // The checkpoint's settings win on resume: the same run must continue.
   // (Checkpoints written before the rebalancing option existed used the paper's 0.5.)
-  const settings: FitSettings = saved ? { ...saved.options, rebalance: saved.options.rebalance ?? REBALANCE_LAMBDA } : resolveSettings(options, mode);
+  const start = mode === 'tune' ? await loadModel(options.from!) : undefined;
+  const settings: FitSettings = saved
+    ? { ...saved.options, rebalance: saved.options.rebalance ?? REBALANCE_LAMBDA, backbone: saved.options.backbone ?? false }
+    : resolveSettings(options, mode, start ? Boolean(start.backbone) : options.backbone !== false);
   // (A learning rate given with --resume is the one setting that may change: see FitOptions.learningRate.)
   const maxSteps = options.steps ?? Infinity;
   const maxSeconds = options.hours === undefined ? Infinity : options.hours * 3600;
@@ -114,8 +123,24 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   for (const photo of set.train) binHistogram(photo.a, photo.b, bins, counts);
   const classWeights = rebalanceWeights(counts, settings.rebalance);
 
-  const start = mode === 'tune' ? await loadModel(options.from!) : undefined;
-  const network = start ? start.network : createNetwork(options.network);
+  const backbone: Backbone | undefined = start
+    ? start.backbone
+    : settings.backbone
+      ? await loadBackbone(typeof options.backbone === 'string' ? options.backbone : DEFAULT_MODEL_DIR)
+      : undefined;
+  const network = start ? start.network : createNetwork({ ...options.network, backbone: settings.backbone });
+  // The backbone is frozen: each photo's features are computed once, both ways round for the crops.
+  const trainFeatures: PhotoFeatures[] | undefined = backbone
+    ? set.train.map((photo, i) => {
+        onEvent({ type: 'features', done: i, total: set.train.length + set.holdout.length });
+        return { plain: backboneFeatures(backbone, photo.L, photo.width, photo.height), mirrored: backboneFeatures(backbone, photo.L, photo.width, photo.height, true) };
+      })
+    : undefined;
+  // A network that reads a backbone chooses its colours after region pooling; a tuned model keeps its base's.
+  const pooling = start ? start.meta.pooling : backbone ? DEFAULT_POOLING : undefined;
+  const holdoutFeatures = new Map<Photo, BackboneFeatures>(
+    backbone ? set.holdout.map((photo) => [photo, backboneFeatures(backbone, photo.L, photo.width, photo.height)]) : [],
+  );
   const temperature = options.temperature ?? start?.meta.temperature ?? DEFAULT_TEMPERATURE;
   const decoding = chooseDecoding({ temperature: options.temperature }, start?.meta.decoding ?? DEFAULT_DECODING);
   if (start && start.bins.count !== bins.count) {
@@ -137,8 +162,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   let before: Evaluation;
   // Scored the way the saved model will colour: its decoding, with the weights it was trained under.
   const evaluate = (photos: Photo[], weights: ArrayLike<number> = classWeights): Promise<Evaluation> =>
-    evaluatePhotos(photos, (L, w, h) => {
-      const p = predict(network, L, w, h, { decoding, temperature, classWeights: weights });
+    evaluatePhotos(photos, (L, w, h, photo) => {
+      const p = predict(network, L, w, h, { decoding, temperature, classWeights: weights, features: holdoutFeatures.get(photo), pooling: pooling ?? false });
       return { a: p.a, b: p.b, width: p.width, height: p.height };
     });
 
@@ -151,7 +176,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     }
     trainer.learningRate = settings.learningRate;
     rng.setState(saved.rng);
-    sampler = new CropSampler(set.train, rng, saved.sampler);
+    sampler = new CropSampler(set.train, rng, saved.sampler, trainFeatures);
     step = saved.step;
     priorSeconds = saved.seconds;
     lossSum = saved.lossSum;
@@ -162,7 +187,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     await truncateTrainingLog(out, step);
     onEvent({ type: 'resumed', step, seconds: priorSeconds });
   } else {
-    sampler = new CropSampler(set.train, rng);
+    sampler = new CropSampler(set.train, rng, undefined, trainFeatures);
     grey = await evaluatePhotos(set.holdout);
     before = await evaluate(set.holdout, start?.classWeights);
     await mkdir(out, { recursive: true });
@@ -173,6 +198,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
 
   const meta = (evaluation: Evaluation, evaluatedStep: number, seconds: number): ModelMetadataInput => ({
     decoding,
+    ...(backbone ? { workingSize: settings.photoSize } : start ? { workingSize: start.meta.workingSize } : {}),
+    ...(pooling ? { pooling } : {}),
     temperature,
     classWeights,
     training: {
@@ -190,7 +217,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     },
   });
   const saveKept = async (evaluation: Evaluation, evaluatedStep: number, seconds: number): Promise<void> => {
-    await saveModel(network, out, meta(evaluation, evaluatedStep, seconds));
+    await saveModel(network, out, meta(evaluation, evaluatedStep, seconds), backbone);
     onEvent({ type: 'model', step, dir: out });
   };
   if (!saved && settings.keep === 'best') await saveKept(before, 0, 0);
@@ -251,7 +278,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       break;
     }
     const batch = sampler.next(settings.batch, settings.crop);
-    const loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size);
+    const loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
     step++;
     lossSum += loss;
     lossCount++;

@@ -18,16 +18,26 @@ export function check(argv: Partial<FitArgs>): true {
   return checkFitArgs(argv, EXAMPLE);
 }
 
-export const command: CommandModule<object, FitArgs> = {
+interface TrainArgs extends FitArgs {
+  backbone: boolean;
+}
+
+export const command: CommandModule<object, TrainArgs> = {
   command: 'train <photos...>',
   describe: 'train a new model on folders of colour photographs (time budget, resumable)',
   builder: (yargs: Argv) =>
     fitOptions(yargs)
+      .option('backbone', {
+        type: 'boolean',
+        default: true,
+        describe: "read the shipped model's borrowed backbone (a pretrained object detector's features) beside L*; --no-backbone for L* alone",
+      })
       .example(EXAMPLE, 'train for two hours; add --resume after an interruption')
       .example('kinhue train photos/ --out models/mine --steps 2000 --batch 8 --crop 96', 'a fixed number of smaller steps')
       .check((argv) => check(argv as Partial<FitArgs>)),
-  handler: async (argv: ArgumentsCamelCase<FitArgs>) => {
-    await runWithProgress('train', (signal, onEvent) => fit({ ...fitOptionsFrom(argv), mode: 'train', signal }, onEvent));
+  handler: async (argv: ArgumentsCamelCase<TrainArgs>) => {
+    const backbone = argv.backbone ? {} : { backbone: false as const };
+    await runWithProgress('train', (signal, onEvent) => fit({ ...fitOptionsFrom(argv), ...backbone, mode: 'train', signal }, onEvent));
     process.exitCode = ExitCode.OK;
   },
 };
