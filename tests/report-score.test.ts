@@ -262,7 +262,7 @@ describe('kinhue score', () => {
     expect(table).toMatch(/^pale\.png\n {2}original\s+[\d.]+\n {2}grey \(L\* only\)\s+[\d. ]+\s+-\s+0\.0\s+-$/m);
     expect(table).toContain('Reinhard transfer (small-a)');
     expect(table).toContain('average of 5 (right hue and left grey: 4)');
-    expect(table).toMatch(/Verdict, on the averages over 5 photos[^\n]*\n {2}model small-a: /);
+    expect(table).toMatch(/Verdict \(averages of 5 photos;[^\n]*\n {2}model small-a: /);
     expect(table).toMatch(/notes\.jpg: not an image/);
     expect(table).toMatch(/Right hue: of the original's clearly coloured pixels \(C\*ab >= 15\)/);
 

@@ -102,6 +102,6 @@ describe('modelVerdicts', () => {
     expect(report.verdicts[0].comparisons[0].outcome).toBe('better');
     const table = formatScoreTable(report);
     expect(table).toContain('average of 2 (right hue and left grey: 1)');
-    expect(table).toMatch(/Verdict, on the averages over 2 photos[^\n]*\n {2}model base: better than grey on right hue \(60\.0% vs 0\.0%\), level on CIEDE2000 \(9\.70 vs 10\.00\)$/m);
+    expect(table).toMatch(/Verdict \(averages of 2 photos;[^\n]*\n {2}model base: better than grey on right hue \(60\.0% vs 0\.0%\), level on CIEDE2000 \(9\.70 vs 10\.00\)$/m);
   });
 });

@@ -161,14 +161,15 @@ export function formatScoreTable(report: ScoreReport): string {
   const parts: string[] = [];
   if (rows.length) {
     parts.push(renderTable(COLUMNS, rows));
-    parts.push('PSNR and right hue: higher is better. CIEDE2000, a*b* error, false colour and left grey: lower is better. Colourfulness: closer to the original is better.');
+    parts.push('Higher is better: PSNR, right hue. Lower is better: CIEDE2000, a*b* error, false colour, left grey.\n' +
+      "Colourfulness: closer to the original's is better.");
   } else {
     parts.push('No photo could be scored.');
   }
   if (report.verdicts.length && average) {
     parts.push(
-      `Verdict, on the averages over ${average.photos} photo${average.photos === 1 ? '' : 's'} (differences under ${CIEDE2000_MARGIN} CIEDE2000 ` +
-        `or ${RIGHT_HUE_MARGIN} points of right hue count as none):\n` + report.verdicts.map((v) => `  ${v.text}`).join('\n'),
+      `Verdict (averages of ${average.photos} photo${average.photos === 1 ? '' : 's'}; under ${CIEDE2000_MARGIN} CIEDE2000 ` +
+        `or ${RIGHT_HUE_MARGIN} points of right hue is no difference):\n` + report.verdicts.map((v) => `  ${v.text}`).join('\n'),
     );
   }
   if (report.failures.length) {
