@@ -31,6 +31,9 @@ describe('compareFigures', () => {
         { figure: 'rightHue', outcome: 'better', value: 40, other: 37 },
       ],
     });
+    // 0.7 - 0.2 and 4.1 - 1.1 are 0.5 and 3 in decimals, a hair less in binary floating point: they reach the margins.
+    expect(compareFigures(figures(0.2, 37), figures(0.7, 37)).outcome).toBe('better');
+    expect(compareFigures(figures(13, 4.1), figures(13, 1.1)).outcome).toBe('better');
     // 12.75 vs 13 and 39 vs 37: both within the margins.
     expect(compareFigures(figures(12.75, 39), figures(13, 37)).outcome).toBe('no clearer');
     // Worse on both.

@@ -106,13 +106,12 @@ export function averageFigures(photos: readonly PhotoScore[], methods: readonly 
   return { photos: photos.length, colouredPhotos, originalColourfulness: mean((p) => p.originalColourfulness), figures };
 }
 
-/** The hue figures' thresholds and the verdict's margins, in words, for reports and notes. */
+/** The hue figures' definitions and thresholds, in words, for the report's notes. */
 export const HUE_FIGURES_NOTE =
   `Right hue: of the original's clearly coloured pixels (C*ab >= ${CLEARLY_COLOURED_CHROMA}), the share whose result has C*ab >= ${NEAR_NEUTRAL_CHROMA} ` +
   `and a hue within ${RIGHT_HUE_DEGREES} degrees of the original's. False colour: of all pixels, the share where the result has ` +
   `C*ab >= ${CLEARLY_COLOURED_CHROMA} but the original is near-neutral (C*ab < ${NEAR_NEUTRAL_CHROMA}) or its hue differs by more than ${FALSE_HUE_DEGREES} degrees. ` +
   `Left grey: of the original's clearly coloured pixels, the share whose result has C*ab < ${NEAR_NEUTRAL_CHROMA}. Thresholds are kinhue's own.`;
-
 
 const COLUMNS = [
   { label: 'photo\n  method' },

@@ -100,7 +100,6 @@ function measure(candidate: LabPlanes, original: { rgb: Uint8Array; lab: LabPlan
   };
 }
 
-
 function failureOf(file: string, error: KinhueError): ScoreFailure {
   return { file, code: error.code, message: error.message, ...(error.hint ? { hint: error.hint } : {}) };
 }

@@ -59,8 +59,10 @@ export function compareFigures(mine: ScoreFigures, theirs: ScoreFigures): { outc
   for (const f of FIGURES) {
     const value = mine[f.figure], other = theirs[f.figure];
     if (value === null || other === null || !Number.isFinite(value) || !Number.isFinite(other)) continue;
+    // A hair of slack so that a difference of exactly the margin in decimals (0.7 - 0.2) counts as reaching it.
     const gain = f.higherIsBetter ? value - other : other - value;
-    figures.push({ figure: f.figure, outcome: gain >= f.margin ? 'better' : -gain >= f.margin ? 'worse' : 'level', value, other });
+    const reach = f.margin - 1e-9;
+    figures.push({ figure: f.figure, outcome: gain >= reach ? 'better' : -gain >= reach ? 'worse' : 'level', value, other });
   }
   const better = figures.some((f) => f.outcome === 'better'), worse = figures.some((f) => f.outcome === 'worse');
   return { outcome: better && !worse ? 'better' : worse && !better ? 'worse' : 'no clearer', figures };
