@@ -16,6 +16,22 @@ describe('text tables', () => {
     ]);
   });
 
+  it('splits a heading over lines at line breaks, bottom-aligned, and writes span rows as they are', () => {
+    const text = renderTable(
+      [{ label: 'photo' }, { label: 'right\nhue %', align: 'right' }, { label: 'PSNR', align: 'right' }],
+      [{ span: 'a-long-photo-name.jpg' }, ['  grey', '0.0', '24.31'], TABLE_RULE, ['  model', '-', '5.00']],
+    );
+    expect(text.split('\n')).toEqual([
+      '         right',
+      'photo    hue %   PSNR',
+      '-------  -----  -----',
+      'a-long-photo-name.jpg',
+      '  grey     0.0  24.31',
+      '-------  -----  -----',
+      '  model      -   5.00',
+    ]);
+  });
+
   it('writes missing and infinite figures as marks, not numbers', () => {
     expect(formatFigure(NaN, 2)).toBe('-');
     expect(formatFigure(null, 2)).toBe('-');

@@ -102,6 +102,7 @@ describe('kinhue train on the command line', () => {
       expect(process.exitCode ?? 0).toBe(0);
       expect(printed.join('\n')).toMatch(/trained 2 steps \(4 crops\)/);
       expect(printed.join('\n')).toMatch(/grey \(L\* only\)/);
+      expect(printed.join('\n')).toMatch(/CIEDE2000  PSNR \(dB\)  colourfulness  right hue  false colour  left grey\n {2}grey \(L\* only\)[ \d.]+0\.0%\s+0\.0%\s+100\.0%\n/);
 
       await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32']);
       expect(process.exitCode).toBe(2);

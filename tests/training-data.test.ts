@@ -310,4 +310,22 @@ describe('held-out evaluation', () => {
     expect(perfect.psnr).toBe(100);
     expect(perfect.psnr).toBeGreaterThan(grey.psnr);
   });
+
+  it('gives the hue figures, averaging right hue and left grey over the photos that have clearly coloured pixels', async () => {
+    // Two flat photos (our own): one of a* 30, b* -20 (C* 36, clearly coloured), one neutral (no clearly coloured pixel).
+    const w = 8, h = 8, n = w * h;
+    const flat = (file: string, L: number, a: number, b: number): Photo =>
+      ({ file, width: w, height: h, L: new Float32Array(n).fill(L), a: new Float32Array(n).fill(a), b: new Float32Array(n).fill(b) });
+    const photos = [flat('coloured', 55, 30, -20), flat('neutral', 70, 0, 0)];
+    const everywhere = (a: number, b: number) => () => ({ a: new Float32Array(n).fill(a), b: new Float32Array(n).fill(b), width: w, height: h });
+    // Grey by construction: right hue 0 and left grey 100 on the coloured photo, no false colour anywhere.
+    expect(await evaluatePhotos(photos)).toMatchObject({ rightHue: 0, falseColour: 0, leftGrey: 100, photos: 2, colouredPhotos: 1 });
+    // The coloured photo's own colour everywhere: right on it; false colour on all of the neutral photo -> (0 + 100) / 2.
+    expect(await evaluatePhotos(photos, everywhere(30, -20))).toMatchObject({ rightHue: 100, falseColour: 50, leftGrey: 0, colouredPhotos: 1 });
+    // Its hue turned by 45 degrees (not within 30, not beyond 60): neither right nor false on the coloured photo.
+    const turned = [30 * Math.cos(Math.PI / 4) + 20 * Math.sin(Math.PI / 4), 30 * Math.sin(Math.PI / 4) - 20 * Math.cos(Math.PI / 4)] as const;
+    expect(await evaluatePhotos(photos, everywhere(turned[0], turned[1]))).toMatchObject({ rightHue: 0, falseColour: 50, leftGrey: 0 });
+    // No clearly coloured pixel in any photo: no right hue or left grey to report.
+    expect(await evaluatePhotos([photos[1]])).toMatchObject({ rightHue: null, leftGrey: null, falseColour: 0, colouredPhotos: 0 });
+  });
 });

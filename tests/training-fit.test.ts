@@ -121,7 +121,14 @@ describe('fit: resume', () => {
     expect(whole.heldOut.after.ciede2000).not.toBe(whole.heldOut.before.ciede2000);
 
     // The log has one line per evaluation (steps 2, 4, 6), also after a resume (no duplicates).
-    expect((await readTrainingLog(join(dir, 'whole'))).map((e) => e.step)).toEqual([2, 4, 6]);
+    const log = await readTrainingLog(join(dir, 'whole'));
+    expect(log.map((e) => e.step)).toEqual([2, 4, 6]);
+    // Each line carries the hue figures too (the generated scenes have clearly coloured sky and grass).
+    for (const e of log) {
+      expect(e.rightHue).toBeGreaterThanOrEqual(0);
+      expect(e.falseColour).toBeGreaterThanOrEqual(0);
+      expect(e.leftGrey).toBeGreaterThanOrEqual(0);
+    }
     expect((await readTrainingLog(join(dir, 'split'))).map((e) => e.step)).toEqual([2, 3, 4, 6]);
     const files = await readdir(join(dir, 'whole'));
     for (const f of [CHECKPOINT_FILE, TRAINING_LOG_FILE, SUMMARY_FILE, 'model.json']) expect(files).toContain(f);

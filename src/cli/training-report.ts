@@ -7,6 +7,16 @@ import { UsageError } from '../errors.js';
 import type { Evaluation, FitEvent, FitOptions, FitResult } from '../training/index.js';
 import { formatDuration, Progress } from './progress.js';
 
+/** A percentage with one decimal, or a dash where there is none (no clearly coloured pixel, or a run from before the hue figures). */
+function percent(value: number | null | undefined): string {
+  return value === null || value === undefined || Number.isNaN(value) ? '-' : `${value.toFixed(1)}%`;
+}
+
+/** The three hue figures of an evaluation, for live lines. */
+function hueFigures(e: Evaluation): string {
+  return `right hue ${percent(e.rightHue)}, false colour ${percent(e.falseColour)}, left grey ${percent(e.leftGrey)}`;
+}
+
 /** Options both verbs take, as yargs parses them. */
 export interface FitArgs {
   photos: string[];
@@ -124,7 +134,9 @@ export async function runWithProgress(
         progress.log(`resuming at step ${event.step} (${formatDuration(event.seconds)} trained so far)`);
         break;
       case 'baseline':
-        progress.log(`held-out CIEDE2000: grey ${event.grey.ciede2000.toFixed(2)}, model at start ${event.start.ciede2000.toFixed(2)}`);
+        progress.log(
+          `held-out CIEDE2000: grey ${event.grey.ciede2000.toFixed(2)}, model at start ${event.start.ciede2000.toFixed(2)} (${hueFigures(event.start)})`,
+        );
         break;
       case 'step':
         progress.update(
@@ -137,7 +149,8 @@ export async function runWithProgress(
       case 'evaluation':
         progress.log(
           `step ${event.step}: loss ${event.loss.toFixed(3)}, held-out CIEDE2000 ${event.evaluation.ciede2000.toFixed(2)}, ` +
-            `PSNR ${event.evaluation.psnr.toFixed(2)} dB, colourfulness ${event.evaluation.colourfulness.toFixed(1)}${event.best ? ' (best so far)' : ''}`,
+            `PSNR ${event.evaluation.psnr.toFixed(2)} dB, colourfulness ${event.evaluation.colourfulness.toFixed(1)}, ${hueFigures(event.evaluation)}` +
+            `${event.best ? ' (best so far)' : ''}`,
         );
         break;
       case 'checkpoint':
@@ -158,16 +171,21 @@ export async function runWithProgress(
 
 /** The closing lines: held-out figures before and after, beside the grey baseline. */
 export function summaryTable(result: FitResult): string {
+  const widths = [11, 11, 15, 11, 14, 11];
+  const line = (label: string, cells: string[]): string => label.padEnd(26) + cells.map((c, i) => c.padStart(widths[i])).join('');
   const row = (label: string, e: Evaluation): string =>
-    `  ${label.padEnd(28)}${e.ciede2000.toFixed(2).padStart(10)}${e.psnr.toFixed(2).padStart(10)}${e.colourfulness.toFixed(1).padStart(15)}`;
+    line(`  ${label}`, [e.ciede2000.toFixed(2), e.psnr.toFixed(2), e.colourfulness.toFixed(1), percent(e.rightHue), percent(e.falseColour), percent(e.leftGrey)]);
   const { grey, before, after, keptStep } = result.heldOut;
   const stop = result.stoppedBy === 'interrupted' ? 'interrupted; continue with --resume' : `stopped by the ${result.stoppedBy === 'time' ? 'time' : 'step'} budget`;
   return [
     `${result.mode === 'tune' ? 'tuned' : 'trained'} ${result.steps} steps (${result.crops} crops) in ${formatDuration(result.seconds)}, ${stop}`,
     `model written to ${result.out} (weights of step ${keptStep})`,
-    `held-out photos (${after.photos})               CIEDE2000  PSNR (dB)  colourfulness`,
+    line(`held-out photos (${after.photos})`, ['CIEDE2000', 'PSNR (dB)', 'colourfulness', 'right hue', 'false colour', 'left grey']),
     row('grey (L* only)', grey),
     row('model before', before),
     row(`model after (step ${keptStep})`, after),
+    ...(after.colouredPhotos !== undefined && after.colouredPhotos < after.photos
+      ? [`  (right hue and left grey rest on the ${after.colouredPhotos} held-out photos with clearly coloured pixels)`]
+      : []),
   ].join('\n');
 }

@@ -9,6 +9,7 @@ export * from './ciede2000.js';
 export * from './colourfulness.js';
 export * from './gamut.js';
 export * from './metrics.js';
+export * from './hue-agreement.js';
 export * from './bilateral-upsample.js';
 export * from './chroma-limit.js';
 export * from './working-colour.js';

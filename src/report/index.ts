@@ -4,6 +4,7 @@ export * from './training-colour.js';
 export * from './table.js';
 export * from './csv.js';
 export * from './score-report.js';
+export * from './verdict.js';
 export * from './score.js';
 export * from './histogram.js';
 export * from './sheet-html.js';

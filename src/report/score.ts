@@ -8,7 +8,7 @@ import { mkdir } from 'node:fs/promises';
 import { join, relative } from 'node:path';
 import { tmpdir } from 'node:os';
 import {
-  colourfulness, labToSrgb, meanAbError, meanCiede2000, psnr, srgbToLab, type LabPlanes,
+  clearlyColouredShare, colourfulness, hueAgreement, labToSrgb, meanAbError, meanCiede2000, psnr, srgbToLab, type LabPlanes,
 } from '../colour/index.js';
 import { colouriseLightness, discoverInputs } from '../batch/index.js';
 import { ErrorCodes, InputError, KinhueError, UsageError } from '../errors.js';
@@ -17,10 +17,11 @@ import { DEFAULT_MODEL_DIR, initBackend, loadModel, type KinhueModel } from '../
 import { VERSION } from '../version.js';
 import { labStatistics, reinhardTransfer, type LabStatistics } from './reinhard.js';
 import {
-  averageFigures, scoreToCsv, scoreToJson, type PhotoScore, type ScoreFailure, type ScoreFigures, type ScoreMethod,
+  HUE_FIGURES_NOTE, averageFigures, scoreToCsv, scoreToJson, type PhotoScore, type ScoreFailure, type ScoreFigures, type ScoreMethod,
   type ScoreReport,
 } from './score-report.js';
-import { trainingColourFor } from './training-colour.js';
+import { recordedRebalance, trainingColourFor } from './training-colour.js';
+import { modelVerdicts } from './verdict.js';
 
 /** What to score. */
 export interface ScoreOptions {
@@ -87,11 +88,15 @@ async function readOriginal(file: string, maxPixels?: number): Promise<{ rgb: Ui
 function measure(candidate: LabPlanes, original: { rgb: Uint8Array; lab: LabPlanes }): ScoreFigures {
   const rgb = labToSrgb(candidate, new Uint8Array(candidate.L.length * 3), 3);
   const seen = srgbToLab(rgb, 3);
+  const { rightHue, falseColour, leftGrey } = hueAgreement(seen, original.lab);
   return {
     psnr: psnr(rgb, original.rgb),
     ciede2000: meanCiede2000(seen, original.lab),
     abError: meanAbError(seen, original.lab),
     colourfulness: colourfulness(rgb, 3),
+    rightHue,
+    falseColour,
+    leftGrey,
   };
 }
 
@@ -162,7 +167,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
         label: `Reinhard transfer (${labels[i]})`,
         kind: 'transfer',
         model: model.dir,
-        target: trainingColourFor(model.meta.classWeights, model.bins, () => pooled!),
+        target: trainingColourFor(model.meta.classWeights, model.bins, () => pooled!, recordedRebalance(model.meta.training)),
       });
       methods.push({ id: `model:${i + 1}`, label: `model ${labels[i]}`, kind: 'model', model: model.dir, weightsHash: model.meta.weightsSha256 });
     });
@@ -188,7 +193,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
             figures[method.id] = measure({ L: lab.L, a, b }, original);
           }
         }
-        photos.push({ file: rel, width, height, originalColourfulness: colourfulness(original.rgb, 3), figures });
+        photos.push({ file: rel, width, height, originalColourfulness: colourfulness(original.rgb, 3), clearlyColoured: clearlyColouredShare(lab), figures });
         if (original.toned) toned.push(`${rel} (${original.toned})`);
       } catch (error) {
         if (!(error instanceof KinhueError)) throw error;
@@ -200,10 +205,12 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     }
 
     const transfer = methods.filter((m) => m.kind === 'transfer');
+    const average = averageFigures(photos, methods);
     const notes = [
       "Each original's colour is taken out (its CIELAB L* kept, a* = b* = 0) and put back by each method; L* is never changed.",
       'Figures compare the 8-bit sRGB rendering of each result with the original rounded to 8 bits; averages count each photo once (PSNR averaged in dB).',
       `Models run as restore runs them: at ${options.workSize ? `a working size of ${options.workSize} px` : "each model's own working size"} (long side), colour carried to full size edge-aware.`,
+      `${HUE_FIGURES_NOTE} Averages of right hue and left grey skip photos with no clearly coloured pixel.`,
       'Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper\'s l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target\'s mean colour everywhere.',
       ...transfer.map((m) => `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`),
       ...(toned.length ? [`Colour of a single hue, as in a toned monochrome print: ${toned.join(', ')}. Scored; check these are colour photographs, not tinted prints.`] : []),
@@ -216,7 +223,8 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
       methods,
       photos,
       failures,
-      average: averageFigures(photos, methods),
+      average,
+      verdicts: average ? modelVerdicts(methods, average.figures) : [],
       notes,
     };
   } finally {

@@ -6,10 +6,12 @@
  * training set's Gaussian-smoothed a*b* bin distribution p~: w_q = c / ((1 - λ) p~_q + λ / Q).
  * Inverting that gives p~ and from it the means (smoothing with a symmetric kernel keeps them) and,
  * after taking off the variance the smoothing (σ²) and the binning (grid² / 12, Sheppard's
- * correction) add, the standard deviations. Only when a model carries no weights does the baseline
- * fall back to the pooled statistics of the photos being scored, and says so.
+ * correction) add, the standard deviations. The inversion needs the λ the weights were made with: each
+ * model records its own (`training.rebalance` in kinhue-model.json). Only when a model carries no weights,
+ * or weights made with λ = 1 (all equal, so they hold no colour), does the baseline fall back to the
+ * pooled statistics of the photos being scored, and says so.
  */
-import { abBins, REBALANCE_LAMBDA, SOFT_SIGMA, type AbBins } from '../model/index.js';
+import { abBins, REBALANCE_LAMBDA, SOFT_SIGMA, type AbBins, type TrainingRecord } from '../model/index.js';
 import type { LabStatistics } from './reinhard.js';
 
 /** Where the baseline's target statistics came from. */
@@ -74,22 +76,36 @@ export function abStatisticsFromClassWeights(weights: ArrayLike<number>, bins: A
 }
 
 /**
- * The baseline target for one model: from its class weights when it has them (one per bin), else
- * the pooled statistics of the scored photos (`fallback`), labelled as such.
+ * The rebalancing λ a model's weights were made with, from its training record; models that record
+ * none were trained before the option existed, at the paper's 0.5 (REBALANCE_LAMBDA).
  * @example
- * const target = trainingColourFor(model.meta.classWeights, model.bins, () => pooledStatistics);
+ * recordedRebalance(model.meta.training); // 0.95 for the shipped model
  */
-export function trainingColourFor(classWeights: ArrayLike<number> | undefined, bins: AbBins, fallback: () => LabStatistics): TrainingColour {
-  if (classWeights && classWeights.length > 0 && classWeights.length === bins.count) {
+export function recordedRebalance(training: TrainingRecord | null | undefined): number {
+  const lambda = training?.rebalance;
+  return typeof lambda === 'number' && lambda > 0 && lambda <= 1 ? lambda : REBALANCE_LAMBDA;
+}
+
+/**
+ * The baseline target for one model: from its class weights when it has them (one per bin, made with
+ * rebalancing `lambda` below 1), else the pooled statistics of the scored photos (`fallback`), labelled as such.
+ * @example
+ * const target = trainingColourFor(model.meta.classWeights, model.bins, () => pooledStatistics, recordedRebalance(model.meta.training));
+ */
+export function trainingColourFor(classWeights: ArrayLike<number> | undefined, bins: AbBins, fallback: () => LabStatistics,
+  lambda = REBALANCE_LAMBDA): TrainingColour {
+  const weighted = !!classWeights && classWeights.length > 0 && classWeights.length === bins.count;
+  if (weighted && lambda < 1) {
     return {
-      statistics: abStatisticsFromClassWeights(classWeights, bins),
+      statistics: abStatisticsFromClassWeights(classWeights, bins, SOFT_SIGMA, lambda),
       source: 'class-weights',
-      description: "a*b* mean and sd of the model's training set, recovered from the class-rebalancing weights in its metadata",
+      description: `a*b* mean and sd of the model's training set, recovered from the class-rebalancing weights in its metadata (rebalancing λ ${lambda})`,
     };
   }
+  const why = weighted ? 'its class weights were made with rebalancing λ 1, so they are all equal and hold no colour' : 'no class-rebalancing weights';
   return {
     statistics: fallback(),
     source: 'scored-photos',
-    description: 'the model records no training colour (no class-rebalancing weights); the pooled a*b* mean and sd of the scored photos stand in, which favours the baseline',
+    description: `the model records no training colour (${why}); the pooled a*b* mean and sd of the scored photos stand in, which favours the baseline`,
   };
 }

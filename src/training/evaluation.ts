@@ -1,10 +1,11 @@
 /**
  * Held-out evaluation: colourise each held-out photo from its L* alone, bring the quarter-resolution
  * a*b* up to the photo's size bilinearly, put the original L* back, and compare with the original:
- * mean CIEDE2000, PSNR of the 8-bit sRGB rendering, and the result's colourfulness (Hasler &
- * Suesstrunk 2003). The grey baseline is the same comparison with a* = b* = 0.
+ * mean CIEDE2000, PSNR of the 8-bit sRGB rendering, the result's colourfulness (Hasler &
+ * Suesstrunk 2003), and whether its hues are right (right hue, false colour, left grey: the figures
+ * `score` reports, colour/hue-agreement.ts). The grey baseline is the same comparison with a* = b* = 0.
  */
-import { colourfulness, labToSrgb, meanCiede2000, psnr, type LabPlanes } from '../colour/index.js';
+import { colourfulness, hueAgreement, labToSrgb, meanCiede2000, meanOfPresent, psnr, type LabPlanes } from '../colour/index.js';
 import type { Photo } from './photo-set.js';
 import { resizeBilinear } from './resample.js';
 
@@ -16,8 +17,16 @@ export interface Evaluation {
   psnr: number;
   /** Mean colourfulness of the results, Hasler & Suesstrunk 2003 (0-255 scale). */
   colourfulness: number;
+  /** Percent of clearly coloured pixels given a hue within 30 degrees (higher is better); null when no photo has such pixels. */
+  rightHue: number | null;
+  /** Percent of pixels given a clear colour that is not there (lower is better). */
+  falseColour: number;
+  /** Percent of clearly coloured pixels left near-neutral (lower is better); null as rightHue. */
+  leftGrey: number | null;
   /** Photos evaluated. */
   photos: number;
+  /** Photos with clearly coloured pixels: what rightHue and leftGrey are averaged over. */
+  colouredPhotos: number;
 }
 
 /** a*b* predicted for an L* plane, at any resolution of the same aspect (the model's is a quarter). */
@@ -52,6 +61,9 @@ export async function evaluatePhotos(photos: Photo[], predictor?: AbPredictor): 
   let de = 0;
   let db = 0;
   let cf = 0;
+  let fc = 0;
+  const right: (number | null)[] = [];
+  const grey: (number | null)[] = [];
   for (const photo of photos) {
     const { width, height, L } = photo;
     let result: LabPlanes;
@@ -66,11 +78,21 @@ export async function evaluatePhotos(photos: Photo[], predictor?: AbPredictor): 
       result = { L, a: new Float32Array(L.length), b: new Float32Array(L.length) };
     }
     const rgb = labToSrgb(result, new Uint8Array(L.length * 3), 3);
-    de += meanCiede2000(result, { L, a: photo.a, b: photo.b });
+    const original = { L, a: photo.a, b: photo.b };
+    de += meanCiede2000(result, original);
+    const hues = hueAgreement(result, original);
+    right.push(hues.rightHue);
+    grey.push(hues.leftGrey);
+    fc += hues.falseColour;
     // An exact match would give Infinity; cap at 100 dB so averages stay finite (common practice).
     db += Math.min(100, psnr(rgb, originalRgb(photo)));
     cf += colourfulness(rgb, 3);
   }
   const n = photos.length;
-  return { ciede2000: de / n, psnr: db / n, colourfulness: cf / n, photos: n };
+  const rightHue = meanOfPresent(right);
+  return {
+    ciede2000: de / n, psnr: db / n, colourfulness: cf / n,
+    rightHue: rightHue.mean, falseColour: fc / n, leftGrey: meanOfPresent(grey).mean,
+    photos: n, colouredPhotos: rightHue.photos,
+  };
 }

@@ -258,8 +258,10 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     const improved = !best || evaluation.ciede2000 < best.evaluation.ciede2000;
     if (improved) best = { step, evaluation };
     const loss = lossSum / Math.max(1, lossCount);
-    const { ciede2000, psnr, colourfulness } = evaluation;
-    await appendTrainingLog(out, { step, seconds: elapsed(), loss, ciede2000, psnr, colourfulness, best: improved, time: new Date().toISOString() });
+    const { ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey } = evaluation;
+    await appendTrainingLog(out, {
+      step, seconds: elapsed(), loss, ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey, best: improved, time: new Date().toISOString(),
+    });
     onEvent({ type: 'evaluation', step, loss, evaluation, best: improved });
     lossSum = 0;
     lossCount = 0;

@@ -19,6 +19,10 @@ export interface TrainingLogEntry {
   ciede2000: number;
   psnr: number;
   colourfulness: number;
+  /** Hue figures in percent (Evaluation); absent in logs written before they existed, null where no held-out photo has clearly coloured pixels. */
+  rightHue?: number | null;
+  falseColour?: number;
+  leftGrey?: number | null;
   /** True when this evaluation is the best so far. */
   best: boolean;
   time: string;
@@ -27,7 +31,7 @@ export interface TrainingLogEntry {
 /**
  * Appends one entry.
  * @example
- *   await appendTrainingLog('run/', { step: 100, seconds: 80, loss: 2.4, ciede2000: 9.1, psnr: 24, colourfulness: 21, best: true, time: new Date().toISOString() });
+ *   await appendTrainingLog('run/', { step: 100, seconds: 80, loss: 2.4, ciede2000: 9.1, psnr: 24, colourfulness: 21, rightHue: 31, falseColour: 6, leftGrey: 40, best: true, time: new Date().toISOString() });
  */
 export async function appendTrainingLog(dir: string, entry: TrainingLogEntry): Promise<void> {
   await appendFile(join(dir, TRAINING_LOG_FILE), `${JSON.stringify(entry)}\n`, 'utf8');
