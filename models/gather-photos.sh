@@ -2,8 +2,8 @@
 # Gathers the pool of openly licensed colour photographs that the shipped model is trained on.
 #
 # Every photo is listed one by one in models/photo-list.tsv (package, version, path inside the package,
-# author, licence, use). This script downloads those Debian packages with apt-get, unpacks them into a
-# temporary folder and copies each listed file, byte for byte, to TARGET/<name> (names are
+# author, licence, use, note, subject). This script downloads those Debian packages with apt-get, unpacks
+# them into a temporary folder and copies each listed file, byte for byte, to TARGET/<name> (names are
 # <package>--<original file name>; see models/PHOTO_SOURCES.md). Rows whose use is "demo" are the demo
 # album's originals: they are held out of the pool and copied only with --demo DIR.
 #
@@ -11,7 +11,8 @@
 #   --demo DIR  also copy the demo rows (full size) to DIR, for demo-photos/make-scans.mjs --from DIR
 #   --debs DIR  keep the downloaded .deb files in DIR and reuse them on the next run
 # Needs: Debian or a derivative with apt reachable (run `apt-get update` once first), dpkg-deb, and node
-# with this repository's node_modules installed (`npm ci`), for the two packed formats and the summary.
+# with this repository's node_modules installed (`npm ci`), for the packed formats (.rcc, .edj, .jar) and
+# the summary (count, megapixels, digest, photos per subject).
 set -euo pipefail
 
 root="$(cd "$(dirname "$0")/.." && pwd)"
@@ -23,7 +24,7 @@ while [ $# -gt 0 ]; do
   case "$1" in
     --demo) demo="${2:?--demo needs a folder}"; shift 2 ;;
     --debs) debs="${2:?--debs needs a folder}"; shift 2 ;;
-    -h|--help) sed -n '2,13p' "$0"; exit 0 ;;
+    -h|--help) sed -n '2,15p' "$0"; exit 0 ;;
     -*) echo "gather-photos: unknown option $1 (see --help)" >&2; exit 2 ;;
     *) target="$1"; shift ;;
   esac
@@ -97,4 +98,6 @@ digest="$(cd "$target" && sort "$pool_names" | xargs -d '\n' sha256sum | sha256s
   console.log(`pool: ${names.length} photos, ${(px / 1e6).toFixed(1)} megapixels in ${dir}`);
 ' "$(cd "$target" && pwd)" "$pool_names")
 echo "pool digest: $digest"
+awk -F'\t' 'NR > 1 && $7 == "pool" { n[$9]++ } END { for (s in n) printf "%s %d\n", s, n[s] }' "$list" | sort \
+  | awk '{ line = line (NR > 1 ? ", " : "") $1 " " $2 } END { print "pool subjects: " line }'
 [ -z "$demo" ] || echo "demo originals: $n_demo photos in $demo (held out of the pool)"

@@ -1,6 +1,9 @@
-import { mkdtemp, readdir, rm, writeFile } from 'node:fs/promises';
+import { spawnSync } from 'node:child_process';
+import { mkdtemp, readdir, readFile, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import { fileURLToPath } from 'node:url';
+import { crc32, deflateRawSync } from 'node:zlib';
 import { converter, differenceCiede2000 } from 'culori';
 import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
@@ -327,5 +330,146 @@ describe('held-out evaluation', () => {
     expect(await evaluatePhotos(photos, everywhere(turned[0], turned[1]))).toMatchObject({ rightHue: 0, falseColour: 50, leftGrey: 0 });
     // No clearly coloured pixel in any photo: no right hue or left grey to report.
     expect(await evaluatePhotos([photos[1]])).toMatchObject({ rightHue: null, leftGrey: null, falseColour: 0, colouredPhotos: 0 });
+  });
+});
+
+const ROOT = fileURLToPath(new URL('..', import.meta.url));
+
+/** The rows of models/photo-list.tsv as objects keyed by the header's column names. */
+async function photoList(): Promise<{ header: string[]; rows: Record<string, string>[] }> {
+  const lines = (await readFile(join(ROOT, 'models', 'photo-list.tsv'), 'utf8')).split('\n').filter((l) => l !== '');
+  const header = lines[0]!.split('\t');
+  const rows = lines.slice(1).map((line) => {
+    const cells = line.split('\t');
+    expect(cells, line).toHaveLength(header.length);
+    return Object.fromEntries(header.map((h, i) => [h, cells[i]!]));
+  });
+  return { header, rows };
+}
+
+describe('the training photo list (models/photo-list.tsv)', () => {
+  // The fixed set of subjects that PHOTO_SOURCES.md counts the pool by (issue 17, item 5).
+  const SUBJECTS = ['people', 'animals', 'plants', 'landscape', 'water-sky', 'buildings-street', 'interior', 'objects-food', 'vehicles', 'texture'];
+
+  it('keeps its columns in order, subject last, so readers by position still work', async () => {
+    const { header } = await photoList();
+    expect(header).toEqual(['name', 'package', 'version', 'path', 'author', 'licence', 'use', 'note', 'subject']);
+  });
+
+  it('gives every row a package, version, path, author, licence, a use and a subject from the fixed set', async () => {
+    const { rows } = await photoList();
+    expect(rows.length).toBeGreaterThan(0);
+    for (const row of rows) {
+      for (const column of ['name', 'package', 'version', 'path', 'author', 'licence']) expect(row[column], `${row.name}: ${column}`).not.toBe('');
+      expect(['pool', 'demo'], row.name).toContain(row.use);
+      expect(SUBJECTS, row.name).toContain(row.subject);
+      expect(row.name!.startsWith(`${row.package}--`), row.name).toBe(true);
+    }
+    expect(new Set(rows.map((r) => r.name)).size).toBe(rows.length);
+    // One file taken twice under two names would count twice and could cross the held-out split.
+    expect(new Set(rows.map((r) => `${r.package} ${r.path}`)).size).toBe(rows.length);
+  });
+
+  it('keeps the demo album and the packages reserved for independent checks out of the pool', async () => {
+    const { rows } = await photoList();
+    // The demo album's originals, as demo-photos/SOURCES.md names them (package and path in the package).
+    const sources = await readFile(join(ROOT, 'demo-photos', 'SOURCES.md'), 'utf8');
+    const demo = [...sources.matchAll(/^\| `wrenfold-[^|]+\|[^|]+\|[^|]+\| ([^ ]+) \([^)]+\) \| ([^|]+) \|/gm)].map((m) => ({
+      pkg: m[1]!,
+      path: [...m[2]!.matchAll(/`([^`]+)`/g)].map((p) => p[1]).join('!'),
+    }));
+    expect(demo).toHaveLength(7);
+    for (const { pkg, path } of demo) {
+      const listed = rows.filter((r) => r.package === pkg && r.path === path);
+      expect(listed.map((r) => r.use), `${pkg} ${path}`).toEqual(['demo']);
+    }
+    // Reserved by issue 17: kphotoalbum and scratch, and the sample images of scientific, plotting,
+    // image-processing and computer-vision libraries.
+    const reserved = [/^kphotoalbum/, /^scratch/, /^libvips/, /^imagemagick/, /^graphicsmagick/, /^cimg-/, /^visp/, /^insighttoolkit/, /^python-pil/, /^python-skimage/, /^python3-skimage/, /^opencv/, /^libopencv/, /^octave/, /^matplotlib/, /^python-matplotlib/, /^scilab/];
+    for (const row of rows.filter((r) => r.use === 'pool')) {
+      expect(reserved.some((re) => re.test(row.package!)), `${row.name} comes from a reserved package`).toBe(false);
+    }
+  });
+});
+
+/**
+ * A zip archive (the layout of a .jar) written by the book: PKWARE APPNOTE 6.3.x, local file header,
+ * central directory header and end of central directory record (sections 4.3.7, 4.3.12, 4.3.16, from memory).
+ */
+function zipArchive(entries: { name: string; data: Buffer; deflate: boolean; badCrc?: boolean }[]): Buffer {
+  const locals: Buffer[] = [];
+  const centrals: Buffer[] = [];
+  let offset = 0;
+  for (const e of entries) {
+    const name = Buffer.from(e.name, 'utf8');
+    const body = e.deflate ? deflateRawSync(e.data) : e.data;
+    const crc = (crc32(e.data) ^ (e.badCrc ? 1 : 0)) >>> 0;
+    // Local and central headers hold the same run of fields (method, time, date, CRC-32, sizes, name
+    // length), at offset 8 in the local header and 10 in the central one.
+    const fields = (header: Buffer, at: number) => {
+      header.writeUInt16LE(e.deflate ? 8 : 0, at);
+      header.writeUInt32LE(crc, at + 6);
+      header.writeUInt32LE(body.length, at + 10);
+      header.writeUInt32LE(e.data.length, at + 14);
+      header.writeUInt16LE(name.length, at + 18);
+    };
+    const local = Buffer.alloc(30);
+    local.writeUInt32LE(0x04034b50, 0);
+    local.writeUInt16LE(20, 4);
+    fields(local, 8);
+    // An extra field in the local header only, as some archivers write: the reader must skip it.
+    const extra = Buffer.from([0xfe, 0xca, 0x00, 0x00]);
+    local.writeUInt16LE(extra.length, 28);
+    const central = Buffer.alloc(46);
+    central.writeUInt32LE(0x02014b50, 0);
+    central.writeUInt16LE(20, 4);
+    central.writeUInt16LE(20, 6);
+    fields(central, 10);
+    central.writeUInt32LE(offset, 42);
+    locals.push(local, name, extra, body);
+    centrals.push(central, name);
+    offset += local.length + name.length + extra.length + body.length;
+  }
+  const directory = Buffer.concat(centrals);
+  const end = Buffer.alloc(22);
+  end.writeUInt32LE(0x06054b50, 0);
+  end.writeUInt16LE(entries.length, 8);
+  end.writeUInt16LE(entries.length, 10);
+  end.writeUInt32LE(directory.length, 12);
+  end.writeUInt32LE(offset, 16);
+  return Buffer.concat([...locals, directory, end]);
+}
+
+describe('copying a photo out of a package (models/extract-photo.mjs)', () => {
+  const extract = (root: string, spec: string, out: string) =>
+    spawnSync(process.execPath, [join(ROOT, 'models', 'extract-photo.mjs'), root, spec, out], { encoding: 'utf8' });
+
+  it('copies stored and deflated entries of a .jar byte for byte, and refuses a wrong CRC-32 or a missing entry', async () => {
+    const root = join(dir, 'package');
+    await import('node:fs/promises').then((fs) => fs.mkdir(join(root, 'usr', 'share', 'app'), { recursive: true }));
+    const jpeg = await sharp({ create: { width: 64, height: 48, channels: 3, background: { r: 200, g: 90, b: 40 } } }).jpeg().toBuffer();
+    const text = Buffer.from('not a photo, stored uncompressed');
+    await writeFile(
+      join(root, 'usr', 'share', 'app', 'app.jar'),
+      zipArchive([
+        { name: 'META-INF/notes.txt', data: text, deflate: false },
+        { name: 'res/textures/brick.jpg', data: jpeg, deflate: true },
+        { name: 'res/textures/broken.jpg', data: jpeg, deflate: true, badCrc: true },
+      ]),
+    );
+    const jar = 'usr/share/app/app.jar';
+    const out = join(dir, 'extracted');
+
+    expect(extract(root, `${jar}!res/textures/brick.jpg`, join(out, 'brick.jpg')).status).toBe(0);
+    expect(await readFile(join(out, 'brick.jpg'))).toEqual(jpeg);
+    expect(extract(root, `${jar}!META-INF/notes.txt`, join(out, 'notes.txt')).status).toBe(0);
+    expect(await readFile(join(out, 'notes.txt'))).toEqual(text);
+
+    const bad = extract(root, `${jar}!res/textures/broken.jpg`, join(out, 'broken.jpg'));
+    expect(bad.status).not.toBe(0);
+    expect(bad.stderr).toMatch(/CRC-32/);
+    const missing = extract(root, `${jar}!res/textures/none.jpg`, join(out, 'none.jpg'));
+    expect(missing.status).not.toBe(0);
+    expect(missing.stderr).toMatch(/no entry res\/textures\/none\.jpg/);
   });
 });
