@@ -6,6 +6,7 @@ import type { Argv } from 'yargs';
 import { UsageError } from '../errors.js';
 import type { Evaluation, FitEvent, FitOptions, FitResult } from '../training/index.js';
 import { formatDuration, Progress } from './progress.js';
+import { onStopSignals } from './stop-signals.js';
 
 /** Options both verbs take, as yargs parses them. */
 export interface FitArgs {
@@ -98,12 +99,12 @@ export async function runWithProgress(
 ): Promise<FitResult> {
   const progress = new Progress();
   const controller = new AbortController();
-  const onSigint = (): void => {
+  const onStop = (): void => {
     progress.log(`kinhue ${verb}: stopping after this step and writing a checkpoint (Ctrl-C again to quit at once)`);
     controller.abort();
-    process.off('SIGINT', onSigint);
+    release();
   };
-  process.on('SIGINT', onSigint);
+  const release = onStopSignals(onStop);
   const onEvent = (event: FitEvent): void => {
     switch (event.type) {
       case 'reading':
@@ -148,7 +149,7 @@ export async function runWithProgress(
     console.log(summaryTable(result));
     return result;
   } finally {
-    process.off('SIGINT', onSigint);
+    release();
     progress.done();
   }
 }
