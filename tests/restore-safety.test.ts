@@ -106,6 +106,13 @@ describe('an output never replaces an input', () => {
     expect(await Promise.all(['scans/a.png', 'other/b.png', 'other/c.png'].map((f) => sha(join(top, f))))).toEqual(before);
     expect((await readdir(join(top, 'scans'))).sort()).toEqual(['a.png']); // no confidence map or record beside the scan
     expect((await readdir(join(out, 'other'))).sort()).toEqual(['b.confidence.png', 'b.kinhue.json', 'b.png', 'c.png']);
+
+    // As JPEG, a's result would be a new file, but still in the scans' own folder through the link: refused too.
+    const asJpeg = await run([join(top, 'scans'), join(top, 'other')], out, { format: 'jpeg' });
+    expect(asJpeg.failed.map((f) => [f.rel, f.code])).toEqual([['scans/a.png', 'KH_OUTPUT_ON_INPUT']]);
+    expect(asJpeg.failed[0]!.message).toMatch(/written into .*the folder of the input/);
+    expect(asJpeg.done).toBe(2);
+    expect(await readdir(join(top, 'scans'))).toEqual(['a.png']);
   });
 });
 

@@ -146,7 +146,9 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   const discovery = await discoverInputs(options.inputs, outDir);
   const notes = [...discovery.notes];
   const failures: FileFailure[] = discovery.problems.map((p) => ({ source: p.path, rel: p.rel, code: p.code, message: p.message, hint: p.hint }));
-  const guard = await InputGuard.of(discovery.files.map((f) => f.path), 'choose an --out folder that is not your scans folder, nor a link to it');
+  const guard = await InputGuard.of(discovery.files.map((f) => f.path), {
+    hint: 'choose an --out folder that is not your scans folder and holds no link to it', outsideInputFolders: true,
+  });
   const outputs = planOutputs(discovery.files, settings.format);
   const manifestPath = `${outDir}/${MANIFEST_NAME}`;
   await guard.check(manifestPath);

@@ -4,9 +4,9 @@
  * refused, and so is writing into a folder that is, or holds, an input folder.
  */
 import { readdir } from 'node:fs/promises';
-import { join } from 'node:path';
+import { dirname, join } from 'node:path';
 import { ErrorCodes, KinhueError } from '../errors.js';
-import { identify, isWithin, type PathIdentity } from './identity.js';
+import { identify, isWithin } from './identity.js';
 
 /** KH_OUTPUT_ON_INPUT: naming the output, the input it would replace, and what to do. */
 export class OutputOnInputError extends KinhueError {
@@ -22,8 +22,19 @@ export class OutputOnInputError extends KinhueError {
 /** The default next step: most often the output folder is the input folder under another name. */
 export const OUTPUT_ON_INPUT_HINT = 'choose an output that is not one of your inputs, nor a link to them or to their folder';
 
+/** How strict a guard is. */
+export interface GuardOptions {
+  /** The next step named in a refusal. */
+  hint?: string;
+  /**
+   * Also refuse outputs that would be written into a folder holding inputs (through a link inside the
+   * output folder, say), for commands whose results belong in their output folder only.
+   */
+  outsideInputFolders?: boolean;
+}
+
 /**
- * The inputs of one command, by real path and by device and inode.
+ * The inputs of one command, by real path and by device and inode (and, when asked, their folders).
  * @example
  *   const guard = await InputGuard.of(['scans/a.jpg', 'scans/b.jpg']);
  *   await guard.check('restored/a.jpg'); // throws OutputOnInputError when restored/ is a link to scans/
@@ -31,38 +42,43 @@ export const OUTPUT_ON_INPUT_HINT = 'choose an output that is not one of your in
 export class InputGuard {
   private readonly byId = new Map<string, string>();
   private readonly byReal = new Map<string, string>();
-  private readonly folders: { path: string; identity: PathIdentity }[] = [];
+  private readonly byFolder = new Map<string, string>();
+  private readonly hint: string;
 
-  constructor(private readonly hint: string = OUTPUT_ON_INPUT_HINT) {}
+  constructor(private readonly options: GuardOptions = {}) {
+    this.hint = options.hint ?? OUTPUT_ON_INPUT_HINT;
+  }
 
   /** A guard over these input files. */
-  static async of(files: Iterable<string>, hint?: string): Promise<InputGuard> {
-    const guard = new InputGuard(hint);
+  static async of(files: Iterable<string>, options?: GuardOptions): Promise<InputGuard> {
+    const guard = new InputGuard(options);
     for (const file of files) await guard.add(file);
     return guard;
   }
 
-  /** Adds an input file, or a folder whose whole content is input (a model folder). */
-  async add(path: string, identity?: PathIdentity): Promise<void> {
-    const found = identity ?? (await identify(path));
-    if (found.directory) this.folders.push({ path, identity: found });
+  /** Adds an input file. */
+  async add(path: string): Promise<void> {
+    const found = await identify(path);
     if (found.id) this.byId.set(found.id, path);
     this.byReal.set(found.real, path);
+    if (this.options.outsideInputFolders) {
+      const folder = await identify(dirname(found.real));
+      if (folder.id && !this.byFolder.has(folder.id)) this.byFolder.set(folder.id, path);
+    }
   }
 
-  /** The input `output` would replace, if any. */
-  async inputAt(output: string): Promise<string | undefined> {
+  /** Throws OutputOnInputError when writing `output` would replace an input (or write into an input's folder, when asked). */
+  async check(output: string): Promise<void> {
     const found = await identify(output);
     const same = (found.id && this.byId.get(found.id)) || this.byReal.get(found.real);
-    if (same) return same;
-    for (const folder of this.folders) if (await isWithin(found, folder.identity)) return folder.path;
-    return undefined;
-  }
-
-  /** Throws OutputOnInputError when writing `output` would replace an input. */
-  async check(output: string): Promise<void> {
-    const input = await this.inputAt(output);
-    if (input !== undefined) throw new OutputOnInputError(output, input, this.hint);
+    if (same) throw new OutputOnInputError(output, same, this.hint);
+    if (!this.options.outsideInputFolders) return;
+    const folder = await identify(dirname(found.real));
+    const beside = folder.id && this.byFolder.get(folder.id);
+    if (beside) {
+      throw new OutputOnInputError(output, beside, this.hint,
+        `this output would be written into ${dirname(beside)}, the folder of the input ${beside} (through a link or another path); results go only into the output folder`);
+    }
   }
 }
 

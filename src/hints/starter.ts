@@ -31,7 +31,7 @@ export interface StarterResult {
  */
 export async function writeStarterHints(scan: string, options: StarterOptions = {}): Promise<StarterResult> {
   const path = options.out ?? hintsCandidates(scan).at(-1)!;
-  await (await InputGuard.of([scan], 'name another --out file for the hints')).check(path);
+  await (await InputGuard.of([scan], { hint: 'name another --out file for the hints' })).check(path);
   if (!options.force) {
     const exists = await access(path).then(() => true, () => false);
     if (exists) {

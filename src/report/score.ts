@@ -149,7 +149,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
   const files = discovered.files;
   const dirs = options.models?.length ? options.models : [DEFAULT_MODEL_DIR];
   if (options.out) {
-    const guard = await InputGuard.of(files.map((f) => f.path), 'choose an --out folder that is not a photo or model folder, nor a link to one');
+    const guard = await InputGuard.of(files.map((f) => f.path), { hint: 'choose an --out folder that is not a photo or model folder, nor a link to one' });
     for (const dir of dirs) for (const name of await readdir(dir).catch(() => [] as string[])) await guard.add(join(dir, name));
     for (const name of [SCORE_CSV, SCORE_JSON]) await guard.check(join(options.out, name));
   }

@@ -114,7 +114,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     otherFiles: set.otherFiles,
   });
   if (saved) checkSameData(saved, set, checkpointFile);
-  const guard = await InputGuard.of([...set.train, ...set.holdout].map((p) => p.file).concat(set.grey, set.unreadable.map((u) => u.file)), outHint);
+  const guard = await InputGuard.of([...set.train, ...set.holdout].map((p) => p.file).concat(set.grey, set.unreadable.map((u) => u.file)), { hint: outHint });
   if (mode === 'tune' && options.from) for (const name of await readdir(options.from).catch(() => [] as string[])) await guard.add(join(options.from, name));
   await checkFolderFiles(out, guard);
 
