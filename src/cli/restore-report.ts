@@ -8,7 +8,7 @@ import { formatDuration } from './progress.js';
 /**
  * One line per discovered file: what a run would do with it.
  * @example
- *   formatPlan(summary.files); // "run    scans/a.jpg -> a.jpg\nskip   scans/b.tif -> b.tif (finished)"
+ *   formatPlan(summary.files); // "run       scans/a.jpg -> a.jpg\nskip      scans/b.tif -> b.tif  (finished earlier, same settings)"
  */
 export function formatPlan(files: PlannedFile[]): string {
   const label = { run: 'run     ', retry: 'retry   ', skip: 'skip    ', conflict: 'conflict', refuse: 'refuse  ' } as const;
