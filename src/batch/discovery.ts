@@ -145,7 +145,7 @@ export async function discoverInputs(inputs: string[], outDir: string): Promise<
     throw new UsageError(`no image files found in ${inputs.join(', ')} (looked for ${IMAGE_EXTENSIONS.join(' ')})\n${example}`);
   }
   const base = roots.length ? commonBase(roots) : resolve('.');
-  const relOf = (path: string): string => (isInside(path, base) ? relative(base, path).split(sep).join('/') : path);
+  const relOf = (path: string): string => (isInside(path, base) && path !== base ? relative(base, path).split(sep).join('/') : path);
   const byRel = <T extends { rel: string }>(x: T, y: T): number => (x.rel < y.rel ? -1 : x.rel > y.rel ? 1 : 0);
   const files = [...found.values()].map((path) => ({ path, rel: relOf(path) })).sort(byRel);
   const problems = walkProblems
