@@ -1,7 +1,8 @@
 /**
  * The promise that kinhue never changes an input, checked where outputs are planned: an output that
  * leads to an input file (the same path, a link to it, a hard link, or a bind mount of its folder) is
- * refused, and so is writing into a folder that is, or holds, an input folder.
+ * refused; restore also refuses outputs that reach a folder holding inputs, and train/tune an output
+ * folder that is, or holds, an input (`inputInside`).
  */
 import { readdir } from 'node:fs/promises';
 import { dirname, join } from 'node:path';
