@@ -26,6 +26,10 @@ export const ErrorCodes = {
   BAD_HINTS: 'KH_BAD_HINTS',
   /** An output could not be written. */
   WRITE_FAILED: 'KH_WRITE_FAILED',
+  /** An output would replace an input (the same file through a link, a bind mount or another spelling). */
+  OUTPUT_ON_INPUT: 'KH_OUTPUT_ON_INPUT',
+  /** An output folder holds another scan's result under the name this scan's result would take. */
+  OUTPUT_CONFLICT: 'KH_OUTPUT_CONFLICT',
 } as const;
 
 export type ErrorCode = (typeof ErrorCodes)[keyof typeof ErrorCodes];

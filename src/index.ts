@@ -1,5 +1,6 @@
 // The public API of kinhue. Re-exports only.
 export * from './errors.js';
+export * from './files/index.js';
 export { VERSION } from './version.js';
 export * from './colour/index.js';
 export * from './model/index.js';

@@ -1,9 +1,13 @@
-import { mkdir, mkdtemp, rm, writeFile } from 'node:fs/promises';
+import { mkdir, mkdtemp, readFile, rm, symlink, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
+import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { appendManifest, discoverInputs, planOutputs, readManifest, settingsKey, type RestoreSettings } from '../src/batch/index.js';
+import {
+  appendManifest, discoverInputs, loadManifest, planOutputs, readManifest, settingsKey, terminateManifest, type RestoreSettings,
+} from '../src/batch/index.js';
 import { UsageError } from '../src/errors.js';
+import { fitName, NAME_MAX_BYTES, tempPathFor, temporaryOwner } from '../src/files/index.js';
 
 let root: string;
 
@@ -39,6 +43,59 @@ describe('discoverInputs', () => {
     expect(d.files.filter((f) => f.rel === 'b.jpg')).toHaveLength(1);
   });
 
+  it('finds GIF and AVIF scans by folder and by glob, as it reads them', async () => {
+    const folder = join(root, 'formats');
+    await mkdir(folder, { recursive: true });
+    const grey = sharp({ create: { width: 16, height: 16, channels: 3, background: '#777777' } });
+    await grey.clone().gif().toFile(join(folder, 'a.gif'));
+    await grey.clone().avif().toFile(join(folder, 'b.AVIF'));
+    expect((await discoverInputs([folder], join(root, 'out'))).files.map((f) => f.rel)).toEqual(['a.gif', 'b.AVIF']);
+    expect((await discoverInputs([`${folder}/*`], join(root, 'out'))).files.map((f) => f.rel)).toEqual(['a.gif', 'b.AVIF']);
+  });
+
+  it('follows links to folders but searches each real folder once, keeping the direct path', async () => {
+    const top = join(root, 'looped');
+    await mkdir(join(top, 'sub'), { recursive: true });
+    await writeFile(join(top, 'a.jpg'), 'x');
+    await writeFile(join(top, 'sub', 'b.jpg'), 'x');
+    await symlink('..', join(top, 'sub', 'back')); // a loop back to the top
+    await symlink(join(top, 'sub'), join(top, 'again')); // the same folder twice
+    await symlink('a.jpg', join(top, 'a-link.jpg')); // the same file twice
+    const d = await discoverInputs([top], join(root, 'out'));
+    expect(d.files.map((f) => f.rel)).toEqual(['a.jpg', 'sub/b.jpg']);
+    expect(d.problems).toEqual([]);
+  });
+
+  it('reports broken links and link loops, named or found in a folder, and goes on', async () => {
+    const top = join(root, 'links');
+    await mkdir(top, { recursive: true });
+    await writeFile(join(top, 'good.jpg'), 'x');
+    await symlink(join(top, 'gone.jpg'), join(top, 'broken.jpg'));
+    await symlink(join(top, 'loop-b.jpg'), join(top, 'loop-a.jpg'));
+    await symlink(join(top, 'loop-a.jpg'), join(top, 'loop-b.jpg'));
+    const inFolder = await discoverInputs([top], join(root, 'out'));
+    expect(inFolder.files.map((f) => f.rel)).toEqual(['good.jpg']);
+    expect(inFolder.problems.map((p) => [p.rel, p.code])).toEqual([
+      ['broken.jpg', 'KH_UNREADABLE'], ['loop-a.jpg', 'KH_UNREADABLE'], ['loop-b.jpg', 'KH_UNREADABLE'],
+    ]);
+    expect(inFolder.problems[0]!.message).toMatch(/does not exist/);
+    expect(inFolder.problems[1]!.message).toMatch(/loop/);
+    const named = await discoverInputs([join(top, 'good.jpg'), join(top, 'broken.jpg'), join(top, 'loop-a.jpg')], join(root, 'out'));
+    expect(named.files.map((f) => f.rel)).toEqual(['good.jpg']);
+    expect(named.problems.map((p) => p.rel)).toEqual(['broken.jpg', 'loop-a.jpg']);
+    for (const p of named.problems) expect(p.hint).toMatch(/fix or remove the link/);
+  });
+
+  it('refuses an output folder that is the input folder through a link, either way round', async () => {
+    const scans = join(root, 'same');
+    await mkdir(scans, { recursive: true });
+    await writeFile(join(scans, 'x.jpg'), 'x');
+    await symlink(scans, join(root, 'same-link'));
+    await expect(discoverInputs([scans], join(root, 'same-link'))).rejects.toThrow(/is the output folder/);
+    await expect(discoverInputs([join(root, 'same-link', 'x.jpg')], scans)).rejects.toThrow(/lies in the output folder/);
+    await expect(discoverInputs([join(root, 'same-link')], join(scans, '.'))).rejects.toBeInstanceOf(UsageError);
+  });
+
   it('refuses an input folder inside the output folder, a missing path, and finding nothing', async () => {
     await expect(discoverInputs([join(root, 'scans', 'restored')], join(root, 'scans'))).rejects.toBeInstanceOf(UsageError);
     await expect(discoverInputs([join(root, 'nope')], join(root, 'out'))).rejects.toThrow(/no such file or folder/);
@@ -61,6 +118,18 @@ describe('planOutputs', () => {
     expect(p[2]).toMatchObject({ confidence: 'sub/b.confidence.png', record: 'sub/b.kinhue.json' });
   });
 
+  it('shortens names too long for the file system the same way every time', () => {
+    const long = `${'é'.repeat(121)}.tif`; // 246 bytes: its stem with .confidence.png would be 257
+    const [planned] = planOutputs([{ path: `/s/${long}`, rel: `sub/${long}` }], 'same');
+    for (const name of [planned!.image, planned!.confidence, planned!.record]) {
+      expect(Buffer.byteLength(name.slice('sub/'.length)), name).toBeLessThanOrEqual(NAME_MAX_BYTES);
+      expect(name.startsWith('sub/éé')).toBe(true);
+    }
+    expect(planOutputs([{ path: `/s/${long}`, rel: `sub/${long}` }], 'same')).toEqual([planned]);
+    const short = planOutputs([{ path: '/s/a.tif', rel: 'a.tif' }], 'same')[0]!;
+    expect(short.confidence).toBe('a.confidence.png');
+  });
+
   it('never gives two sources one output name, whatever the format', () => {
     for (const format of ['png', 'jpeg', 'tiff', 'webp'] as const) {
       const names = planOutputs([...files, { path: '/s/a_jpg.png', rel: 'a_jpg.png' }], format).flatMap((o) => [o.image, o.confidence, o.record]);
@@ -79,6 +148,29 @@ describe('manifest', () => {
     expect(settingsKey({ ...settings, temperature: 0.5 })).not.toBe(settingsKey(settings));
   });
 
+  it('ends a torn last line, notes it, and never loses a record glued onto one', async () => {
+    const path = join(root, 'torn.jsonl');
+    const base = { time: 't', source: '/s/a.png', settings: 'k' };
+    await appendManifest(path, { ...base, output: 'a.png', status: 'done', sha256: 'h' });
+    await writeFile(path, '{"time":"t","status":"do', { flag: 'a' }); // a run killed while appending
+    const before = await loadManifest(path);
+    expect(before.torn).toBe(true);
+    expect(before.notes).toEqual([expect.stringMatching(/torn\.jsonl line 2 was cut short/)]);
+    await terminateManifest(path);
+    await appendManifest(path, { ...base, output: 'b.png', status: 'done', sha256: 'i' });
+    const after = await loadManifest(path);
+    expect(after.torn).toBe(false);
+    expect([...after.records.keys()]).toEqual(['a.png', 'b.png']);
+
+    // What an unrepaired manifest looks like after the next run: its record glued onto the torn line.
+    const glued = join(root, 'glued.jsonl');
+    await writeFile(glued, `{"time":"t","status":"do${JSON.stringify({ ...base, output: 'c.png', status: 'done' })}\nnot json\n`);
+    const read = await loadManifest(glued);
+    expect(read.records.get('c.png')?.status).toBe('done');
+    expect(read.notes).toEqual([expect.stringMatching(/line 1 starts with a record cut short/), expect.stringMatching(/line 2 is not a record/)]);
+    expect((await readFile(glued, 'utf8')).endsWith('\n')).toBe(true);
+  });
+
   it('keeps the last record per output and ignores a torn line', async () => {
     const path = join(root, 'm.jsonl');
     const base = { time: 't', source: '/s/a.png', output: 'a.png', settings: 'k' };
@@ -88,5 +180,21 @@ describe('manifest', () => {
     const last = await readManifest(path);
     expect(last.get('a.png')).toMatchObject({ status: 'done', sha256: 'h' });
     expect((await readManifest(join(root, 'missing.jsonl'))).size).toBe(0);
+  });
+});
+
+describe('temporary names', () => {
+  it('stay within the file-system limit, carry the process id, and cut only between characters', () => {
+    const name = `${'ü'.repeat(120)}.confidence.png`; // 255 bytes already
+    const temp = tempPathFor(join('/out', name));
+    const base = temp.slice('/out/'.length);
+    expect(Buffer.byteLength(base)).toBeLessThanOrEqual(NAME_MAX_BYTES);
+    expect(temporaryOwner(base)).toBe(process.pid);
+    expect(base).not.toContain('\uFFFD');
+    expect(fitName(name, 100)).toBe(fitName(name, 100));
+    expect(fitName(name, 100)).not.toBe(fitName(`${name}x`, 100));
+    expect(fitName('short.png', 100)).toBe('short.png');
+    expect(temporaryOwner('notes.tmp')).toBeUndefined();
+    expect(temporaryOwner('a.png.123.0badf00d.tmp')).toBe(123);
   });
 });

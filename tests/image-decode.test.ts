@@ -9,7 +9,7 @@ import { converter } from 'culori';
 import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { ciede2000, greyToLightness, lightnessToGrey, srgbToLab } from '../src/colour/index.js';
-import { ErrorCodes, InputError, type KinhueError } from '../src/errors.js';
+import { ErrorCodes, InputError, UsageError, type KinhueError } from '../src/errors.js';
 import { decodeBuffer, decodeImage, encodeImage, resolveMaxPixels, DEFAULT_MAX_PIXELS } from '../src/image/index.js';
 
 const toRgb = converter('rgb');
@@ -313,7 +313,11 @@ describe('input errors', () => {
     expect(DEFAULT_MAX_PIXELS).toBeGreaterThanOrEqual(100e6); // a 100-megapixel scan must pass
     expect(resolveMaxPixels(undefined, {})).toBe(DEFAULT_MAX_PIXELS);
     expect(resolveMaxPixels(undefined, { KINHUE_MAX_PIXELS: '600e6' })).toBe(600e6);
-    expect(resolveMaxPixels(undefined, { KINHUE_MAX_PIXELS: 'lots' })).toBe(DEFAULT_MAX_PIXELS);
+    expect(resolveMaxPixels(undefined, { KINHUE_MAX_PIXELS: ' ' })).toBe(DEFAULT_MAX_PIXELS);
+    // Not a whole number of pixels a file could have: refused, never silently replaced by another limit.
+    for (const bad of ['lots', '1e99', '-5', '0', '1.5', 'abc', '9007199254740993']) {
+      expect(() => resolveMaxPixels(undefined, { KINHUE_MAX_PIXELS: bad }), bad).toThrow(UsageError);
+    }
     expect(resolveMaxPixels(5000, { KINHUE_MAX_PIXELS: '600e6' })).toBe(5000);
 
     const file = join(dir, 'big.png');

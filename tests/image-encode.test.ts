@@ -10,7 +10,7 @@ import { ErrorCodes, KinhueError } from '../src/errors.js';
 import { pngWithIcc } from '../src/image/containers.js';
 import {
   decodeBuffer, decodeImage, encodeBuffer, encodeImage, exifOrientation, extensionFor, formatForPath,
-  provenanceXmp, writeAtomic, writeFileAtomic, type OutputFormat, type Pixels,
+  provenanceXmp, writeAtomic, writeFileAtomic, writeGreyMap, type OutputFormat, type Pixels,
 } from '../src/image/index.js';
 import { VERSION } from '../src/version.js';
 import { greyGammaProfile } from './image-icc-profile.js';
@@ -289,5 +289,30 @@ describe('atomic writes', () => {
     expect(error.code).toBe(ErrorCodes.WRITE_FAILED);
     expect(error.describe()).toContain(out);
     expect(error.describe()).toMatch(/next step: \S/);
+  });
+});
+
+describe('pixel limit', () => {
+  it('encodes a scan above libvips\' own 268-megapixel default and within kinhue\'s 300', async () => {
+    // libvips' default limit is 0x3FFF squared = 268,402,689 pixels (sharp's documented
+    // limitInputPixels default); 16400 x 16400 = 268,960,000 is just above it.
+    const side = 16_400;
+    const pixels: Pixels = { width: side, height: side, channels: 1, depth: 8, data: new Uint8Array(side * side).fill(118) };
+    const { data } = await encodeBuffer(pixels, { format: 'png' });
+    const meta = await sharp(data, { limitInputPixels: false }).metadata();
+    expect([meta.width, meta.height]).toEqual([side, side]);
+  });
+
+  it('takes its limit from KINHUE_MAX_PIXELS, as decoding does', async () => {
+    const saved = process.env.KINHUE_MAX_PIXELS;
+    process.env.KINHUE_MAX_PIXELS = '1000';
+    try {
+      await expect(encodeBuffer(gradient(40, 40), { format: 'png' })).rejects.toThrow(/pixel limit/);
+      await expect(writeGreyMap(new Uint8Array(40 * 40), 40, 40, 80, 80, join(dir, 'limited.png'))).rejects.toThrow(/pixel limit/);
+      expect((await encodeBuffer(gradient(40, 20), { format: 'png' })).data.length).toBeGreaterThan(0);
+    } finally {
+      if (saved === undefined) delete process.env.KINHUE_MAX_PIXELS;
+      else process.env.KINHUE_MAX_PIXELS = saved;
+    }
   });
 });

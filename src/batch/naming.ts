@@ -2,9 +2,11 @@
  * Output names: each source's relative path mirrored under the output folder, in the chosen format,
  * with `<name>.confidence.png` and `<name>.kinhue.json` beside it. Two inputs never share an output name:
  * sources differing only by extension (or letter case) get the extension in their name, and any
- * remaining clash gets a number.
+ * remaining clash gets a number. A name too long for the file system with `.confidence.png` added is
+ * shortened the same way every time (see fitName).
  */
 import { extname, posix } from 'node:path';
+import { fitName, NAME_MAX_BYTES } from '../files/index.js';
 import { extensionFor, formatForPath, type OutputFormat } from '../image/index.js';
 import type { SourceFile } from './discovery.js';
 import type { FormatChoice } from './options.js';
@@ -43,9 +45,10 @@ export function planOutputs(files: SourceFile[], choice: FormatChoice): PlannedO
     const ext = choice === 'same' && formatForPath(f.path) ? sourceExt : extensionFor(format);
     let stem = stemOf(f.rel);
     if ((groups.get(stem.toLowerCase()) ?? 0) > 1 && sourceExt) stem = `${stem}_${sourceExt.slice(1).toLowerCase()}`;
+    stem = fitStem(stem, Math.max(Buffer.byteLength(ext), Buffer.byteLength(CONFIDENCE_SUFFIX)));
     let candidate = stem;
     for (let n = 2; ; n++) {
-      const names = [`${candidate}${ext}`, `${candidate}.confidence.png`, `${candidate}.kinhue.json`];
+      const names = [`${candidate}${ext}`, `${candidate}${CONFIDENCE_SUFFIX}`, `${candidate}.kinhue.json`];
       if (names.every((name) => !used.has(name.toLowerCase()))) {
         for (const name of names) used.add(name.toLowerCase());
         return { image: names[0]!, confidence: names[1]!, record: names[2]!, format };
@@ -53,6 +56,16 @@ export function planOutputs(files: SourceFile[], choice: FormatChoice): PlannedO
       candidate = `${stem}-${n}`;
     }
   });
+}
+
+const CONFIDENCE_SUFFIX = '.confidence.png';
+
+/** The stem with its last part shortened when that part plus `suffixBytes` would pass the name limit (room kept for a `-n`). */
+function fitStem(stem: string, suffixBytes: number): string {
+  const cut = stem.lastIndexOf('/') + 1;
+  const name = stem.slice(cut);
+  if (Buffer.byteLength(name) + suffixBytes <= NAME_MAX_BYTES) return stem;
+  return stem.slice(0, cut) + fitName(name, NAME_MAX_BYTES - suffixBytes - 4);
 }
 
 /** The folder part of a planned relative path ('' at the top). */

@@ -5,7 +5,7 @@
  * atomically. The full-resolution stage runs in strips of rows, so a 100-megapixel scan never exists as
  * float planes.
  */
-import { stat, mkdir } from 'node:fs/promises';
+import { mkdir, rm, stat } from 'node:fs/promises';
 import { dirname, relative, sep } from 'node:path';
 import { greyToLightness, labToSrgb, limitChroma, sliceRows } from '../colour/index.js';
 import {
@@ -181,15 +181,25 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
       record: baseName(outputs.record),
     },
   });
+  // A result is its image, confidence map and record together: when one cannot be written, the
+  // parts already written are removed, so no result stands without its record.
+  const written: string[] = [];
+  const undo = async (error: unknown): Promise<never> => {
+    await Promise.all(written.map((path) => rm(path, { force: true }).catch(() => undefined)));
+    throw error;
+  };
   const encoded = await encodeImage(
     { width: W, height: H, channels: outChannels, depth: outDepth, data: out } as Pixels,
     imagePath,
-    { format: outputs.format, quality: settings.quality ?? undefined, exif: decoded.exif, icc: decoded.icc, xmp },
+    { format: outputs.format, quality: settings.quality ?? undefined, exif: decoded.exif, icc: decoded.icc, xmp, maxPixels: job.maxPixels },
   );
+  written.push(imagePath);
   warnings.push(...encoded.warnings);
   if (settings.confidence) {
     const conf = Uint8Array.from(work.confidence, (v) => Math.round(Math.min(1, Math.max(0, v)) * 255));
-    await writeGreyMap(conf, work.confidenceWidth, work.confidenceHeight, W, H, underFolder(job.outDir, outputs.confidence));
+    const confidencePath = underFolder(job.outDir, outputs.confidence);
+    await writeGreyMap(conf, work.confidenceWidth, work.confidenceHeight, W, H, confidencePath, job.maxPixels).catch(undo);
+    written.push(confidencePath);
   }
   const tEncode = clock();
 
@@ -228,7 +238,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
     ...(guidance.record.hints || guidance.record.reference ? { guidance: guidance.record } : {}),
   };
   record.timings.total = Math.round(performance.now() - t0);
-  await writeFileAtomic(underFolder(job.outDir, outputs.record), `${JSON.stringify(record, null, 2)}\n`);
+  await writeFileAtomic(underFolder(job.outDir, outputs.record), `${JSON.stringify(record, null, 2)}\n`).catch(undo);
   return {
     record,
     size: info?.size ?? 0,

@@ -3,13 +3,15 @@
  * not already finished on a queue of worker threads, recording each outcome as it lands. One bad file is
  * recorded and the run goes on; a stop request lets files in progress finish and starts no new one.
  */
-import { mkdir, readdir, rm, stat } from 'node:fs/promises';
+import { mkdir, stat } from 'node:fs/promises';
 import { dirname, resolve } from 'node:path';
 import pLimit from 'p-limit';
-import { ErrorCodes, isKinhueError, ModelError, UsageError } from '../errors.js';
+import { ErrorCodes, isKinhueError, KinhueError, ModelError, UsageError } from '../errors.js';
+import { identify, InputGuard, removeTemporaryFiles } from '../files/index.js';
+import { resolveMaxPixels } from '../image/index.js';
 import { readModelInfo } from './model-info.js';
 import { discoverInputs, underFolder } from './discovery.js';
-import { appendManifest, readManifest, type ManifestRecord } from './manifest.js';
+import { appendManifest, loadManifest, terminateManifest, type ManifestRecord } from './manifest.js';
 import { planOutputs, type PlannedOutputs } from './naming.js';
 import { DEFAULT_MODEL_DIR, chooseDecoding } from '../model/index.js';
 import { cachedReference, hintsFingerprint } from '../hints/index.js';
@@ -19,8 +21,11 @@ import type { FileJob, ProvenanceRecord } from './restore-file.js';
 import { serialiseError, type SerialisedError } from './worker-protocol.js';
 import { fileSha256 } from './hash.js';
 
-/** What happens to one discovered file. */
-export type PlanAction = 'run' | 'retry' | 'skip';
+/**
+ * What happens to one discovered file: `conflict` when the output folder holds another scan's result
+ * under this scan's output name, `refuse` when an output would replace an input.
+ */
+export type PlanAction = 'run' | 'retry' | 'skip' | 'conflict' | 'refuse';
 
 export interface PlannedFile {
   source: string;
@@ -42,8 +47,16 @@ export interface FileFailure {
   hint?: string;
 }
 
+/** A hints file (or the --hints folder) that was not used: the scan was restored without its guidance. */
+export interface HintsNotUsed {
+  /** The scan, relative to the inputs' base; absent for the --hints folder itself. */
+  rel?: string;
+  file: string;
+  reason: string;
+}
+
 export type RestoreEvent =
-  | { type: 'plan'; files: PlannedFile[]; toRun: number; skipped: number; outDir: string; notes: string[] }
+  | { type: 'plan'; files: PlannedFile[]; toRun: number; skipped: number; outDir: string; notes: string[]; failures: FileFailure[] }
   | { type: 'backend'; name: string; warning?: string }
   | { type: 'start'; rel: string }
   | { type: 'done'; rel: string; output: string; seconds: number; done: number; failed: number; total: number; warnings: string[] }
@@ -53,13 +66,16 @@ export type RestoreEvent =
 export interface RestoreSummary {
   outDir: string;
   manifest: string;
-  /** Files found. */
+  /** Files found, plus inputs that could not be searched (unreadable folders, broken links). */
   total: number;
   /** Restored in this run. */
   done: number;
   /** Already finished by an earlier run with the same settings. */
   skipped: number;
+  /** Files that failed, inputs that could not be searched, conflicts and refused outputs. */
   failed: FileFailure[];
+  /** Hints files not used (malformed, unreadable) and a --hints folder that does not exist. */
+  hintsNotUsed: HintsNotUsed[];
   /** Not started (or not finished) because the run was stopped. */
   notRun: number;
   interrupted: boolean;
@@ -86,6 +102,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   const modelDir = resolve(options.model ?? DEFAULT_MODEL_DIR);
   const jobs = options.jobs ?? defaultJobs();
   if (!Number.isInteger(jobs) || jobs < 1) throw new UsageError(`jobs must be a whole number of 1 or more, got ${jobs}`);
+  const maxPixels = resolveMaxPixels(options.maxPixels);
   const outInfo = await stat(outDir).catch(() => undefined);
   if (outInfo && !outInfo.isDirectory()) {
     throw new UsageError(`--out ${options.out} is a file, not a folder\nExample usage: kinhue restore scans/ --out restored/`);
@@ -115,33 +132,73 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.
   if (settings.reference) await cachedReference(settings.reference);
   const key = settingsKey(settings);
+  const hintsNotUsed: HintsNotUsed[] = [];
+  if (typeof settings.hints === 'string') {
+    const folder = await stat(settings.hints).catch(() => undefined);
+    if (!folder?.isDirectory()) {
+      hintsNotUsed.push({
+        file: settings.hints,
+        reason: `${folder ? 'is not a folder' : 'does not exist'}: the --hints folder was not searched (hints files beside the scans were still used)`,
+      });
+    }
+  }
 
   const discovery = await discoverInputs(options.inputs, outDir);
+  const notes = [...discovery.notes];
+  const failures: FileFailure[] = discovery.problems.map((p) => ({ source: p.path, rel: p.rel, code: p.code, message: p.message, hint: p.hint }));
+  const guard = await InputGuard.of(discovery.files.map((f) => f.path), {
+    hint: 'choose an --out folder that is not your scans folder and holds no link to it', outsideInputFolders: true,
+  });
   const outputs = planOutputs(discovery.files, settings.format);
   const manifestPath = `${outDir}/${MANIFEST_NAME}`;
-  const previous = await readManifest(manifestPath);
+  await guard.check(manifestPath);
+  const manifest = await loadManifest(manifestPath);
+  notes.push(...manifest.notes);
+  const previous = manifest.records;
   const files: PlannedFile[] = [];
   for (let i = 0; i < discovery.files.length; i++) {
     const f = discovery.files[i]!;
     const o = outputs[i]!;
     const last = previous.get(o.image);
     const hintsSha256 = settings.hints === false ? null : await hintsFingerprint(f.path, settings.hints || undefined, f.rel);
-    let action: PlanAction = last?.status === 'failed' ? 'retry' : 'run';
-    if (
+    const file: PlannedFile = { source: f.path, rel: f.rel, outputs: o, hintsSha256, action: last?.status === 'failed' ? 'retry' : 'run', status: 'planned' };
+    const fail = (action: PlanAction, error: KinhueError): void => {
+      file.action = action;
+      file.status = 'failed';
+      failures.push({ source: f.path, rel: f.rel, code: error.code, message: error.message, hint: error.hint });
+    };
+    const refused = await checkOutputs(guard, outDir, o).catch((error: unknown) => error as KinhueError);
+    if (refused) fail('refuse', refused);
+    else if (!options.force && last && (await conflicting(f.path, outDir, o, last))) {
+      fail('conflict', new KinhueError(ErrorCodes.OUTPUT_CONFLICT, `the output folder holds the result of another scan, ${last.source}, under this scan's name ${o.image}`, {
+        file: f.path,
+        hint: 'restore this album into its own --out folder, or add --force to replace the earlier result',
+      }));
+    } else if (
       !options.force && last?.status === 'done' && last.settings === key && (last.hintsSha256 ?? null) === hintsSha256 &&
       (await stillFinished(f.path, outDir, o, last))
     ) {
-      action = 'skip';
+      file.action = 'skip';
+      file.status = 'skipped';
     }
-    files.push({ source: f.path, rel: f.rel, outputs: o, hintsSha256, action, status: action === 'skip' ? 'skipped' : 'planned' });
+    files.push(file);
   }
-  const todo = files.filter((f) => f.action !== 'skip');
-  onEvent({ type: 'plan', files, toRun: todo.length, skipped: files.length - todo.length, outDir, notes: discovery.notes });
+  const todo = files.filter((f) => f.action === 'run' || f.action === 'retry');
+  const skipped = files.filter((f) => f.action === 'skip').length;
+  if (!options.dryRun) {
+    if (manifest.torn) await terminateManifest(manifestPath);
+    // Temporary files of runs that were killed: their processes are gone, so no one will finish them.
+    const folders = new Set([outDir, ...todo.map((f) => dirname(underFolder(outDir, f.outputs.image)))]);
+    let stale = 0;
+    for (const folder of folders) stale += (await removeTemporaryFiles(folder)).length;
+    if (stale) notes.push(`removed ${stale} temporary file${stale === 1 ? '' : 's'} left by an earlier run that was stopped`);
+  }
+  onEvent({ type: 'plan', files, toRun: todo.length, skipped, outDir, notes, failures });
 
   const summary: RestoreSummary = {
-    outDir, manifest: manifestPath, total: files.length, done: 0, skipped: files.length - todo.length, failed: [],
+    outDir, manifest: manifestPath, total: files.length + discovery.problems.length, done: 0, skipped, failed: failures, hintsNotUsed,
     notRun: 0, interrupted: false, dryRun: Boolean(options.dryRun), seconds: 0,
-    model: { dir: modelDir, name: model.name, weightsSha256: model.weightsSha256 }, settings, files, notes: discovery.notes,
+    model: { dir: modelDir, name: model.name, weightsSha256: model.weightsSha256 }, settings, files, notes,
   };
   if (options.dryRun || todo.length === 0) {
     summary.notRun = options.dryRun ? todo.length : 0;
@@ -176,14 +233,18 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   const runOne = async (file: PlannedFile): Promise<void> => {
     if (stopping || fatal) return;
     onEvent({ type: 'start', rel: file.rel });
-    const job: FileJob = { source: file.source, rel: file.rel, outDir, outputs: file.outputs, settings, maxPixels: options.maxPixels };
+    const job: FileJob = { source: file.source, rel: file.rel, outDir, outputs: file.outputs, settings, maxPixels };
     try {
+      // Again just before writing: links may have changed since the plan.
+      await checkOutputs(guard, outDir, file.outputs);
       const outcome = await pool.run(job);
       if (pool.backend && summary.backend === undefined) {
         summary.backend = pool.backend;
         onEvent({ type: 'backend', name: pool.backend, warning: pool.backendWarning });
       }
       await appendManifest(manifestPath, doneRecord(file, outcome.record, outcome, key));
+      const hints = outcome.record.guidance?.hints;
+      if (hints?.ignored) summary.hintsNotUsed.push({ rel: file.rel, file: hints.file, reason: hints.ignored });
       summary.done++;
       file.status = 'done';
       onEvent({
@@ -214,14 +275,40 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     options.signal?.removeEventListener('abort', onStop);
     options.hardSignal?.removeEventListener('abort', onHardStop);
     await pool.close();
-    if (hard) await removeTemporaryFiles(outDir, todo);
+    if (hard) {
+      const folders = new Set(todo.map((f) => dirname(underFolder(outDir, f.outputs.image))));
+      for (const folder of folders) await removeTemporaryFiles(folder, (pid) => pid === process.pid);
+    }
   }
   if (fatal) throw fatal;
   for (const f of todo) if (f.status === 'planned') f.status = 'not-run';
-  summary.notRun = todo.length - summary.done - summary.failed.length;
+  summary.notRun = todo.filter((f) => f.status === 'not-run').length;
   summary.interrupted = stopping && summary.notRun > 0;
   summary.seconds = (performance.now() - started) / 1000;
   return summary;
+}
+
+/** Throws OutputOnInputError when one of a scan's outputs would replace an input. */
+async function checkOutputs(guard: InputGuard, outDir: string, outputs: PlannedOutputs): Promise<void> {
+  for (const rel of [outputs.image, outputs.confidence, outputs.record]) await guard.check(underFolder(outDir, rel));
+}
+
+/**
+ * True when the output folder holds, under this scan's output name, what an earlier run made from
+ * another scan: a different source path that is not the same file (a link) nor the same bytes (a moved
+ * album), with some of its result still there.
+ */
+async function conflicting(source: string, outDir: string, outputs: PlannedOutputs, last: ManifestRecord): Promise<boolean> {
+  if (last.source === source) return false;
+  const present = await Promise.all([outputs.image, outputs.record, outputs.confidence].map((rel) => stat(underFolder(outDir, rel)).then(() => true, () => false)));
+  if (!present.some(Boolean)) return false;
+  const [now, then] = await Promise.all([identify(source), identify(last.source)]);
+  if (now.id && now.id === then.id) return false;
+  if (last.sha256) {
+    const sha = await fileSha256(source).catch(() => undefined);
+    if (sha === last.sha256) return false;
+  }
+  return true;
 }
 
 /** True when an earlier run's outputs are all present and the source is unchanged (size and time, else hash). */
@@ -270,16 +357,4 @@ function failedRecord(file: PlannedFile, failure: FileFailure, key: string): Man
     settings: key,
     error: { code: failure.code, message: failure.message, ...(failure.hint ? { hint: failure.hint } : {}) },
   };
-}
-
-/** After workers were ended mid-write: removes their temporary files (`<name>.<pid>.<random>.tmp`). */
-async function removeTemporaryFiles(outDir: string, files: PlannedFile[]): Promise<void> {
-  const folders = new Set(files.map((f) => dirname(underFolder(outDir, f.outputs.image))));
-  const marker = `.${process.pid}.`;
-  for (const folder of folders) {
-    const names = await readdir(folder).catch(() => [] as string[]);
-    for (const name of names) {
-      if (name.endsWith('.tmp') && name.includes(marker)) await rm(`${folder}/${name}`, { force: true }).catch(() => undefined);
-    }
-  }
 }

@@ -10,13 +10,15 @@ export const ExitCode = {
   USAGE: 2,
   /** A bug or an unexpected failure in kinhue itself. */
   INTERNAL: 3,
-  /** Stopped with Ctrl-C: finished files are complete, the next run goes on from there (128 + SIGINT). */
+  /** `restore` finished every scan, but some hints were not used (a malformed or unreadable hints file, a missing --hints folder). */
+  HINTS_NOT_USED: 4,
+  /** Stopped with Ctrl-C (or SIGTERM, SIGHUP): finished files are complete, the next run goes on from there (128 + SIGINT). */
   INTERRUPTED: 130,
 } as const;
 
-/** The exit code for an error that stopped a whole command. */
+/** The exit code for an error that stopped a whole command. An output refused because it is an input stops it before anything is written. */
 export function exitCodeFor(error: unknown): number {
-  if (isKinhueError(error)) return error.code === ErrorCodes.USAGE ? ExitCode.USAGE : ExitCode.SOME_FAILED;
+  if (isKinhueError(error)) return error.code === ErrorCodes.USAGE || error.code === ErrorCodes.OUTPUT_ON_INPUT ? ExitCode.USAGE : ExitCode.SOME_FAILED;
   if (error instanceof Error && error.name === 'YError') return ExitCode.USAGE;
   return ExitCode.INTERNAL;
 }

@@ -1,5 +1,6 @@
 import yargs from 'yargs';
 import { isKinhueError, UsageError } from '../errors.js';
+import { resolveMaxPixels } from '../image/index.js';
 import { VERSION } from '../version.js';
 import { commands } from './commands.js';
 import { ExitCode, exitCodeFor } from './exit-codes.js';
@@ -12,6 +13,13 @@ import { ExitCode, exitCodeFor } from './exit-codes.js';
  *   await main(['restore', 'scans/', '--out', 'restored/']);
  */
 export async function main(args: string[]): Promise<void> {
+  // A pixel limit kinhue cannot use is refused once, here, not file by file.
+  try {
+    resolveMaxPixels();
+  } catch (error) {
+    process.exitCode = report(error, () => undefined);
+    return;
+  }
   const parser = yargs(args)
     .scriptName('kinhue')
     .usage('kinhue <command> [options]\n\nColourise black-and-white photographs offline. A colourised photo is an interpretation, not a record.')

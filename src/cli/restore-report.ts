@@ -8,13 +8,15 @@ import { formatDuration } from './progress.js';
 /**
  * One line per discovered file: what a run would do with it.
  * @example
- *   formatPlan(summary.files); // "run    scans/a.jpg -> a.jpg\nskip   scans/b.tif -> b.tif (finished)"
+ *   formatPlan(summary.files); // "run       scans/a.jpg -> a.jpg\nskip      scans/b.tif -> b.tif  (finished earlier, same settings)"
  */
 export function formatPlan(files: PlannedFile[]): string {
-  const label = { run: 'run  ', retry: 'retry', skip: 'skip ' } as const;
-  return files
-    .map((f) => `${label[f.action]}  ${f.rel} -> ${f.outputs.image}${f.action === 'skip' ? '  (finished earlier, same settings)' : f.action === 'retry' ? '  (failed earlier)' : ''}`)
-    .join('\n');
+  const label = { run: 'run     ', retry: 'retry   ', skip: 'skip    ', conflict: 'conflict', refuse: 'refuse  ' } as const;
+  const why = {
+    run: '', retry: '  (failed earlier)', skip: '  (finished earlier, same settings)',
+    conflict: '  (holds another scan\'s result; --force replaces it)', refuse: '  (an output would replace an input)',
+  } as const;
+  return files.map((f) => `${label[f.action]}  ${f.rel} -> ${f.outputs.image}${why[f.action]}`).join('\n');
 }
 
 /**
@@ -31,31 +33,36 @@ export function progressText(done: number, failed: number, total: number, elapse
 }
 
 /**
- * The summary for people: counts, time, the failures with their messages and next steps, and where
- * the manifest is.
+ * The summary for people: counts, time, the failures with their messages and next steps, the hints
+ * not used, and where the manifest is.
  * @example
  *   console.log(formatSummary(summary));
  */
 export function formatSummary(summary: RestoreSummary): string {
   const lines: string[] = [];
   if (summary.dryRun) {
-    const run = summary.files.filter((f) => f.action !== 'skip').length;
+    const run = summary.files.filter((f) => f.action === 'run' || f.action === 'retry').length;
     lines.push(`dry run: ${run} of ${summary.total} files would be restored into ${summary.outDir}; nothing was written`);
-    return lines.join('\n');
+  } else {
+    const parts = [`${summary.done} restored`];
+    if (summary.skipped) parts.push(`${summary.skipped} skipped (finished earlier)`);
+    if (summary.failed.length) parts.push(`${summary.failed.length} failed`);
+    if (summary.notRun) parts.push(`${summary.notRun} not run`);
+    lines.push(`kinhue restore: ${parts.join(', ')} of ${summary.total} files in ${formatDuration(summary.seconds)} -> ${summary.outDir}`);
+    if (summary.interrupted) lines.push('stopped early: run the same command again to finish the rest');
   }
-  const parts = [`${summary.done} restored`];
-  if (summary.skipped) parts.push(`${summary.skipped} skipped (finished earlier)`);
-  if (summary.failed.length) parts.push(`${summary.failed.length} failed`);
-  if (summary.notRun) parts.push(`${summary.notRun} not run`);
-  lines.push(`kinhue restore: ${parts.join(', ')} of ${summary.total} files in ${formatDuration(summary.seconds)} -> ${summary.outDir}`);
-  if (summary.interrupted) lines.push('stopped early: run the same command again to finish the rest');
   if (summary.failed.length) {
-    lines.push('failed:');
+    lines.push(summary.dryRun ? 'would fail:' : 'failed:');
     for (const f of summary.failed) {
       lines.push(`  ${f.rel}: ${f.code} ${f.message}`);
       if (f.hint) lines.push(`    next step: ${f.hint}`);
     }
   }
+  if (summary.hintsNotUsed.length) {
+    lines.push('hints not used (restored without them):');
+    for (const h of summary.hintsNotUsed) lines.push(`  ${h.rel ? `${h.rel}: ` : `${h.file} `}${h.reason.replace(/\n/g, '\n    ')}`);
+  }
+  if (summary.dryRun) return lines.join('\n');
   lines.push(`manifest: ${summary.manifest}`);
   if (summary.done) lines.push('The colours are estimates by a model, not a record: keep the scans as the originals.');
   return lines.join('\n');

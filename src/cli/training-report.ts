@@ -6,6 +6,7 @@ import type { Argv } from 'yargs';
 import { UsageError } from '../errors.js';
 import type { Evaluation, FitEvent, FitOptions, FitResult } from '../training/index.js';
 import { formatDuration, Progress } from './progress.js';
+import { onStopSignals } from './stop-signals.js';
 
 /** A percentage with one decimal, or a dash where there is none (no clearly coloured pixel, or a run from before the hue figures). */
 function percent(value: number | null | undefined): string {
@@ -108,12 +109,12 @@ export async function runWithProgress(
 ): Promise<FitResult> {
   const progress = new Progress();
   const controller = new AbortController();
-  const onSigint = (): void => {
+  const onStop = (): void => {
     progress.log(`kinhue ${verb}: stopping after this step and writing a checkpoint (Ctrl-C again to quit at once)`);
     controller.abort();
-    process.off('SIGINT', onSigint);
+    release();
   };
-  process.on('SIGINT', onSigint);
+  const release = onStopSignals(onStop);
   const onEvent = (event: FitEvent): void => {
     switch (event.type) {
       case 'reading':
@@ -164,7 +165,7 @@ export async function runWithProgress(
     console.log(summaryTable(result));
     return result;
   } finally {
-    process.off('SIGINT', onSigint);
+    release();
     progress.done();
   }
 }

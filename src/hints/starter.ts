@@ -3,6 +3,7 @@ import { access } from 'node:fs/promises';
 import { basename } from 'node:path';
 import { decodeImage, writeFileAtomic } from '../image/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
+import { InputGuard } from '../files/index.js';
 import { formatHints, starterHints } from './hints-file.js';
 import { hintsCandidates } from './guidance.js';
 
@@ -22,13 +23,15 @@ export interface StarterResult {
 
 /**
  * Writes a starter hints file for a scan (its upright size and placeholder entries), atomically; never
- * replaces an existing file unless `force` is set.
+ * replaces an existing file unless `force` is set, and never the scan itself (KH_OUTPUT_ON_INPUT),
+ * whatever link or other name leads to it.
  *
  * @example
  *   const { path } = await writeStarterHints('scans/barn.jpg'); // scans/barn.hints.json
  */
 export async function writeStarterHints(scan: string, options: StarterOptions = {}): Promise<StarterResult> {
   const path = options.out ?? hintsCandidates(scan).at(-1)!;
+  await (await InputGuard.of([scan], { hint: 'name another --out file for the hints' })).check(path);
   if (!options.force) {
     const exists = await access(path).then(() => true, () => false);
     if (exists) {

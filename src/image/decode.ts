@@ -5,7 +5,7 @@
 import { open, stat } from 'node:fs/promises';
 import sharp, { type Metadata, type Sharp, type SharpOptions } from 'sharp';
 import { decodeFailure, emptyFile, unreadable } from './failures.js';
-import { checkPixelLimit, resolveMaxPixels } from './limits.js';
+import { checkPixelLimit, resolveMaxPixels, sharpLimit } from './limits.js';
 import { samplesFromBuffer, type BitDepth, type ChannelCount, type Pixels } from './pixels.js';
 
 /** Container formats sharp can hand us (its `metadata().format` names). */
@@ -84,7 +84,7 @@ async function decodeInput(input: string | Buffer, name: string, options: Decode
   const maxPixels = resolveMaxPixels(options.maxPixels);
   let meta: Metadata;
   try {
-    // Header only: the size check happens before any pixel is decoded.
+    // Header only: checkPixelLimit below says more than sharp's limit error would.
     meta = await sharp(input, { failOn: FAIL_ON, limitInputPixels: false }).metadata();
   } catch (error) {
     throw decodeFailure(name, error);
@@ -140,7 +140,7 @@ async function decodePixels(
   let samples = samplesFromBuffer(data, depth);
   if (grey && channels >= 3) {
     // A grey profile turned grey into RGB; fold it back to one channel (libvips' own luminance).
-    const folded = await sharp(samples, { raw: { width: info.width, height: info.height, channels: channels as 3 | 4 } })
+    const folded = await sharp(samples, { raw: { width: info.width, height: info.height, channels: channels as 3 | 4 }, ...sharpLimit(maxPixels) })
       .toColourspace(depth === 16 ? 'grey16' : 'b-w')
       .raw({ depth: depth === 16 ? 'ushort' : 'uchar' })
       .toBuffer({ resolveWithObject: true });

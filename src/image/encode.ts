@@ -17,6 +17,7 @@ import { writeFileAtomic } from './atomic.js';
 import { jpegWithExif, pngWithExif, pngWithIcc, webpWithExif } from './containers.js';
 import { exifForUprightOutput } from './exif.js';
 import { iccColourSpace, iccFitsChannels, srgbProfile, withProfileFile } from './icc.js';
+import { sharpLimit } from './limits.js';
 import { checkPixels, colourChannels, hasAlpha, type BitDepth, type Pixels } from './pixels.js';
 
 export type OutputFormat = 'jpeg' | 'png' | 'tiff' | 'webp';
@@ -34,6 +35,8 @@ export interface EncodeOptions {
   icc?: Buffer;
   /** An XMP packet to embed (see `provenanceXmp`). */
   xmp?: string;
+  /** Pixel limit for sharp; default from KINHUE_MAX_PIXELS or 300 MP (see limits.ts). */
+  maxPixels?: number;
 }
 
 export interface EncodeResult {
@@ -115,7 +118,7 @@ export async function encodeBuffer(pixels: Pixels, options: EncodeOptions): Prom
   }
 
   const encode = async (profileFile?: string): Promise<Buffer> => {
-    let pipeline = await pipelineFor(px, profileFile !== undefined && colour === 3 && depth === 16);
+    let pipeline = await pipelineFor(px, profileFile !== undefined && colour === 3 && depth === 16, options.maxPixels);
     if (format === 'jpeg' && hasAlpha(px)) {
       pipeline = pipeline.removeAlpha();
       warnings.push('JPEG has no alpha channel; transparency was dropped');
@@ -153,14 +156,15 @@ export async function encodeBuffer(pixels: Pixels, options: EncodeOptions): Prom
  * 16-bit PNG tagged sRGB: sharp treats untagged 16-bit RGB as Display P3 when converting into an
  * output profile, while a tagged input is converted from its own profile correctly.
  */
-async function pipelineFor(px: Pixels, tagSrgb: boolean): Promise<Sharp> {
+async function pipelineFor(px: Pixels, tagSrgb: boolean, maxPixels?: number): Promise<Sharp> {
   const raw = { width: px.width, height: px.height, channels: px.channels };
-  if (!tagSrgb) return sharp(px.data, { raw });
-  const png = await sharp(px.data, { raw })
+  const limit = sharpLimit(maxPixels);
+  if (!tagSrgb) return sharp(px.data, { raw, ...limit });
+  const png = await sharp(px.data, { raw, ...limit })
     .toColourspace('rgb16')
     .png({ compressionLevel: 0 })
     .toBuffer();
-  return sharp(pngWithIcc(png, await srgbProfile(), 'sRGB'));
+  return sharp(pngWithIcc(png, await srgbProfile(), 'sRGB'), limit);
 }
 
 function formatStep(pipeline: Sharp, format: OutputFormat, quality?: number): Sharp {

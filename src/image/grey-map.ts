@@ -4,9 +4,11 @@
  */
 import sharp from 'sharp';
 import { writeAtomic } from './atomic.js';
+import { sharpLimit } from './limits.js';
 
 /**
- * Writes `values` (width x height, 0-255) as an 8-bit grey PNG of outWidth x outHeight.
+ * Writes `values` (width x height, 0-255) as an 8-bit grey PNG of outWidth x outHeight; the pixel
+ * limit (KINHUE_MAX_PIXELS by default) applies to the plane sharp reads.
  * @example
  *   await writeGreyMap(conf8, 128, 96, 4000, 3000, 'out/photo.confidence.png');
  */
@@ -17,9 +19,10 @@ export async function writeGreyMap(
   outWidth: number,
   outHeight: number,
   path: string,
+  maxPixels?: number,
 ): Promise<void> {
   await writeAtomic(path, async (temp) => {
-    await sharp(values, { raw: { width, height, channels: 1 } })
+    await sharp(values, { raw: { width, height, channels: 1 }, ...sharpLimit(maxPixels) })
       .resize(outWidth, outHeight, { fit: 'fill', kernel: 'linear' })
       .toColourspace('b-w')
       .png({ compressionLevel: 6 })

@@ -6,6 +6,7 @@ import { mkdtemp, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import sharp from 'sharp';
+import { sharpLimit } from './limits.js';
 
 /**
  * The data colour space signature of an ICC profile (header bytes 16-19, ICC.1:2010 section
@@ -35,11 +36,11 @@ let srgbProfileCache: Promise<Buffer> | undefined;
  */
 export function srgbProfile(): Promise<Buffer> {
   srgbProfileCache ??= (async () => {
-    const png = await sharp(Buffer.from([128, 128, 128]), { raw: { width: 1, height: 1, channels: 3 } })
+    const png = await sharp(Buffer.from([128, 128, 128]), { raw: { width: 1, height: 1, channels: 3 }, ...sharpLimit() })
       .withIccProfile('srgb')
       .png()
       .toBuffer();
-    const { icc } = await sharp(png).metadata();
+    const { icc } = await sharp(png, sharpLimit()).metadata();
     if (!icc) throw new Error('libvips did not attach its sRGB profile');
     return icc;
   })();

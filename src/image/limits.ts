@@ -3,7 +3,7 @@
  * billions of pixels. The width and height are read from the header and checked before any pixel
  * is decoded.
  */
-import { ErrorCodes, InputError } from '../errors.js';
+import { ErrorCodes, InputError, UsageError } from '../errors.js';
 
 /**
  * 300 megapixels: room for a 100-megapixel scan with margin (a 10x8 inch print at 1200 dpi is
@@ -16,8 +16,9 @@ export const DEFAULT_MAX_PIXELS = 300_000_000;
 export const MAX_PIXELS_ENV = 'KINHUE_MAX_PIXELS';
 
 /**
- * The limit in force: the option if given, else KINHUE_MAX_PIXELS, else the default.
- * A malformed environment value is ignored in favour of the default, so a typo cannot disable the guard.
+ * The limit in force: the option if given, else KINHUE_MAX_PIXELS, else the default. A value that is
+ * not a whole number of pixels from 1 to 2^53 - 1 (e.g. `1e99`, `-5`, `abc`) is refused with a
+ * UsageError, so a typo can neither disable the guard nor make every scan fail.
  *
  * @example
  * resolveMaxPixels(); // 300000000 unless KINHUE_MAX_PIXELS is set
@@ -25,15 +26,30 @@ export const MAX_PIXELS_ENV = 'KINHUE_MAX_PIXELS';
  */
 export function resolveMaxPixels(option?: number, env: NodeJS.ProcessEnv = process.env): number {
   if (option !== undefined) {
-    if (!Number.isFinite(option) || option < 1) throw new RangeError(`maxPixels must be a positive number, not ${option}`);
-    return Math.floor(option);
+    if (!Number.isSafeInteger(option) || option < 1) throw new RangeError(`maxPixels must be a whole number of 1 or more, not ${option}`);
+    return option;
   }
   const raw = env[MAX_PIXELS_ENV];
-  if (raw !== undefined && raw.trim() !== '') {
-    const value = Number(raw.trim());
-    if (Number.isFinite(value) && value >= 1) return Math.floor(value);
+  if (raw === undefined || raw.trim() === '') return DEFAULT_MAX_PIXELS;
+  const value = Number(raw.trim());
+  if (!Number.isSafeInteger(value) || value < 1) {
+    throw new UsageError(
+      `${MAX_PIXELS_ENV}=${raw.length > 40 ? `${raw.slice(0, 40)}...` : raw} is not a whole number of pixels`,
+      `set it to a whole number such as ${MAX_PIXELS_ENV}=600000000 (600 megapixels), or unset it for the default of ${DEFAULT_MAX_PIXELS / 1e6} megapixels`,
+    );
   }
-  return DEFAULT_MAX_PIXELS;
+  return value;
+}
+
+/**
+ * sharp's input option for the limit in force. Every sharp call takes it, so sharp's own default
+ * (268 megapixels) never decides what kinhue can read or write.
+ *
+ * @example
+ * sharp(data, { raw, ...sharpLimit(job.maxPixels) });
+ */
+export function sharpLimit(maxPixels?: number): { limitInputPixels: number } {
+  return { limitInputPixels: resolveMaxPixels(maxPixels) };
 }
 
 /**

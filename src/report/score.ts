@@ -4,7 +4,7 @@
  * in-memory colourisation as restore (batch/colouriseLightness), so a score describes what restore
  * would deliver at the same working size.
  */
-import { mkdir } from 'node:fs/promises';
+import { mkdir, readdir } from 'node:fs/promises';
 import { join, relative } from 'node:path';
 import { tmpdir } from 'node:os';
 import {
@@ -12,6 +12,7 @@ import {
 } from '../colour/index.js';
 import { colouriseLightness, discoverInputs } from '../batch/index.js';
 import { ErrorCodes, InputError, KinhueError, UsageError } from '../errors.js';
+import { InputGuard } from '../files/index.js';
 import { classifyTone, decodeImage, writeFileAtomic, type Pixels } from '../image/index.js';
 import { DEFAULT_MODEL_DIR, initBackend, loadModel, type KinhueModel } from '../model/index.js';
 import { VERSION } from '../version.js';
@@ -35,8 +36,11 @@ export interface ScoreOptions {
   temperature?: number;
   /** Pixel limit per image; default the image module's. */
   maxPixels?: number;
-  /** Files under this folder are not scored (e.g. where the report is written). */
-  exclude?: string;
+  /**
+   * Where writeScoreFiles will write the report: left out of the search, and refused (KH_OUTPUT_ON_INPUT)
+   * before any work when a report file there would replace a photo or a model's file.
+   */
+  out?: string;
   onEvent?: (event: ScoreEvent) => void;
 }
 
@@ -141,16 +145,21 @@ function modelLabels(models: KinhueModel[]): string[] {
 export async function score(options: ScoreOptions): Promise<ScoreReport> {
   let discovered;
   try {
-    discovered = await discoverInputs(options.photos, options.exclude ?? join(tmpdir(), `kinhue-score-${process.pid}-none`));
+    discovered = await discoverInputs(options.photos, options.out ?? join(tmpdir(), `kinhue-score-${process.pid}-none`));
   } catch (error) {
     // Discovery is shared with restore: give its usage errors score's own example.
     if (error instanceof UsageError) throw new UsageError(error.message.replace(/Example usage: .*$/m, EXAMPLE), error.hint);
     throw error;
   }
   const files = discovered.files;
+  const dirs = options.models?.length ? options.models : [DEFAULT_MODEL_DIR];
+  if (options.out) {
+    const guard = await InputGuard.of(files.map((f) => f.path), { hint: 'choose an --out folder that is not a photo or model folder, nor a link to one' });
+    for (const dir of dirs) for (const name of await readdir(dir).catch(() => [] as string[])) await guard.add(join(dir, name));
+    for (const name of [SCORE_CSV, SCORE_JSON]) await guard.check(join(options.out, name));
+  }
 
   await initBackend();
-  const dirs = options.models?.length ? options.models : [DEFAULT_MODEL_DIR];
   const models: KinhueModel[] = [];
   try {
     for (const dir of dirs) models.push(await loadModel(dir));
@@ -173,7 +182,8 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     });
 
     const photos: PhotoScore[] = [];
-    const failures: ScoreFailure[] = [];
+    // Folders that could not be searched and links that lead nowhere are listed like unreadable files.
+    const failures: ScoreFailure[] = discovered.problems.map((p) => ({ file: p.rel, code: p.code, message: p.message, hint: p.hint }));
     const toned: string[] = [];
     for (let k = 0; k < files.length; k++) {
       const { path, rel } = files[k];

@@ -5,10 +5,11 @@
  * held-out error for tune). A resumed run continues from its checkpoint and reaches the same weights
  * as an uninterrupted one with the same seed.
  */
-import { mkdir, stat } from 'node:fs/promises';
+import { mkdir, readdir, stat } from 'node:fs/promises';
 import { join, resolve } from 'node:path';
 import * as tf from '@tensorflow/tfjs';
 import { ErrorCodes, KinhueError, UsageError } from '../errors.js';
+import { checkFolderFiles, InputGuard, inputInside, OutputOnInputError } from '../files/index.js';
 import { writeFileAtomic } from '../image/index.js';
 import {
   chooseDecoding,
@@ -73,6 +74,12 @@ interface CheckpointState {
 export async function fit(options: FitOptions, onEvent: (event: FitEvent) => void = () => {}): Promise<FitResult> {
   const mode = options.mode ?? 'train';
   const out = resolve(options.out);
+  // The model folder is written as a whole: it must not be, or hold, a photo folder or the model tuned from.
+  const outHint = 'choose a new --out folder for the model, outside the photo folders and the model it starts from';
+  const heldInput = await inputInside(out, [...options.photos, ...(mode === 'tune' && options.from ? [options.from] : [])]);
+  if (heldInput !== undefined) {
+    throw new OutputOnInputError(out, heldInput, outHint, `the model folder is, or holds, the input ${heldInput} (perhaps through a link); writing the model there would change it`);
+  }
   const checkpointFile = join(out, CHECKPOINT_FILE);
   const saved = options.resume ? ((await loadCheckpoint(checkpointFile)) as unknown as CheckpointState) : undefined;
   if (saved && saved.kind !== 'kinhue-training-checkpoint') {
@@ -116,6 +123,9 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     otherFiles: set.otherFiles,
   });
   if (saved) checkSameData(saved, set, checkpointFile);
+  const guard = await InputGuard.of([...set.train, ...set.holdout].map((p) => p.file).concat(set.grey, set.unreadable.map((u) => u.file)), { hint: outHint });
+  if (mode === 'tune' && options.from) for (const name of await readdir(options.from).catch(() => [] as string[])) await guard.add(join(options.from, name));
+  await checkFolderFiles(out, guard);
 
   const backend = await initBackend();
   const bins = abBins();

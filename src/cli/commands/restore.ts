@@ -7,6 +7,7 @@ import { UsageError } from '../../errors.js';
 import { DECODINGS, type Decoding } from '../../model/index.js';
 import { ExitCode } from '../exit-codes.js';
 import { Progress } from '../progress.js';
+import { onStopSignals } from '../stop-signals.js';
 import { formatPlan, formatSummary, progressText, summaryToJson } from '../restore-report.js';
 
 const EXAMPLE = 'kinhue restore demo-photos/scans --out demo-restored';
@@ -87,14 +88,15 @@ export const command: CommandModule<object, RestoreArgs> = {
       .example('kinhue restore "archive/**/*.tif" --out restored --format png --jobs 2', 'TIFF scans found by a glob, written as PNG on two cores')
       .example('kinhue restore demo-photos/scans --out demo-restored --reference demo-photos/originals/wrenfold-05-billy-goat.jpg', 'colours taken from a reference photograph')
       .epilog('Run the same command again to finish an interrupted run: finished files are skipped, failed ones retried.\n' +
-        'Exit codes: 0 all done, 1 some files failed (listed), 2 usage error, 3 internal error, 130 stopped with Ctrl-C.') as unknown as Argv<RestoreArgs>)
+        'Exit codes: 0 all done, 1 some files failed (listed), 2 usage error, 3 internal error, 4 some hints not used (listed), ' +
+        '130 stopped with Ctrl-C, SIGTERM or SIGHUP.') as unknown as Argv<RestoreArgs>)
       .check((argv) => check(argv as Partial<RestoreArgs>)),
   handler: async (argv: ArgumentsCamelCase<RestoreArgs>) => {
     const progress = new Progress({ plainInterval: 0 });
     const soft = new AbortController();
     const hard = new AbortController();
     let interrupts = 0;
-    const onSigint = (): void => {
+    const onStop = (): void => {
       interrupts++;
       if (interrupts === 1) {
         progress.log('stopping: no new file starts, files in progress finish (Ctrl-C again to stop at once)');
@@ -106,6 +108,7 @@ export const command: CommandModule<object, RestoreArgs> = {
       switch (event.type) {
         case 'plan':
           for (const note of event.notes) progress.log(`note: ${note}`);
+          for (const f of event.failures) progress.log(`${f.code === 'KH_OUTPUT_CONFLICT' ? 'conflict' : 'failed'}: ${f.rel}: ${f.code} ${f.message}`);
           if (!argv['dry-run']) progress.log(`restoring ${event.toRun} of ${event.files.length} files into ${event.outDir}${event.skipped ? ` (${event.skipped} finished earlier)` : ''}`);
           runStart = performance.now();
           break;
@@ -128,7 +131,7 @@ export const command: CommandModule<object, RestoreArgs> = {
           break;
       }
     };
-    process.on('SIGINT', onSigint);
+    const release = onStopSignals(onStop);
     let summary;
     try {
       summary = await restore(
@@ -153,7 +156,7 @@ export const command: CommandModule<object, RestoreArgs> = {
         onEvent,
       );
     } finally {
-      process.off('SIGINT', onSigint);
+      release();
       progress.done();
     }
     if (argv.json) process.stdout.write(summaryToJson(summary));
@@ -161,6 +164,9 @@ export const command: CommandModule<object, RestoreArgs> = {
       if (summary.dryRun) console.log(formatPlan(summary.files));
       console.log(formatSummary(summary));
     }
-    process.exitCode = summary.interrupted ? ExitCode.INTERRUPTED : summary.failed.length ? ExitCode.SOME_FAILED : ExitCode.OK;
+    process.exitCode = summary.interrupted ? ExitCode.INTERRUPTED
+      : summary.failed.length ? ExitCode.SOME_FAILED
+      : summary.hintsNotUsed.length ? ExitCode.HINTS_NOT_USED
+      : ExitCode.OK;
   },
 };

@@ -58,7 +58,7 @@ export const command: CommandModule<object, ScoreArgs> = {
     const onEvent = (event: ScoreEvent): void => {
       if (event.type === 'photo') progress.update(event.done / event.total, `scoring ${event.done}/${event.total}  ${event.file}`, event.done === event.total);
     };
-    const report = await score({ photos: argv.photos, models: argv.model, workSize: argv['work-size'], exclude: argv.out, onEvent });
+    const report = await score({ photos: argv.photos, models: argv.model, workSize: argv['work-size'], out: argv.out, onEvent });
     progress.done();
     if (argv.out) {
       const files = await writeScoreFiles(report, argv.out);
