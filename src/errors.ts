@@ -91,3 +91,29 @@ export class ModelError extends KinhueError {
 export function isKinhueError(error: unknown): error is KinhueError {
   return error instanceof KinhueError;
 }
+
+/** An error as plain data, to cross a thread boundary. */
+export interface SerialisedError {
+  /** A KH_* code, or 'internal' for an unexpected failure. */
+  code: string;
+  message: string;
+  file?: string;
+  hint?: string;
+  stack?: string;
+}
+
+/** Turns any thrown value into plain data: KinhueErrors keep their code, file and next step; anything else is marked internal. */
+export function serialiseError(error: unknown): SerialisedError {
+  if (isKinhueError(error)) return { code: error.code, message: error.message, file: error.file, hint: error.hint };
+  const e = error instanceof Error ? error : new Error(String(error));
+  return { code: 'internal', message: e.message, stack: e.stack };
+}
+
+/** Rebuilds a KinhueError (or a plain Error for internal failures) from plain data. */
+export function reviveError(data: SerialisedError): Error {
+  if (data.code === 'KH_BAD_MODEL') return new ModelError(data.message, { file: data.file, hint: data.hint });
+  if (data.code !== 'internal') return new KinhueError(data.code as ErrorCode, data.message, { file: data.file, hint: data.hint });
+  const error = new Error(data.message);
+  if (data.stack) error.stack = data.stack;
+  return error;
+}

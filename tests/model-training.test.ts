@@ -7,7 +7,7 @@ import { initBackend } from '../src/model/backend.js';
 import { abBins } from '../src/model/bins.js';
 import { createNetwork, encoderLayerNames, freezeEncoder } from '../src/model/network.js';
 import { loadModel, saveModel } from '../src/model/storage.js';
-import { createTrainer, type TrainerState } from '../src/model/train-step.js';
+import { createGradientComputer, createTrainer, type TrainerState } from '../src/model/train-step.js';
 
 // Checks of the training step against its own contract (no outside reference exists for these):
 // memory stays flat over 100 steps (issue 3), a save/load/continue run equals an uninterrupted one
@@ -108,6 +108,31 @@ describe('trainer', () => {
     resumed.dispose();
     net.dispose();
     loaded.network.dispose();
+  });
+
+  it('a step from gradients computed apart (as worker threads do) equals a step, bit for bit', () => {
+    // Two identical networks (same seed); one steps itself, the other gets its gradients from a separate computer.
+    const a = createNetwork({ width: 4, seed: 6 });
+    const b = createNetwork({ width: 4, seed: 6 });
+    const ta = createTrainer(a, { learningRate: 2e-3, classWeights });
+    const tb = createTrainer(b, { learningRate: 2e-3, classWeights });
+    const gradients = createGradientComputer(b, { classWeights, names: tb.names });
+    expect(tb.names).toEqual(b.trainableWeights.map((w) => w.originalName));
+    for (let i = 0; i < 3; i++) {
+      const d = batch(40 + i);
+      const loss = ta.step(d.L, d.ab, N, H, W);
+      const g = gradients.compute(d.L, d.ab, N, H, W);
+      expect(g.loss).toBe(loss);
+      tb.applyGradients(g.grads);
+    }
+    expect(tb.steps).toBe(3);
+    const wa = weightsOf(a);
+    weightsOf(b).forEach((w, k) => expect(Buffer.from(w.buffer).equals(Buffer.from(wa[k].buffer)), `weight ${k}`).toBe(true));
+    tb.values().forEach((v, k) => expect(Array.from(v)).toEqual(Array.from(b.trainableWeights[k].read().dataSync())));
+    expect(() => tb.applyGradients([])).toThrow(RangeError);
+    for (const x of [ta, tb]) x.dispose();
+    a.dispose();
+    b.dispose();
   });
 
   it('refuses a state from a different network', async () => {

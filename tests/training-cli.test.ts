@@ -42,6 +42,9 @@ describe('train and tune command lines', () => {
       [{ 'learning-rate': 0 }, /--learning-rate/],
       [{ 'eval-every': 0 }, /--eval-every/],
       [{ rebalance: 1.5 }, /--rebalance/],
+      [{ workers: 0 }, /--workers/],
+      [{ workers: 1.5 }, /--workers/],
+      [{ workers: 17 }, /--workers 17 is more than the 16 crops/],
     ];
     for (const [change, message] of cases) {
       const error = usage(() => checkTrain({ ...ok, ...change } as never));

@@ -4,7 +4,7 @@ import { join } from 'node:path';
 import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { labToSrgb } from '../src/colour/index.js';
-import { DEFAULT_MODEL_DIR, loadModel, predict } from '../src/model/index.js';
+import { DEFAULT_MODEL_DIR, encoderLayerNames, loadModel, predict } from '../src/model/index.js';
 import {
   CHECKPOINT_FILE,
   Random,
@@ -15,12 +15,15 @@ import {
   loadCheckpoint,
   loadPhotoSet,
   readTrainingLog,
+  saveCheckpoint,
+  type FitEvent,
   type FitOptions,
 } from '../src/training/index.js';
 
 // Small enough for CI: a narrow network, 32-pixel crops, 2 crops a step (common practice for tests).
-// L* alone unless a test says otherwise: the backbone costs a detector pass per photo.
-const TINY = { batch: 2, crop: 32, photoSize: 64, network: { width: 4 }, evalEvery: 2, checkpointMinutes: 60, backbone: false } satisfies Partial<FitOptions>;
+// L* alone unless a test says otherwise: the backbone costs a detector pass per photo. One thread
+// unless a test says otherwise (the default follows the machine's cores).
+const TINY = { batch: 2, crop: 32, photoSize: 64, network: { width: 4 }, evalEvery: 2, checkpointMinutes: 60, backbone: false, workers: 1 } satisfies Partial<FitOptions>;
 
 let dir: string;
 beforeAll(async () => {
@@ -165,6 +168,74 @@ describe('fit: resume', () => {
   });
 });
 
+describe('fit: worker threads', () => {
+  // 3 crops a step on 2 workers: shards of 2 and 1 crops.
+  const PARALLEL = { ...TINY, batch: 3, seed: 6, learningRate: 3e-3, evalEvery: 100 };
+  const same = (x: Float32Array[], y: Float32Array[]): boolean => x.length === y.length && x.every((w, i) => Buffer.from(w.buffer).equals(Buffer.from(y[i]!.buffer)));
+
+  it('two workers: the same seed gives the same weights bit for bit, and an interrupted and resumed run reaches them too', async () => {
+    const photos = join(dir, 'scenes-parallel');
+    await writeScenes(photos, 6, 17);
+    const base = { ...PARALLEL, photos: [photos] };
+    const events: FitEvent[] = [];
+    const first = await fit({ ...base, out: join(dir, 'par-a'), steps: 4, workers: 2 }, (e) => events.push(e));
+    expect(first.options.workers).toBe(2);
+    expect(events.filter((e) => e.type === 'workers')).toEqual([{ type: 'workers', workers: 2, step: 0 }]);
+    await fit({ ...base, out: join(dir, 'par-b'), steps: 4, workers: 2 });
+    // Interrupted after 2 steps, then resumed without naming the number: the checkpoint's 2 go on.
+    await fit({ ...base, out: join(dir, 'par-split'), steps: 2, workers: 2 });
+    const resumedEvents: FitEvent[] = [];
+    const resumed = await fit({ ...base, workers: undefined, out: join(dir, 'par-split'), steps: 4, resume: true }, (e) => resumedEvents.push(e));
+    expect(resumed.options.workers).toBe(2);
+    expect(resumed.options.workerChanges).toBeUndefined();
+    expect(resumedEvents.find((e) => e.type === 'workers')).toEqual({ type: 'workers', workers: 2, step: 2 });
+
+    const a = await weightsOf(join(dir, 'par-a'));
+    for (const other of ['par-b', 'par-split']) {
+      const b = await weightsOf(join(dir, other));
+      expect(b.step).toBe(4);
+      expect(same(b.weights, a.weights), other).toBe(true);
+      expect(same(b.trainer.moments.map((m) => m.m), a.trainer.moments.map((m) => m.m)), other).toBe(true);
+      expect(same(b.trainer.moments.map((m) => m.v), a.trainer.moments.map((m) => m.v)), other).toBe(true);
+    }
+    // One thread on the same batches reaches other weights (float rounding, amplified by Adam): the
+    // comparisons above are between two-worker runs.
+    await fit({ ...base, out: join(dir, 'par-one'), steps: 4, workers: 1 });
+    expect(same((await weightsOf(join(dir, 'par-one'))).weights, a.weights)).toBe(false);
+  });
+
+  it('resuming with another number of workers says so and records it; a run from before workers resumes on one thread', async () => {
+    const photos = join(dir, 'scenes-parallel');
+    const base = { ...PARALLEL, photos: [photos] };
+    const out = join(dir, 'par-change');
+    await fit({ ...base, out, steps: 2, workers: 2 });
+    const events: FitEvent[] = [];
+    const changed = await fit({ ...base, out, steps: 3, resume: true, workers: 1 }, (e) => events.push(e));
+    expect(events.find((e) => e.type === 'workers')).toEqual({ type: 'workers', workers: 1, step: 2, previous: 2 });
+    expect(changed.options.workers).toBe(1);
+    expect(changed.options.workerChanges).toEqual([{ step: 2, workers: 1 }]);
+    const summary = JSON.parse(await readFile(join(out, SUMMARY_FILE), 'utf8'));
+    expect(summary.options.workerChanges).toEqual([{ step: 2, workers: 1 }]);
+    // The record stays with the run: a later resume with the same number adds nothing.
+    const again = await fit({ ...base, out, steps: 4, resume: true, workers: 1 });
+    expect(again.options.workerChanges).toEqual([{ step: 2, workers: 1 }]);
+
+    // A checkpoint written before the number of workers was recorded: it ran on one thread, and goes on so.
+    const old = join(dir, 'par-old');
+    await fit({ ...base, out: old, steps: 1, workers: 1 });
+    const state = await loadCheckpoint(join(old, CHECKPOINT_FILE));
+    delete (state.options as { workers?: number }).workers;
+    await saveCheckpoint(join(old, CHECKPOINT_FILE), state);
+    const oldEvents: FitEvent[] = [];
+    const resumed = await fit({ ...base, workers: undefined, out: old, steps: 2, resume: true }, (e) => oldEvents.push(e));
+    expect(oldEvents.find((e) => e.type === 'workers')).toEqual({ type: 'workers', workers: 1, step: 1 });
+    expect(resumed.options.workerChanges).toBeUndefined();
+
+    // More workers than crops a step is refused, naming the option.
+    await expect(fit({ ...base, out: join(dir, 'par-too-many'), steps: 1, workers: 4 })).rejects.toMatchObject({ code: 'KH_USAGE', message: expect.stringMatching(/4 workers for 3 crops/) });
+  });
+});
+
 describe('fit: tune', () => {
   it('tuning on photos with a strong orange-red cast brings held-out error below the untuned model, keeping the best', async () => {
     // The starting point: the shipped model, or (before one ships) a model trained briefly on
@@ -193,8 +264,11 @@ describe('fit: tune', () => {
       freezeEncoder: true,
       holdout: 0.25,
       seed: 2,
+      // The frozen encoder travels to the worker threads once; only the decoder's weights each step.
+      workers: 2,
     });
     expect(result.options.keep).toBe('best');
+    expect(result.options.workers).toBe(2);
     expect(result.heldOut.after.ciede2000).toBeLessThan(result.heldOut.before.ciede2000 - 2);
 
     // The model kept is the best evaluation, not the last, and evaluates to the reported figure.
@@ -204,5 +278,11 @@ describe('fit: tune', () => {
     const model = await loadModel(out);
     const again = await evaluatePhotos(set.holdout, (L, w, h) => predict(model, L, w, h));
     expect(again.ciede2000).toBeCloseTo(result.heldOut.after.ciede2000, 4);
+    // The encoder did not move; the decoder did.
+    const original = await loadModel(start);
+    const weightOf = (m: typeof model, layer: string): number[] => Array.from(m.network.getLayer(layer).getWeights()[0]!.dataSync());
+    for (const layer of encoderLayerNames(model.network)) expect(weightOf(model, layer)).toEqual(weightOf(original, layer));
+    expect(weightOf(model, 'logits')).not.toEqual(weightOf(original, 'logits'));
+    original.network.dispose();
   });
 });

@@ -33,6 +33,7 @@ export interface FitArgs {
   rebalance?: number;
   'eval-every': number;
   'checkpoint-minutes': number;
+  workers?: number;
 }
 
 /** Adds the shared option table. */
@@ -50,7 +51,11 @@ export function fitOptions<T>(yargs: Argv<T>): Argv<T & FitArgs> {
     .option('learning-rate', { type: 'number', describe: 'optimiser learning rate (default 1e-3)' })
     .option('rebalance', { type: 'number', describe: 'class rebalancing lambda, 0-1: 0.5 favours vivid colours, higher is more cautious (default 0.5)' })
     .option('eval-every', { type: 'number', default: 100, describe: 'evaluate on the held-out photos every this many steps' })
-    .option('checkpoint-minutes', { type: 'number', default: 5, describe: 'minutes between checkpoints' }) as unknown as Argv<T & FitArgs>;
+    .option('checkpoint-minutes', { type: 'number', default: 5, describe: 'minutes between checkpoints' })
+    .option('workers', {
+      type: 'number',
+      describe: 'worker threads computing each step, each on its share of the crops (default: one per core; on --resume the run\'s own; 1 = one thread)',
+    }) as unknown as Argv<T & FitArgs>;
 }
 
 /** The checks both verbs share; `example` is the verb's example command. Pure: throws UsageError. */
@@ -77,6 +82,10 @@ export function checkFitArgs(argv: Partial<FitArgs>, example: string): true {
   if (every !== undefined && !(Number.isInteger(every) && every >= 1)) fail(`--eval-every must be a whole number of at least 1, got ${every}`);
   const minutes = argv['checkpoint-minutes'];
   if (minutes !== undefined && !(minutes > 0)) fail(`--checkpoint-minutes must be above 0, got ${minutes}`);
+  if (argv.workers !== undefined && !(Number.isInteger(argv.workers) && argv.workers >= 1)) fail(`--workers must be a whole number of at least 1, got ${argv.workers}`);
+  if (argv.workers !== undefined && argv.batch !== undefined && !argv.resume && argv.workers > argv.batch) {
+    fail(`--workers ${argv.workers} is more than the ${argv.batch} crops of a step (--batch): each worker needs at least one`);
+  }
   return true;
 }
 
@@ -96,6 +105,7 @@ export function fitOptionsFrom(argv: FitArgs): FitOptions {
     rebalance: argv.rebalance,
     evalEvery: argv['eval-every'],
     checkpointMinutes: argv['checkpoint-minutes'],
+    workers: argv.workers,
   };
 }
 
@@ -133,6 +143,14 @@ export async function runWithProgress(
         break;
       case 'resumed':
         progress.log(`resuming at step ${event.step} (${formatDuration(event.seconds)} trained so far)`);
+        break;
+      case 'workers':
+        progress.log(
+          event.previous === undefined
+            ? `each step computed on ${event.workers === 1 ? 'one thread' : `${event.workers} worker threads`} (--workers)`
+            : `continuing with ${event.workers} worker${event.workers === 1 ? '' : 's'} where the run had ${event.previous}: from step ${event.step} on, ` +
+                'the gradients are summed in another order, so the weights will no longer match an uninterrupted run bit for bit (recorded in training-summary.json)',
+        );
         break;
       case 'baseline':
         progress.log(

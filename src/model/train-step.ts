@@ -6,8 +6,8 @@
 import * as tf from '@tensorflow/tfjs';
 import { BACKBONE_CHANNELS, type BorrowedInputs } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
-import { batchTargets, weightedCrossEntropy } from './loss.js';
-import { OUTPUT_STRIDE, toNetworkInput } from './network.js';
+import { type BatchTargets, batchTargets, weightedCrossEntropy } from './loss.js';
+import { NETWORK_INPUTS, OUTPUT_STRIDE, toNetworkInput } from './network.js';
 
 export interface TrainerOptions {
   /** Adam step size, e.g. 1e-3 from scratch, 1e-4 when tuning. */
@@ -60,6 +60,15 @@ export interface Trainer {
   setState(state: TrainerState): void;
   /** Frees the optimiser's tensors (not the network). */
   dispose(): void;
+  /** Names of the weights being trained (their names in the network), in the order of values() and applyGradients(). */
+  readonly names: string[];
+  /** Copies of the trained weights' current values. */
+  values(): Float32Array[];
+  /**
+   * One Adam step with gradients computed elsewhere (worker threads), in `names` order; null leaves
+   * a weight and its moments as they are, as step() does for a weight the loss does not reach.
+   */
+  applyGradients(grads: (Float32Array | null)[]): void;
 }
 
 interface Slot {
@@ -96,30 +105,26 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
   }));
   const variables = slots.map((s) => s.variable);
 
+  /** Adam's update of one weight from its gradient `g`, at step t (bias corrections given). Inside tf.tidy. */
+  function adam(slot: Slot, g: tf.Tensor, correct1: number, correct2: number): void {
+    const m = tf.add(tf.mul(slot.m, beta1), tf.mul(g, 1 - beta1));
+    const v = tf.add(tf.mul(slot.v, beta2), tf.mul(tf.square(g), 1 - beta2));
+    slot.m.assign(m);
+    slot.v.assign(v);
+    const update = tf.div(tf.div(m, correct1), tf.add(tf.sqrt(tf.div(v, correct2)), epsilon));
+    slot.variable.assign(tf.sub(slot.variable, tf.mul(update, learningRate)));
+  }
+
   function step(L: Float32Array, ab: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): number {
-    if (h % 16 !== 0 || w % 16 !== 0) throw new RangeError(`trainer.step: crops must be multiples of 16, got ${w} x ${h}`);
-    if (L.length !== n * h * w) throw new RangeError(`trainer.step: L has ${L.length} values, expected ${n * h * w}`);
-    const targets = batchTargets(ab, n, h, w, OUTPUT_STRIDE, bins, options.classWeights);
+    const targets = checkedTargets('trainer.step', L, ab, n, h, w, bins, options.classWeights);
     const t = steps + 1;
     const correct1 = 1 - Math.pow(beta1, t);
     const correct2 = 1 - Math.pow(beta2, t);
     const loss = tf.tidy(() => {
-      const x = networkInputs(toNetworkInput(L), n, h, w, borrowed);
-      const target = tf.tensor4d(targets.target, [n, targets.height, targets.width, q]);
-      const weight = tf.tensor3d(targets.weight, [n, targets.height, targets.width]);
-      const { value, grads } = tf.variableGrads(
-        () => weightedCrossEntropy(network.apply(x, { training: true }) as tf.Tensor4D, target, weight),
-        variables,
-      );
+      const { value, grads } = tf.variableGrads(lossFunction(network, targets, q, L, n, h, w, borrowed), variables);
       for (const slot of slots) {
         const g = grads[slot.variable.name];
-        if (!g) continue;
-        const m = tf.add(tf.mul(slot.m, beta1), tf.mul(g, 1 - beta1));
-        const v = tf.add(tf.mul(slot.v, beta2), tf.mul(tf.square(g), 1 - beta2));
-        slot.m.assign(m);
-        slot.v.assign(v);
-        const update = tf.div(tf.div(m, correct1), tf.add(tf.sqrt(tf.div(v, correct2)), epsilon));
-        slot.variable.assign(tf.sub(slot.variable, tf.mul(update, learningRate)));
+        if (g) adam(slot, g, correct1, correct2);
       }
       return value;
     });
@@ -127,6 +132,22 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
     loss.dispose();
     steps = t;
     return result;
+  }
+
+  function applyGradients(grads: (Float32Array | null)[]): void {
+    if (grads.length !== slots.length) throw new RangeError(`trainer.applyGradients: ${grads.length} gradients for ${slots.length} weights`);
+    const t = steps + 1;
+    const correct1 = 1 - Math.pow(beta1, t);
+    const correct2 = 1 - Math.pow(beta2, t);
+    tf.tidy(() => {
+      slots.forEach((slot, i) => {
+        const g = grads[i];
+        if (!g) return;
+        if (g.length !== slot.m.size) throw new RangeError(`trainer.applyGradients: ${g.length} values for ${slot.name}, expected ${slot.m.size}`);
+        adam(slot, tf.tensor(g, slot.m.shape), correct1, correct2);
+      });
+    });
+    steps = t;
   }
 
   async function getState(): Promise<TrainerState> {
@@ -180,6 +201,9 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
     },
     getState,
     setState,
+    names: slots.map((slot) => slot.name),
+    values: () => slots.map((slot) => Float32Array.from(slot.variable.dataSync() as Float32Array)),
+    applyGradients,
     dispose() {
       for (const slot of slots) {
         slot.m.dispose();
@@ -187,6 +211,108 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
       }
     },
   };
+}
+
+/** Checks a batch's sizes and builds its targets (trainer.step and the gradients of a shard alike). */
+function checkedTargets(
+  where: string,
+  L: Float32Array,
+  ab: Float32Array,
+  n: number,
+  h: number,
+  w: number,
+  bins: AbBins,
+  classWeights: Float32Array,
+): BatchTargets {
+  if (h % 16 !== 0 || w % 16 !== 0) throw new RangeError(`${where}: crops must be multiples of 16, got ${w} x ${h}`);
+  if (L.length !== n * h * w) throw new RangeError(`${where}: L has ${L.length} values, expected ${n * h * w}`);
+  return batchTargets(ab, n, h, w, OUTPUT_STRIDE, bins, classWeights);
+}
+
+/** The batch's loss as a function of the network's weights, for tf.variableGrads. Call inside tf.tidy. */
+function lossFunction(
+  network: tf.LayersModel,
+  targets: BatchTargets,
+  q: number,
+  L: Float32Array,
+  n: number,
+  h: number,
+  w: number,
+  borrowed: BorrowedInputs | undefined,
+): () => tf.Scalar {
+  if (network.inputs.length !== (borrowed ? NETWORK_INPUTS.length : 1)) {
+    throw new RangeError(`the network reads ${network.inputs.length === 1 ? 'L* alone' : "the backbone's features beside L*"}, but the batch ${borrowed ? 'carries' : 'lacks'} them`);
+  }
+  const x = networkInputs(toNetworkInput(L), n, h, w, borrowed);
+  const target = tf.tensor4d(targets.target, [n, targets.height, targets.width, q]);
+  const weight = tf.tensor3d(targets.weight, [n, targets.height, targets.width]);
+  return () => weightedCrossEntropy(network.apply(x, { training: true }) as tf.Tensor4D, target, weight);
+}
+
+/** A batch's loss and the gradient of each trained weight (null where the loss does not reach it). */
+export interface BatchGradients {
+  loss: number;
+  grads: (Float32Array | null)[];
+}
+
+export interface GradientOptions {
+  /** Rebalancing weight per bin, as the trainer's. */
+  classWeights: Float32Array;
+  /** The bins the network predicts; default abBins(). */
+  bins?: AbBins;
+  /** The weights to differentiate, by name (a Trainer's `names`). */
+  names: string[];
+}
+
+/** The gradients of a network's loss, without an optimiser: what a training worker computes on its shard of a batch. */
+export interface GradientComputer {
+  /** The loss of the batch (a mean over its pixels) and its gradients, in `names` order. Arguments as Trainer.step's. */
+  compute(L: Float32Array, ab: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): BatchGradients;
+  /** Sets the named weights (in `names` order) to the given values. */
+  setValues(values: Float32Array[]): void;
+}
+
+/**
+ * Gradients of the loss with respect to the named weights of `network`, computed as Trainer.step
+ * computes them.
+ * @example
+ * const g = createGradientComputer(net, { classWeights, names: trainer.names });
+ * const { loss, grads } = g.compute(L, ab, 8, 128, 128);
+ */
+export function createGradientComputer(network: tf.LayersModel, options: GradientOptions): GradientComputer {
+  const bins = options.bins ?? abBins();
+  const q = bins.count;
+  if (options.classWeights.length !== q) {
+    throw new RangeError(`createGradientComputer: ${options.classWeights.length} class weights for ${q} bins`);
+  }
+  const byName = new Map(network.weights.map((w) => [w.originalName, w]));
+  const layerWeights = options.names.map((name) => {
+    const weight = byName.get(name);
+    if (!weight) throw new RangeError(`createGradientComputer: the network has no weight ${name}`);
+    return weight;
+  });
+  // Exactly the named weights are differentiated (tf.variableGrads skips untrainable ones).
+  const wanted = new Set(options.names);
+  for (const weight of network.weights) weight.trainable = wanted.has(weight.originalName);
+  const variables = layerWeights.map((w) => w.read() as tf.Variable);
+
+  function compute(L: Float32Array, ab: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): BatchGradients {
+    const targets = checkedTargets('gradients', L, ab, n, h, w, bins, options.classWeights);
+    const { value, grads } = tf.tidy(() => tf.variableGrads(lossFunction(network, targets, q, L, n, h, w, borrowed), variables));
+    const result: BatchGradients = {
+      loss: value.dataSync()[0]!,
+      grads: variables.map((v) => (grads[v.name] ? (grads[v.name]!.dataSync() as Float32Array) : null)),
+    };
+    tf.dispose([value, ...Object.values(grads)]);
+    return result;
+  }
+
+  function setValues(values: Float32Array[]): void {
+    if (values.length !== variables.length) throw new RangeError(`setValues: ${values.length} values for ${variables.length} weights`);
+    tf.tidy(() => variables.forEach((v, i) => v.assign(tf.tensor(values[i]!, v.shape))));
+  }
+
+  return { compute, setValues };
 }
 
 /**

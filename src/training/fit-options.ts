@@ -62,6 +62,12 @@ export interface FitOptions {
   backbone?: string | false;
   /** Evaluate (and save the model) with annealed-mean decoding at this temperature. Default: the model's decoding. */
   temperature?: number;
+  /**
+   * Worker threads that compute each step's gradients, each on its share of the crops (1: the run's own
+   * thread). Default: one per core for a new run (at most one per crop), the checkpoint's number on resume.
+   * Given with `resume` and different from the checkpoint's, it applies from the next step and is recorded.
+   */
+  workers?: number;
   /** Stops the run cleanly (a checkpoint is written) after the current step. */
   signal?: AbortSignal;
 }
@@ -72,6 +78,8 @@ export type FitEvent =
   | { type: 'features'; done: number; total: number }
   | { type: 'data'; train: number; holdout: number; grey: number; unreadable: { file: string; reason: string }[]; otherFiles: number }
   | { type: 'resumed'; step: number; seconds: number }
+  /** How many worker threads compute the steps; `previous` when a resumed run changes the checkpoint's number. */
+  | { type: 'workers'; workers: number; step: number; previous?: number }
   | { type: 'baseline'; grey: Evaluation; start: Evaluation }
   | { type: 'step'; step: number; loss: number; seconds: number; secondsLeft: number; fraction: number; heldOut?: number }
   | { type: 'evaluation'; step: number; loss: number; evaluation: Evaluation; best: boolean }
@@ -107,6 +115,13 @@ export interface FitResult {
     photoSize: number;
     /** The network reads a backbone's features (absent in runs from before backbones: false). */
     backbone?: boolean;
+    /** Worker threads computing each step (absent in runs from before workers: 1). */
+    workers?: number;
+    /**
+     * Numbers of workers set on resume, and the step from which each applied: from there on the
+     * weights differ (by float rounding, then more) from those of a run never stopped.
+     */
+    workerChanges?: { step: number; workers: number }[];
   };
 }
 

@@ -40,6 +40,7 @@ import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js
 import { CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
 import { evaluatePhotos, type Evaluation } from './evaluation.js';
 import { SUMMARY_FILE, resolveSettings, type FitEvent, type FitMode, type FitOptions, type FitResult, type FitSettings } from './fit-options.js';
+import { defaultWorkers, ParallelTrainer } from './parallel-trainer.js';
 import { loadPhotoSet, type Photo, type PhotoSet } from './photo-set.js';
 import { Random, type RandomState } from './random.js';
 import { appendTrainingLog, truncateTrainingLog } from './training-log.js';
@@ -128,6 +129,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   await checkFolderFiles(out, guard);
 
   const backend = await initBackend();
+  const { workers, previous: previousWorkers } = chooseWorkers(options.workers, settings, saved?.step, backend.name);
   const bins = abBins();
   const counts = new Float64Array(bins.count);
   for (const photo of set.train) binHistogram(photo.a, photo.b, bins, counts);
@@ -278,33 +280,42 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     if (improved && settings.keep === 'best') await saveKept(evaluation, step, elapsed());
   };
 
+  onEvent({ type: 'workers', workers, step, ...(previousWorkers !== undefined ? { previous: previousWorkers } : {}) });
+  const parallel = workers > 1 ? new ParallelTrainer(network, trainer, { workers, classWeights, backend: backend.name }) : undefined;
   let stoppedBy: FitResult['stoppedBy'] = 'steps';
-  for (;;) {
-    if (step >= maxSteps) break;
-    if (elapsed() >= maxSeconds) {
-      stoppedBy = 'time';
-      break;
-    }
-    if (options.signal?.aborted) {
-      stoppedBy = 'interrupted';
-      break;
-    }
-    const batch = sampler.next(settings.batch, settings.crop);
-    const loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
-    step++;
-    lossSum += loss;
-    lossCount++;
-    const seconds = elapsed();
-    const perStep = (seconds - priorSeconds) / Math.max(1, step - (saved?.step ?? 0));
-    const secondsLeft = Math.min(maxSeconds - seconds, (maxSteps - step) * perStep);
-    const fraction = Math.max(maxSteps === Infinity ? 0 : step / maxSteps, maxSeconds === Infinity ? 0 : seconds / maxSeconds);
-    onEvent({ type: 'step', step, loss, seconds, secondsLeft: Math.max(0, secondsLeft), fraction: Math.min(1, fraction), heldOut: lastEvaluation?.evaluation.ciede2000 ?? best?.evaluation.ciede2000 });
+  try {
+    for (;;) {
+      if (step >= maxSteps) break;
+      if (elapsed() >= maxSeconds) {
+        stoppedBy = 'time';
+        break;
+      }
+      if (options.signal?.aborted) {
+        stoppedBy = 'interrupted';
+        break;
+      }
+      const batch = sampler.next(settings.batch, settings.crop);
+      const loss = parallel
+        ? await parallel.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed)
+        : trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
+      step++;
+      lossSum += loss;
+      lossCount++;
+      const seconds = elapsed();
+      const perStep = (seconds - priorSeconds) / Math.max(1, step - (saved?.step ?? 0));
+      const secondsLeft = Math.min(maxSeconds - seconds, (maxSteps - step) * perStep);
+      const fraction = Math.max(maxSteps === Infinity ? 0 : step / maxSteps, maxSeconds === Infinity ? 0 : seconds / maxSeconds);
+      onEvent({ type: 'step', step, loss, seconds, secondsLeft: Math.max(0, secondsLeft), fraction: Math.min(1, fraction), heldOut: lastEvaluation?.evaluation.ciede2000 ?? best?.evaluation.ciede2000 });
 
-    if (step % evalEvery === 0) await recordEvaluation();
-    if (Date.now() - lastCheckpoint >= checkpointMs) {
-      await writeCheckpoint();
-      if (settings.keep === 'last') await saveKept(lastEvaluation?.evaluation ?? before, lastEvaluation?.step ?? 0, elapsed());
+      if (step % evalEvery === 0) await recordEvaluation();
+      if (Date.now() - lastCheckpoint >= checkpointMs) {
+        await writeCheckpoint();
+        if (settings.keep === 'last') await saveKept(lastEvaluation?.evaluation ?? before, lastEvaluation?.step ?? 0, elapsed());
+      }
     }
+  } finally {
+    // Ended on finishing, on an error and on Ctrl-C alike: no thread keeps the process alive.
+    await parallel?.close();
   }
 
   // The end: one more evaluation of the last weights when the loop did not just make one.
@@ -350,6 +361,33 @@ function setWeights(network: tf.LayersModel, weights: Float32Array[]): void {
   const tensors = weights.map((w, i) => tf.tensor(w, current[i]!.shape));
   network.setWeights(tensors);
   tf.dispose(tensors);
+}
+
+/**
+ * Sets and returns `settings.workers` for this session: the number asked for, else the checkpoint's (1
+ * before workers existed), else the default. A number that differs from the checkpoint's is recorded
+ * with the step it applies from; `previous` is then the checkpoint's.
+ */
+function chooseWorkers(asked: number | undefined, settings: FitSettings, savedStep: number | undefined, backend: string): { workers: number; previous?: number } {
+  if (asked !== undefined && !(Number.isInteger(asked) && asked >= 1)) throw new UsageError(`workers must be a whole number of at least 1, got ${asked}`, 'pass --workers 1 or more.');
+  let previous: number | undefined;
+  if (savedStep === undefined) {
+    settings.workers = asked ?? defaultWorkers(settings.batch, backend);
+  } else {
+    const before = settings.workers ?? 1;
+    settings.workers = asked ?? before;
+    if (settings.workers !== before) {
+      settings.workerChanges = [...(settings.workerChanges ?? []), { step: savedStep, workers: settings.workers }];
+      previous = before;
+    }
+  }
+  if (settings.workers > settings.batch) {
+    throw new UsageError(
+      `${settings.workers} workers for ${settings.batch} crops a step: each worker needs at least one crop`,
+      `pass --workers ${settings.batch} or fewer${savedStep === undefined ? ', or a larger --batch' : ''}.`,
+    );
+  }
+  return previous === undefined ? { workers: settings.workers } : { workers: settings.workers, previous };
 }
 
 async function exists(path: string): Promise<boolean> {

@@ -1,4 +1,4 @@
-// Training: photo sets, crops, the fit loop, checkpoints and resume. Re-exports only.
+// Training: photo sets, crops, the fit loop, worker threads, checkpoints and resume. Re-exports only.
 export * from './random.js';
 export * from './resample.js';
 export * from './photo-set.js';
@@ -8,3 +8,5 @@ export * from './checkpoint.js';
 export * from './training-log.js';
 export * from './fit-options.js';
 export * from './fit.js';
+export * from './parallel-trainer.js';
+export * from './gradient-protocol.js';
