@@ -190,8 +190,16 @@ describe('fit: worker threads', () => {
     expect(resumed.options.workerChanges).toBeUndefined();
     expect(resumedEvents.find((e) => e.type === 'workers')).toEqual({ type: 'workers', workers: 2, step: 2 });
 
+    // Interrupted by a signal (as Ctrl-C does) after 2 steps, while the next batch was already drawn.
+    const controller = new AbortController();
+    const stopped = await fit({ ...base, out: join(dir, 'par-signal'), steps: 4, workers: 2, signal: controller.signal }, (e) => {
+      if (e.type === 'step' && e.step === 2) controller.abort();
+    });
+    expect(stopped.steps).toBe(2);
+    await fit({ ...base, workers: undefined, out: join(dir, 'par-signal'), steps: 4, resume: true });
+
     const a = await weightsOf(join(dir, 'par-a'));
-    for (const other of ['par-b', 'par-split']) {
+    for (const other of ['par-b', 'par-split', 'par-signal']) {
       const b = await weightsOf(join(dir, other));
       expect(b.step).toBe(4);
       expect(same(b.weights, a.weights), other).toBe(true);
@@ -213,12 +221,12 @@ describe('fit: worker threads', () => {
     const changed = await fit({ ...base, out, steps: 3, resume: true, workers: 1 }, (e) => events.push(e));
     expect(events.find((e) => e.type === 'workers')).toEqual({ type: 'workers', workers: 1, step: 2, previous: 2 });
     expect(changed.options.workers).toBe(1);
-    expect(changed.options.workerChanges).toEqual([{ step: 2, workers: 1 }]);
+    expect(changed.options.workerChanges).toEqual([{ step: 2, previous: 2, workers: 1 }]);
     const summary = JSON.parse(await readFile(join(out, SUMMARY_FILE), 'utf8'));
-    expect(summary.options.workerChanges).toEqual([{ step: 2, workers: 1 }]);
+    expect(summary.options.workerChanges).toEqual([{ step: 2, previous: 2, workers: 1 }]);
     // The record stays with the run: a later resume with the same number adds nothing.
     const again = await fit({ ...base, out, steps: 4, resume: true, workers: 1 });
-    expect(again.options.workerChanges).toEqual([{ step: 2, workers: 1 }]);
+    expect(again.options.workerChanges).toEqual([{ step: 2, previous: 2, workers: 1 }]);
 
     // A checkpoint written before the number of workers was recorded: it ran on one thread, and goes on so.
     const old = join(dir, 'par-old');

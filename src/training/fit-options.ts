@@ -118,10 +118,10 @@ export interface FitResult {
     /** Worker threads computing each step (absent in runs from before workers: 1). */
     workers?: number;
     /**
-     * Numbers of workers set on resume, and the step from which each applied: from there on the
-     * weights differ (by float rounding, then more) from those of a run never stopped.
+     * Numbers of workers set on resume (with the number before), and the step from which each applied:
+     * from there on the weights differ (by float rounding, then more) from those of a run never stopped.
      */
-    workerChanges?: { step: number; workers: number }[];
+    workerChanges?: { step: number; previous: number; workers: number }[];
   };
 }
 

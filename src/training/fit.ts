@@ -37,7 +37,7 @@ import {
 } from '../model/index.js';
 import { VERSION } from '../version.js';
 import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js';
-import { CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
+import { type CropBatch, CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
 import { evaluatePhotos, type Evaluation } from './evaluation.js';
 import { SUMMARY_FILE, resolveSettings, type FitEvent, type FitMode, type FitOptions, type FitResult, type FitSettings } from './fit-options.js';
 import { defaultWorkers, ParallelTrainer } from './parallel-trainer.js';
@@ -169,6 +169,11 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   let lossSum = 0;
   let lossCount = 0;
   let sampler: CropSampler;
+  /**
+   * The next batch, drawn while the workers computed a step, with the random state from before it:
+   * a checkpoint keeps that state, so a resumed run draws the same batch again.
+   */
+  let ahead: { batch: CropBatch; rng: RandomState; sampler: SamplerState } | undefined;
   let best: CheckpointState['best'] = null;
   let grey: Evaluation;
   let before: Evaluation;
@@ -247,8 +252,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       seconds: elapsed(),
       lossSum,
       lossCount,
-      rng: rng.getState(),
-      sampler: sampler.getState(),
+      rng: ahead?.rng ?? rng.getState(),
+      sampler: ahead?.sampler ?? sampler.getState(),
       options: settings,
       trainFiles: set.train.map((p) => p.file),
       holdoutFiles: set.holdout.map((p) => p.file),
@@ -294,10 +299,20 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         stoppedBy = 'interrupted';
         break;
       }
-      const batch = sampler.next(settings.batch, settings.crop);
-      const loss = parallel
-        ? await parallel.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed)
-        : trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
+      const batch = ahead?.batch ?? sampler.next(settings.batch, settings.crop);
+      ahead = undefined;
+      let loss: number;
+      if (parallel) {
+        // The shards are on their way when step() returns; the main thread draws the next batch meanwhile.
+        const computed = parallel.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
+        if (step + 1 < maxSteps) {
+          const before = { rng: rng.getState(), sampler: sampler.getState() };
+          ahead = { ...before, batch: sampler.next(settings.batch, settings.crop) };
+        }
+        loss = await computed;
+      } else {
+        loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
+      }
       step++;
       lossSum += loss;
       lossCount++;
@@ -377,7 +392,7 @@ function chooseWorkers(asked: number | undefined, settings: FitSettings, savedSt
     const before = settings.workers ?? 1;
     settings.workers = asked ?? before;
     if (settings.workers !== before) {
-      settings.workerChanges = [...(settings.workerChanges ?? []), { step: savedStep, workers: settings.workers }];
+      settings.workerChanges = [...(settings.workerChanges ?? []), { step: savedStep, previous: before, workers: settings.workers }];
       previous = before;
     }
   }

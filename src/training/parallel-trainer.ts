@@ -88,6 +88,7 @@ export class ParallelTrainer {
   /**
    * The loss and gradients of a whole batch, from its shards: the mean over all pixels, as one thread
    * would compute it (up to float rounding), since each shard's mean is weighted by its share of crops.
+   * Once the workers have started, the shards go out before the first await.
    */
   async gradients(L: Float32Array, ab: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): Promise<BatchGradients> {
     if (this.closed) throw new Error('the parallel trainer is closed');
@@ -96,8 +97,8 @@ export class ParallelTrainer {
     }
     const sizes = shardSizes(n, this.slots.length);
     if (sizes.some((s) => s === 0)) throw new RangeError(`${n} crops cannot be shared by ${this.slots.length} workers: each needs at least one`);
-    await Promise.all(this.slots.map((s) => s.ready));
     if (!this.loaded) {
+      await Promise.all(this.slots.map((s) => s.ready));
       // The untrained weights (a frozen encoder) travel once; the trained ones with every shard.
       const names = this.network.weights.map((w) => w.originalName);
       const values = this.network.weights.map((w) => Float32Array.from(w.read().dataSync() as Float32Array));
@@ -116,7 +117,10 @@ export class ParallelTrainer {
     return combine(results, sizes, n);
   }
 
-  /** One optimiser step on a batch (arguments as Trainer.step's). Returns the batch loss. */
+  /**
+   * One optimiser step on a batch (arguments as Trainer.step's). Returns the batch loss. After the
+   * first step, the shards are sent before this returns its promise: the caller may work meanwhile.
+   */
   async step(L: Float32Array, ab: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): Promise<number> {
     const { loss, grads } = await this.gradients(L, ab, n, h, w, borrowed);
     this.trainer.applyGradients(grads);

@@ -1,0 +1,115 @@
+// Training speed on worker threads (`kinhue train --workers`): samples per second with 1 worker (the
+// run's own thread), 2 workers and one per core, the CPU time per sample (all threads of the process),
+// and the ratio to one worker (goal, issue 13: 2 workers at least 1.7x one on a 2-core machine).
+// As `train` runs by default: the network with the backbone's features beside L*, 16 crops of 128 x 128
+// a step drawn by the crop sampler from 40 photos of 320 x 240 (seeded stand-ins for photos and their
+// backbone features: speed does not depend on the values); with workers, the next batch is drawn while
+// they compute, as the fit loop does. Also the main thread's share of a step: the Adam update it
+// applies while the workers wait.
+// The machine's load average is printed first: on a shared machine the figures say little without it.
+// KINHUE_BENCH_STEPS sets the timed steps per count (default 3, after one untimed step). Figures only.
+import { availableParallelism, loadavg } from 'node:os';
+import { abBins, BACKBONE_CHANNELS, BACKBONE_GRID, createNetwork, createTrainer, initBackend } from '../dist/model/index.js';
+import { BACKBONE_PHOTO_SIZE, CropSampler, ParallelTrainer, Random } from '../dist/training/index.js';
+
+const CROP = 128;
+const BATCH = 16;
+const STEPS = Number(process.env.KINHUE_BENCH_STEPS ?? 3);
+
+const backend = await initBackend();
+const bins = abBins();
+const classWeights = new Float32Array(bins.count).fill(1);
+
+function cpuMs() {
+  const u = process.cpuUsage();
+  return (u.user + u.system) / 1000;
+}
+
+/** Seeded stand-ins for the training photos and their backbone features (both ways round). */
+function photos(count) {
+  let s = 2463534242;
+  const next = () => {
+    s ^= s << 13; s >>>= 0; s ^= s >>> 17; s ^= s << 5; s >>>= 0;
+    return s / 4294967296;
+  };
+  const w = BACKBONE_PHOTO_SIZE;
+  const h = (BACKBONE_PHOTO_SIZE * 3) / 4;
+  const C = BACKBONE_CHANNELS;
+  const plane = (n, f) => new Float32Array(n).map(f);
+  const features = () => ({
+    local8: plane(BACKBONE_GRID.local8 ** 2 * C.local8, () => next() - 0.5),
+    local16: plane(BACKBONE_GRID.local16 ** 2 * C.local16, () => next() - 0.5),
+    global: plane(C.global, () => next() - 0.5),
+  });
+  const list = Array.from({ length: count }, (_, k) => ({
+    file: `photo-${k}`,
+    width: w,
+    height: h,
+    L: plane(w * h, (_, i) => 50 + 30 * Math.sin(i / 37 + k) + 10 * next()),
+    a: plane(w * h, () => 80 * next() - 40),
+    b: plane(w * h, () => 80 * next() - 40),
+  }));
+  return { list, features: list.map(() => ({ plain: features(), mirrored: features() })) };
+}
+
+const pool = photos(40);
+const load = loadavg().map((x) => x.toFixed(2)).join(', ');
+console.log(`backend                          ${backend.name}${backend.warning ? ` (${backend.warning})` : ''}`);
+console.log(`cores                            ${availableParallelism()}; load average (1, 5, 15 min) before: ${load}`);
+console.log(`network                          train's default (backbone features beside L*), ${BATCH} crops of ${CROP} x ${CROP} a step, ${STEPS} timed steps each`);
+
+const counts = [...new Set([1, 2, availableParallelism()])].filter((k) => k <= BATCH);
+/** One run per count of workers, each with its own network, sampler and figures. */
+const runs = counts.map((workers) => {
+  const network = createNetwork({ bins: bins.count, backbone: true });
+  const trainer = createTrainer(network, { learningRate: 1e-3, classWeights });
+  const parallel = workers > 1 ? new ParallelTrainer(network, trainer, { workers, classWeights, backend: backend.name }) : undefined;
+  const sampler = new CropSampler(pool.list, new Random(1), undefined, pool.features);
+  let ahead;
+  const step = async () => {
+    const batch = ahead ?? sampler.next(BATCH, CROP);
+    if (!parallel) return trainer.step(batch.L, batch.ab, BATCH, CROP, CROP, batch.borrowed);
+    const computed = parallel.step(batch.L, batch.ab, BATCH, CROP, CROP, batch.borrowed);
+    ahead = sampler.next(BATCH, CROP);
+    return computed;
+  };
+  return { workers, network, trainer, parallel, step, wall: 0, cpu: 0 };
+});
+try {
+  for (const run of runs) await run.step(); // untimed: workers start, kernels set up, memory grown
+  // Taken in turns, step by step, so that a change in the machine's load falls on every count alike.
+  for (let i = 0; i < STEPS; i++) {
+    for (const run of runs) {
+      const c0 = cpuMs();
+      const t0 = performance.now();
+      await run.step();
+      run.wall += (performance.now() - t0) / 1000;
+      run.cpu += cpuMs() - c0;
+    }
+  }
+  const single = (STEPS * BATCH) / runs[0].wall;
+  for (const run of runs) {
+    const rate = (STEPS * BATCH) / run.wall;
+    console.log(
+      `${String(run.workers).padStart(2)} worker${run.workers === 1 ? ' ' : 's'}                       ${rate.toFixed(2)} samples/s wall, ` +
+        `${(run.cpu / (STEPS * BATCH)).toFixed(0)} ms CPU per sample, ${(rate / single).toFixed(2)}x one worker` +
+        (run.workers === 2 ? ' (goal: 1.7x on 2 cores)' : ''),
+    );
+  }
+  const last = runs.at(-1);
+  const grads = last.trainer.values().map((v) => new Float32Array(v.length).fill(1e-4));
+  const a0 = performance.now();
+  for (let i = 0; i < 5; i++) last.trainer.applyGradients(grads);
+  const adam = (performance.now() - a0) / 5;
+  const weights = grads.reduce((sum, g) => sum + g.length, 0);
+  console.log(
+    `main thread per step             Adam on ${weights.toLocaleString('en')} weights: ${adam.toFixed(0)} ms ` +
+      `(${((adam / 1000 / (last.wall / STEPS)) * 100).toFixed(1)}% of a step on ${last.workers} workers)`,
+  );
+} finally {
+  for (const run of runs) {
+    await run.parallel?.close();
+    run.trainer.dispose();
+    run.network.dispose();
+  }
+}
