@@ -210,7 +210,7 @@ describe('fit: worker threads', () => {
     // comparisons above are between two-worker runs.
     await fit({ ...base, out: join(dir, 'par-one'), steps: 4, workers: 1 });
     expect(same((await weightsOf(join(dir, 'par-one'))).weights, a.weights)).toBe(false);
-  });
+  }, 300_000);
 
   it('resuming with another number of workers says so and records it; a run from before workers resumes on one thread', async () => {
     const photos = join(dir, 'scenes-parallel');

@@ -177,7 +177,7 @@ describe('kinhue train with worker threads, as a process', () => {
     return folder;
   }
 
-  /** Runs the CLI; `onLine` sees stderr as it comes. Resolves with the exit code and output. */
+  /** Runs the CLI; `onStderr` sees stderr so far, as it comes. Resolves with the exit code and output. */
   function run(args: string[], onStderr: (text: string, child: ReturnType<typeof spawn>) => void = () => {}): Promise<{ code: number | null; stdout: string; stderr: string }> {
     const child = spawn(process.execPath, [BIN, ...args], { stdio: ['ignore', 'pipe', 'pipe'] });
     let stdout = '';
@@ -188,7 +188,7 @@ describe('kinhue train with worker threads, as a process', () => {
       onStderr(stderr, child);
     });
     // A process that hangs (a worker thread left running) fails the test by this timeout.
-    const timer = setTimeout(() => child.kill('SIGKILL'), 90_000);
+    const timer = setTimeout(() => child.kill('SIGKILL'), 150_000);
     return new Promise((resolve) =>
       child.on('exit', (code) => {
         clearTimeout(timer);
@@ -214,7 +214,7 @@ describe('kinhue train with worker threads, as a process', () => {
     expect(summary.options.workers).toBe(2);
     expect(summary.stoppedBy).toBe('interrupted');
     await readFile(join(out, CHECKPOINT_FILE));
-  });
+  }, 200_000);
 
   it('ends, workers and all, when the run fails mid-way', async () => {
     const out = join(dir, 'failing');
@@ -230,5 +230,5 @@ describe('kinhue train with worker threads, as a process', () => {
     expect(r.code).not.toBe(0);
     expect(r.code).not.toBeNull();
     expect(r.stderr).toMatch(new RegExp(CHECKPOINT_FILE.replace('.', '\\.')));
-  });
+  }, 200_000);
 });
