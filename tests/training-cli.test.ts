@@ -1,7 +1,6 @@
-import { mkdir, mkdtemp, rm } from 'node:fs/promises';
+import { mkdtemp, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import sharp from 'sharp';
 import { describe, expect, it, vi } from 'vitest';
 import { main } from '../src/cli/main.js';
 import { check as checkTrain } from '../src/cli/commands/train.js';
@@ -9,6 +8,7 @@ import { check as checkTune } from '../src/cli/commands/tune.js';
 import { formatDuration, Progress } from '../src/cli/progress.js';
 import { UsageError } from '../src/errors.js';
 import { readTrainingLog } from '../src/training/index.js';
+import { writeSkyGrassPhotos } from './helpers/sky-grass-photos.js';
 
 const ok = { photos: ['photos/'], out: 'models/mine', hours: 1, batch: 16, crop: 128, seed: 1, holdout: 0.1, resume: false, 'eval-every': 100, 'checkpoint-minutes': 5 };
 
@@ -84,16 +84,7 @@ describe('progress display', () => {
 describe('kinhue train on the command line', () => {
   it('trains, refuses to overwrite the run, and resumes it', async () => {
     const dir = await mkdtemp(join(tmpdir(), 'kinhue-training-cli-'));
-    const photos = join(dir, 'photos');
-    await mkdir(photos);
-    for (let k = 0; k < 4; k++) {
-      // Sky above, grass below: a colour photo in miniature (our own test image).
-      const w = 64;
-      const h = 48;
-      const data = Buffer.alloc(w * h * 3);
-      for (let i = 0; i < w * h; i++) data.set(i < (w * h) / 2 ? [90 + 20 * k, 150, 230] : [70, 140 - 10 * k, 60], i * 3);
-      await sharp(data, { raw: { width: w, height: h, channels: 3 } }).png().toFile(join(photos, `p${k}.png`));
-    }
+    const photos = await writeSkyGrassPhotos(join(dir, 'photos'));
     const out = join(dir, 'model');
     const printed: string[] = [];
     const log = vi.spyOn(console, 'log').mockImplementation((...args) => void printed.push(args.join(' ')));

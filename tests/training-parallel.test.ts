@@ -3,7 +3,6 @@ import { mkdir, mkdtemp, readFile, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import {
   abBins,
@@ -18,6 +17,7 @@ import {
   type BorrowedInputs,
 } from '../src/model/index.js';
 import { CHECKPOINT_FILE, ParallelTrainer, shardSizes, SUMMARY_FILE } from '../src/training/index.js';
+import { writeSkyGrassPhotos } from './helpers/sky-grass-photos.js';
 
 // Data-parallel training steps on real worker threads (loaded from dist/, built by npm test) against
 // the one-thread computation of the same batch. Tiny networks and 32-pixel crops keep this fast.
@@ -163,20 +163,6 @@ describe('parallel trainer', () => {
 });
 
 describe('kinhue train with worker threads, as a process', () => {
-  /** Four small colour photos: sky above, grass below (our own test images). */
-  async function photos(): Promise<string> {
-    const folder = join(dir, 'photos');
-    await mkdir(folder, { recursive: true });
-    for (let k = 0; k < 4; k++) {
-      const w = 64;
-      const h = 48;
-      const data = Buffer.alloc(w * h * 3);
-      for (let i = 0; i < w * h; i++) data.set(i < (w * h) / 2 ? [90 + 20 * k, 150, 230] : [70, 140 - 10 * k, 60], i * 3);
-      await sharp(data, { raw: { width: w, height: h, channels: 3 } }).png().toFile(join(folder, `p${k}.png`));
-    }
-    return folder;
-  }
-
   /** Runs the CLI; `onStderr` sees stderr so far, as it comes. Resolves with the exit code and output. */
   function run(args: string[], onStderr: (text: string, child: ReturnType<typeof spawn>) => void = () => {}): Promise<{ code: number | null; stdout: string; stderr: string }> {
     const child = spawn(process.execPath, [BIN, ...args], { stdio: ['ignore', 'pipe', 'pipe'] });
@@ -202,7 +188,7 @@ describe('kinhue train with worker threads, as a process', () => {
   it('stops after the step on Ctrl-C, writes its checkpoint and ends, workers and all', async () => {
     const out = join(dir, 'sigint');
     let sent = false;
-    const r = await run(['train', await photos(), '--out', out, '--steps', '100000', ...common], (text, child) => {
+    const r = await run(['train', await writeSkyGrassPhotos(join(dir, 'photos')), '--out', out, '--steps', '100000', ...common], (text, child) => {
       if (!sent && /on 2 worker threads/.test(text)) {
         sent = true;
         child.kill('SIGINT');
@@ -220,7 +206,7 @@ describe('kinhue train with worker threads, as a process', () => {
     const out = join(dir, 'failing');
     let blocked = false;
     // A folder where the checkpoint goes: the first checkpoint (due after every step) cannot be written.
-    const r = await run(['train', await photos(), '--out', out, '--steps', '100000', '--checkpoint-minutes', '0.0001', ...common], (text) => {
+    const r = await run(['train', await writeSkyGrassPhotos(join(dir, 'photos')), '--out', out, '--steps', '100000', '--checkpoint-minutes', '0.0001', ...common], (text) => {
       if (!blocked && /on 2 worker threads/.test(text)) {
         blocked = true;
         void mkdir(join(out, CHECKPOINT_FILE, 'in-the-way'), { recursive: true });
