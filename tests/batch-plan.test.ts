@@ -7,7 +7,7 @@ import {
   appendManifest, discoverInputs, loadManifest, planOutputs, readManifest, settingsKey, terminateManifest, type RestoreSettings,
 } from '../src/batch/index.js';
 import { UsageError } from '../src/errors.js';
-import { fitName, NAME_MAX_BYTES, tempPathFor, temporaryOwner } from '../src/files/index.js';
+import { fitName, hostLabel, NAME_MAX_BYTES, tempPathFor, temporaryOwner } from '../src/files/index.js';
 
 let root: string;
 
@@ -189,12 +189,13 @@ describe('temporary names', () => {
     const temp = tempPathFor(join('/out', name));
     const base = temp.slice('/out/'.length);
     expect(Buffer.byteLength(base)).toBeLessThanOrEqual(NAME_MAX_BYTES);
-    expect(temporaryOwner(base)).toBe(process.pid);
+    expect(temporaryOwner(base)).toEqual({ pid: process.pid, host: hostLabel() });
     expect(base).not.toContain('\uFFFD');
     expect(fitName(name, 100)).toBe(fitName(name, 100));
     expect(fitName(name, 100)).not.toBe(fitName(`${name}x`, 100));
     expect(fitName('short.png', 100)).toBe('short.png');
     expect(temporaryOwner('notes.tmp')).toBeUndefined();
-    expect(temporaryOwner('a.png.123.0badf00d.tmp')).toBe(123);
+    expect(temporaryOwner('a.png.123.0badf00d.tmp')).toEqual({ pid: 123 }); // named before the machine was added
+    expect(temporaryOwner('a.png.123@node-07.0badf00d.tmp')).toEqual({ pid: 123, host: 'node-07' });
   });
 });

@@ -4,6 +4,9 @@ export * from './options.js';
 export * from './discovery.js';
 export * from './naming.js';
 export * from './manifest.js';
+export * from './part.js';
+export * from './run-folder.js';
+export * from './run-progress.js';
 export {
   colouriseLightness, fullSizeGrid, workingColour, workingSize,
   type ColouriseOptions, type RefineStep, type WorkingColour,

@@ -1,14 +1,16 @@
 /**
- * The run manifest, `kinhue-run.jsonl` in the output folder: one JSON line per outcome, appended and
- * never rewritten, so an interrupted run loses nothing already recorded. The last line for an output
- * name wins. A later run skips an output whose last line says done with the same source SHA-256 and
- * the same settings key (and whose files are all still there), and retries everything else. A line
- * cut short by a kill or a full disk is ended with a newline when the next run starts, so no later
- * record is glued onto it.
+ * A run manifest, `kinhue-run.jsonl` in the output folder (one per part of a split run, see
+ * run-folder.ts): one JSON line per outcome, appended and never rewritten, so an interrupted run loses
+ * nothing already recorded, and one line each time a run starts (its part, machine, process and
+ * counts, read by `kinhue progress`). The last line for an output name wins. A later run skips an
+ * output whose last line says done with the same source SHA-256 and the same settings key (and whose
+ * files are all still there), and retries everything else. A line cut short by a kill or a full disk
+ * is ended with a newline when the next run starts, so no later record is glued onto it.
  */
 import { appendFile, readFile } from 'node:fs/promises';
 import { basename } from 'node:path';
 import { ErrorCodes, KinhueError } from '../errors.js';
+import type { Part } from './part.js';
 
 export type ManifestStatus = 'done' | 'failed';
 
@@ -36,41 +38,71 @@ export interface ManifestRecord {
   error?: { code: string; message: string; hint?: string };
 }
 
+/** The line a run writes when it starts work. */
+export interface RunStart {
+  time: string;
+  start: {
+    /** The part of a split run; null for a run of all scans. */
+    part: Part | null;
+    /** The machine (see hostLabel) and process. */
+    host: string;
+    pid: number;
+    /** Scans of this part that the run restores or skips (not conflicts or refused outputs). */
+    files: number;
+    /** Scans found, in all parts. */
+    all: number;
+    /** Scans left to restore when it started. */
+    toRun: number;
+    /** The settings key of the run. */
+    settings: string;
+  };
+}
+
 export interface ManifestContents {
   /** The last record per output name. */
   records: Map<string, ManifestRecord>;
+  /** Every record, in the order written. */
+  history: ManifestRecord[];
+  /** Every start line, in the order written. */
+  starts: RunStart[];
   /** Lines that were not records, said for people (line numbers count from 1). */
   notes: string[];
   /** True when the file does not end with a newline: its last line was cut short (see terminateManifest). */
   torn: boolean;
 }
 
-/** Where a record written by appendManifest starts (its first key is `time`). */
+/** Where a line written by appendManifest starts (its first key is `time`). */
 const RECORD_START = '{"time":';
 
-function asRecord(text: string): ManifestRecord | undefined {
+/** One line read: an outcome record, a start line, or undefined when it is neither. */
+function asLine(text: string): ManifestRecord | RunStart | undefined {
   try {
-    const record = JSON.parse(text) as ManifestRecord;
-    return record && typeof record.output === 'string' && (record.status === 'done' || record.status === 'failed') ? record : undefined;
+    const line = JSON.parse(text) as Partial<ManifestRecord & RunStart> | null;
+    if (!line || typeof line.time !== 'string') return undefined;
+    if (typeof line.output === 'string' && (line.status === 'done' || line.status === 'failed')) return line as ManifestRecord;
+    if (line.start && typeof line.start === 'object' && typeof line.start.files === 'number') return line as RunStart;
+    return undefined;
   } catch {
     return undefined;
   }
 }
 
 /**
- * Reads a manifest: the last record per output name, and notes on lines that are not records. A
- * missing file is an empty manifest. A record cut short (a run killed or a disk full while writing)
- * is ignored, so its scan is redone; a record that a later run wrote onto the same line is still
- * read, so one damaged line never hides another record.
+ * Reads a manifest: the last record per output name, every record and start line, and notes on
+ * lines that are neither. A missing file is an empty manifest. A record cut short (a run killed or a
+ * disk full while writing) is ignored, so its scan is redone; a record that a later run wrote onto
+ * the same line is still read, so one damaged line never hides another record. With `growing` (the
+ * manifest of another part, which may be writing its last line right now) an unfinished last line
+ * is ignored without a note.
  * @example
  *   const { records, notes, torn } = await loadManifest('restored/kinhue-run.jsonl');
  */
-export async function loadManifest(path: string): Promise<ManifestContents> {
+export async function loadManifest(path: string, options: { growing?: boolean } = {}): Promise<ManifestContents> {
   let text: string;
   try {
     text = await readFile(path, 'utf8');
   } catch (error) {
-    if ((error as NodeJS.ErrnoException).code === 'ENOENT') return { records: new Map(), notes: [], torn: false };
+    if ((error as NodeJS.ErrnoException).code === 'ENOENT') return { records: new Map(), history: [], starts: [], notes: [], torn: false };
     throw new KinhueError(ErrorCodes.UNREADABLE, 'the run manifest could not be read', {
       file: path,
       hint: 'check its permissions, or choose another --out folder',
@@ -78,26 +110,36 @@ export async function loadManifest(path: string): Promise<ManifestContents> {
     });
   }
   const records = new Map<string, ManifestRecord>();
+  const history: ManifestRecord[] = [];
+  const starts: RunStart[] = [];
   const notes: string[] = [];
   const torn = text.length > 0 && !text.endsWith('\n');
   const lines = text.split('\n');
+  const keep = (line: ManifestRecord | RunStart): void => {
+    if ('start' in line) starts.push(line);
+    else {
+      history.push(line);
+      records.set(line.output, line);
+    }
+  };
   lines.forEach((line, i) => {
     if (!line.trim()) return;
-    const whole = asRecord(line);
+    if (torn && options.growing && i === lines.length - 1) return;
+    const whole = asLine(line);
     if (whole) {
-      records.set(whole.output, whole);
+      keep(whole);
       return;
     }
-    // A cut-short record with others appended to it on the same line: read every record that starts there.
-    const kept: ManifestRecord[] = [];
+    // A cut-short record with another appended to it on the same line: read the one that starts there.
+    const kept: (ManifestRecord | RunStart)[] = [];
     for (let at = line.indexOf(RECORD_START, 1); at > 0; at = line.indexOf(RECORD_START, at + 1)) {
-      const record = asRecord(line.slice(at));
+      const record = asLine(line.slice(at));
       if (record) {
         kept.push(record);
         break;
       }
     }
-    for (const record of kept) records.set(record.output, record);
+    for (const record of kept) keep(record);
     const where = `${basename(path)} line ${i + 1}`;
     notes.push(
       torn && i === lines.length - 1
@@ -107,7 +149,7 @@ export async function loadManifest(path: string): Promise<ManifestContents> {
           : `${where} is not a record kinhue wrote and is ignored`,
     );
   });
-  return { records, notes, torn };
+  return { records, history, starts, notes, torn };
 }
 
 /**
@@ -133,11 +175,11 @@ export async function terminateManifest(path: string): Promise<void> {
 }
 
 /**
- * Appends one record as one line.
+ * Appends one record (or start line) as one line.
  * @example
  *   await appendManifest('restored/kinhue-run.jsonl', record);
  */
-export async function appendManifest(path: string, record: ManifestRecord): Promise<void> {
+export async function appendManifest(path: string, record: ManifestRecord | RunStart): Promise<void> {
   try {
     await appendFile(path, `${JSON.stringify(record)}\n`, 'utf8');
   } catch (error) {

@@ -6,6 +6,7 @@ import { createHash } from 'node:crypto';
 import { availableParallelism } from 'node:os';
 import type { OutputFormat } from '../image/index.js';
 import type { Decoding } from '../model/index.js';
+import type { Part } from './part.js';
 
 /** `same` keeps each source's own format (falling back to PNG for formats kinhue does not write). */
 export type FormatChoice = 'same' | OutputFormat;
@@ -42,6 +43,11 @@ export interface RestoreOptions {
   hints?: string | false;
   /** A reference colour photograph, or a folder of them, for every scan (Welsh et al. 2002). */
   reference?: string;
+  /**
+   * Restore only this part of the scans (see part.ts): parts of one run, started alike on many
+   * machines, share the output folder and never write the same file.
+   */
+  part?: Part;
   /** Plan only: discover, name outputs, read the manifest, but run nothing and write nothing. */
   dryRun?: boolean;
   /** Pixel limit per image (decompression-bomb guard); default from KINHUE_MAX_PIXELS or the image module's. */

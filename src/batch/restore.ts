@@ -1,21 +1,24 @@
 /**
- * The restore run: discover the scans, plan their outputs, read the manifest, then restore every file
- * not already finished on a queue of worker threads, recording each outcome as it lands. One bad file is
- * recorded and the run goes on; a stop request lets files in progress finish and starts no new one.
+ * The restore run: discover the scans, plan their outputs, keep this part's scans when the run is one
+ * part of many, read the folder's manifests, then restore every file not already finished on a queue
+ * of worker threads, recording each outcome as it lands. One bad file is recorded and the run goes on;
+ * a stop request lets files in progress finish and starts no new one.
  */
 import { mkdir, stat } from 'node:fs/promises';
-import { dirname, resolve } from 'node:path';
+import { basename, dirname, join, resolve } from 'node:path';
 import pLimit from 'p-limit';
 import { ErrorCodes, isKinhueError, KinhueError, ModelError, UsageError } from '../errors.js';
-import { identify, InputGuard, removeTemporaryFiles } from '../files/index.js';
+import { hostLabel, identify, InputGuard, isTemporaryOfAny, leftByEndedProcess, removeTemporaryFiles } from '../files/index.js';
 import { resolveMaxPixels } from '../image/index.js';
 import { readModelInfo } from './model-info.js';
 import { discoverInputs, underFolder } from './discovery.js';
-import { appendManifest, loadManifest, terminateManifest, type ManifestRecord } from './manifest.js';
+import { appendManifest, terminateManifest, type ManifestRecord } from './manifest.js';
+import { loadRunFolder, manifestName, splitCounts } from './run-folder.js';
+import { checkedPart, partLabel, partOf, type Part } from './part.js';
 import { planOutputs, type PlannedOutputs } from './naming.js';
 import { DEFAULT_MODEL_DIR, chooseDecoding } from '../model/index.js';
 import { cachedReference, hintsFingerprint } from '../hints/index.js';
-import { MANIFEST_NAME, defaultJobs, settingsKey, type RestoreOptions, type RestoreSettings } from './options.js';
+import { defaultJobs, settingsKey, type RestoreOptions, type RestoreSettings } from './options.js';
 import { WorkerPool } from './pool.js';
 import type { FileJob, ProvenanceRecord } from './restore-file.js';
 import { serialiseError, type SerialisedError } from './worker-protocol.js';
@@ -65,8 +68,13 @@ export type RestoreEvent =
 
 export interface RestoreSummary {
   outDir: string;
+  /** The manifest this run appends to. */
   manifest: string;
-  /** Files found, plus inputs that could not be searched (unreadable folders, broken links). */
+  /** The part of a split run; null for a run of all scans. */
+  part: Part | null;
+  /** Scans found in all parts. */
+  found: number;
+  /** Files found (of this part), plus inputs that could not be searched (unreadable folders, broken links). */
   total: number;
   /** Restored in this run. */
   done: number;
@@ -143,22 +151,34 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     }
   }
 
+  const part = options.part ? checkedPart(options.part.index, options.part.count, 'part') : null;
   const discovery = await discoverInputs(options.inputs, outDir);
+  const inPart = (rel: string): boolean => !part || partOf(rel, part.count) === part.index;
   const notes = [...discovery.notes];
-  const failures: FileFailure[] = discovery.problems.map((p) => ({ source: p.path, rel: p.rel, code: p.code, message: p.message, hint: p.hint }));
+  const problems = discovery.problems.filter((p) => inPart(p.rel));
+  const failures: FileFailure[] = problems.map((p) => ({ source: p.path, rel: p.rel, code: p.code, message: p.message, hint: p.hint }));
   const guard = await InputGuard.of(discovery.files.map((f) => f.path), {
     hint: 'choose an --out folder that is not your scans folder and holds no link to it', outsideInputFolders: true,
   });
-  const outputs = planOutputs(discovery.files, settings.format);
-  const manifestPath = `${outDir}/${MANIFEST_NAME}`;
+  // Outputs are named over all scans found, so every part names them alike; then each part keeps its own.
+  const allOutputs = planOutputs(discovery.files, settings.format);
+  const mine = discovery.files.flatMap((f, i) => (inPart(allOutputs[i]!.image) ? [{ f, o: allOutputs[i]! }] : []));
+  const host = hostLabel();
+  const ownName = manifestName(part, host);
+  const manifestPath = join(outDir, ownName);
   await guard.check(manifestPath);
-  const manifest = await loadManifest(manifestPath);
-  notes.push(...manifest.notes);
-  const previous = manifest.records;
+  const run = await loadRunFolder(outDir, ownName);
+  const splits = splitCounts(run);
+  if (part && splits.some((count) => count !== part.count)) {
+    throw new UsageError(
+      `the output folder ${options.out} holds parts of a run split into ${splits.join(' and ')} parts; ${partLabel(part)} would share outputs with them`,
+      `split this run into ${splits[0]} parts as before (--part K/${splits[0]}, or --part-count ${splits[0]}), or, once no part runs any more, finish it on one machine without --part`,
+    );
+  }
+  notes.push(...run.notes);
+  const previous = run.records;
   const files: PlannedFile[] = [];
-  for (let i = 0; i < discovery.files.length; i++) {
-    const f = discovery.files[i]!;
-    const o = outputs[i]!;
+  for (const { f, o } of mine) {
     const last = previous.get(o.image);
     const hintsSha256 = settings.hints === false ? null : await hintsFingerprint(f.path, settings.hints || undefined, f.rel);
     const file: PlannedFile = { source: f.path, rel: f.rel, outputs: o, hintsSha256, action: last?.status === 'failed' ? 'retry' : 'run', status: 'planned' };
@@ -186,17 +206,21 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   const todo = files.filter((f) => f.action === 'run' || f.action === 'retry');
   const skipped = files.filter((f) => f.action === 'skip').length;
   if (!options.dryRun) {
-    if (manifest.torn) await terminateManifest(manifestPath);
-    // Temporary files of runs that were killed: their processes are gone, so no one will finish them.
-    const folders = new Set([outDir, ...todo.map((f) => dirname(underFolder(outDir, f.outputs.image)))]);
-    let stale = 0;
-    for (const folder of folders) stale += (await removeTemporaryFiles(folder)).length;
-    if (stale) notes.push(`removed ${stale} temporary file${stale === 1 ? '' : 's'} left by an earlier run that was stopped`);
+    await mkdir(outDir, { recursive: true }).catch((error: unknown) => {
+      throw new UsageError(`the output folder ${options.out} could not be created (${(error as Error).message})`, 'choose a writable --out folder');
+    });
+    if (run.manifests.find((m) => m.name === ownName)?.contents.torn) await terminateManifest(manifestPath);
+    await appendManifest(manifestPath, {
+      time: new Date().toISOString(),
+      start: { part, host, pid: process.pid, files: todo.length + skipped, all: discovery.files.length, toRun: todo.length, settings: key },
+    });
+    notes.push(...(await removeLeftovers(outDir, files, todo)));
   }
   onEvent({ type: 'plan', files, toRun: todo.length, skipped, outDir, notes, failures });
 
   const summary: RestoreSummary = {
-    outDir, manifest: manifestPath, total: files.length + discovery.problems.length, done: 0, skipped, failed: failures, hintsNotUsed,
+    outDir, manifest: manifestPath, part, found: discovery.files.length, total: files.length + problems.length,
+    done: 0, skipped, failed: failures, hintsNotUsed,
     notRun: 0, interrupted: false, dryRun: Boolean(options.dryRun), seconds: 0,
     model: { dir: modelDir, name: model.name, weightsSha256: model.weightsSha256 }, settings, files, notes,
   };
@@ -206,9 +230,6 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     return summary;
   }
 
-  await mkdir(outDir, { recursive: true }).catch((error: unknown) => {
-    throw new UsageError(`the output folder ${options.out} could not be created (${(error as Error).message})`, 'choose a writable --out folder');
-  });
   const pool = new WorkerPool(Math.min(jobs, todo.length), { modelDir });
   const limit = pLimit(Math.min(jobs, todo.length));
   let stopping = false;
@@ -277,7 +298,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     await pool.close();
     if (hard) {
       const folders = new Set(todo.map((f) => dirname(underFolder(outDir, f.outputs.image))));
-      for (const folder of folders) await removeTemporaryFiles(folder, (pid) => pid === process.pid);
+      for (const folder of folders) await removeTemporaryFiles(folder, (o) => o.pid === process.pid && o.host === host);
     }
   }
   if (fatal) throw fatal;
@@ -286,6 +307,35 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   summary.interrupted = stopping && summary.notRun > 0;
   summary.seconds = (performance.now() - started) / 1000;
   return summary;
+}
+
+/**
+ * Removes temporary files that no run will finish, in the output folder and the folders this run
+ * writes to: those of this machine's processes that have ended, and those of another machine for
+ * this run's own outputs (an earlier attempt at this part, on another node; no other part ever
+ * writes these outputs). Another machine's temporary files for other outputs may belong to a part
+ * at work there, and are kept. Returns notes for people.
+ */
+async function removeLeftovers(outDir: string, files: PlannedFile[], todo: PlannedFile[]): Promise<string[]> {
+  const own = new Map<string, Set<string>>();
+  for (const file of files) {
+    for (const rel of [file.outputs.image, file.outputs.confidence, file.outputs.record]) {
+      const path = underFolder(outDir, rel);
+      const names = own.get(dirname(path)) ?? new Set<string>();
+      names.add(basename(path));
+      own.set(dirname(path), names);
+    }
+  }
+  const host = hostLabel();
+  const folders = new Set([outDir, ...todo.map((f) => dirname(underFolder(outDir, f.outputs.image)))]);
+  let stale = 0;
+  for (const folder of folders) {
+    const names = own.get(folder) ?? new Set<string>();
+    const leftOver = (owner: { pid: number; host?: string }, name: string): boolean =>
+      leftByEndedProcess(owner) || (owner.host !== undefined && owner.host !== host && isTemporaryOfAny(name, names));
+    stale += (await removeTemporaryFiles(folder, leftOver)).length;
+  }
+  return stale ? [`removed ${stale} temporary file${stale === 1 ? '' : 's'} left by an earlier run that was stopped`] : [];
 }
 
 /** Throws OutputOnInputError when one of a scan's outputs would replace an input. */

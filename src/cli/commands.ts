@@ -1,5 +1,6 @@
 import type { CommandModule } from 'yargs';
 import { command as hintsCommand } from './commands/hints.js';
+import { command as progressCommand } from './commands/progress.js';
 import { command as restoreCommand } from './commands/restore.js';
 import { command as scoreCommand } from './commands/score.js';
 import { command as sheetCommand } from './commands/sheet.js';
@@ -11,4 +12,4 @@ import { command as tuneCommand } from './commands/tune.js';
  * src/cli/commands/<verb>.ts and exports `command`.
  */
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-export const commands: CommandModule<any, any>[] = [restoreCommand, hintsCommand, tuneCommand, trainCommand, scoreCommand, sheetCommand];
+export const commands: CommandModule<any, any>[] = [restoreCommand, progressCommand, hintsCommand, tuneCommand, trainCommand, scoreCommand, sheetCommand];

@@ -2,7 +2,7 @@
  * What `kinhue restore` prints: the dry-run plan, per-file lines and the progress text, the final
  * summary for people, and the JSON summary for machines. Pure functions returning text.
  */
-import type { PlannedFile, RestoreSummary } from '../batch/index.js';
+import { partLabel, type PlannedFile, type RestoreSummary } from '../batch/index.js';
 import { formatDuration } from './progress.js';
 
 /**
@@ -40,15 +40,16 @@ export function progressText(done: number, failed: number, total: number, elapse
  */
 export function formatSummary(summary: RestoreSummary): string {
   const lines: string[] = [];
+  const part = summary.part ? ` (${partLabel(summary.part)}: ${summary.total} of the ${summary.found} files found)` : '';
   if (summary.dryRun) {
     const run = summary.files.filter((f) => f.action === 'run' || f.action === 'retry').length;
-    lines.push(`dry run: ${run} of ${summary.total} files would be restored into ${summary.outDir}; nothing was written`);
+    lines.push(`dry run${part}: ${run} of ${summary.total} files would be restored into ${summary.outDir}; nothing was written`);
   } else {
     const parts = [`${summary.done} restored`];
     if (summary.skipped) parts.push(`${summary.skipped} skipped (finished earlier)`);
     if (summary.failed.length) parts.push(`${summary.failed.length} failed`);
     if (summary.notRun) parts.push(`${summary.notRun} not run`);
-    lines.push(`kinhue restore: ${parts.join(', ')} of ${summary.total} files in ${formatDuration(summary.seconds)} -> ${summary.outDir}`);
+    lines.push(`kinhue restore${part}: ${parts.join(', ')} of ${summary.total} files in ${formatDuration(summary.seconds)} -> ${summary.outDir}`);
     if (summary.interrupted) lines.push('stopped early: run the same command again to finish the rest');
   }
   if (summary.failed.length) {

@@ -1,5 +1,6 @@
 /**
- * The review sheet for a restore output folder: reads its manifest (`kinhue-run.jsonl`) and each
+ * The review sheet for a restore output folder: reads its manifests (`kinhue-run.jsonl`, and one per
+ * part when the run was split over machines, read as one) and each
  * result's provenance record, measures each confidence map, and writes one HTML page. Pictures are
  * linked by relative paths (the page works from any copy of the folder, a USB stick included) or,
  * with `embed`, put inside the page as previews. Formats browsers cannot show (TIFF) always get an
@@ -8,7 +9,7 @@
 import { readFile, stat } from 'node:fs/promises';
 import { dirname, extname, isAbsolute, join, relative, resolve, sep } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import { MANIFEST_NAME, readManifest, underFolder, type ManifestRecord, type ProvenanceRecord } from '../batch/index.js';
+import { loadRunFolder, MANIFEST_NAME, underFolder, type ManifestRecord, type ProvenanceRecord } from '../batch/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
 import { decodeImage, encodeBuffer, writeFileAtomic, type Pixels } from '../image/index.js';
 import { downscaleToFloatRgb } from '../training/index.js';
@@ -186,15 +187,15 @@ function distinct(values: string[]): string {
  *   const data = await readRun('restored', 'restored', { embed: false });
  */
 export async function readRun(run: string, pageDir: string, options: { embed?: boolean; previewSize?: number } = {}): Promise<SheetData> {
-  const manifestPath = join(run, MANIFEST_NAME);
-  if (!(await exists(manifestPath))) {
-    const folder = await stat(run).then((s) => s.isDirectory(), () => false);
-    throw new KinhueError(ErrorCodes.UNREADABLE, folder ? `holds no ${MANIFEST_NAME}: not the output folder of a restore run` : 'folder not found', {
+  const folder = await loadRunFolder(run);
+  if (folder.manifests.length === 0) {
+    const isFolder = await stat(run).then((s) => s.isDirectory(), () => false);
+    throw new KinhueError(ErrorCodes.UNREADABLE, isFolder ? `holds no ${MANIFEST_NAME}: not the output folder of a restore run` : 'folder not found', {
       file: run,
       hint: 'pass the folder given to kinhue restore as --out',
     });
   }
-  const records = [...(await readManifest(manifestPath)).values()];
+  const records = [...folder.records.values()];
   const ctx: Context = { pageDir: resolve(pageDir), embed: options.embed ?? false, previewSize: options.previewSize ?? 1200 };
   const photos: SheetPhoto[] = [];
   for (const record of records) photos.push(await photoFor(run, record, ctx));

@@ -2,7 +2,9 @@
  * `kinhue restore <inputs...> --out <dir>`: the batch colourisation run over folders of scans.
  */
 import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
-import { FORMAT_CHOICES, restore, type FormatChoice, type RestoreEvent } from '../../batch/index.js';
+import {
+  FORMAT_CHOICES, MAX_PARTS, parsePart, partFromScheduler, partLabel, restore, SCHEDULERS, type FormatChoice, type Part, type RestoreEvent, type Scheduler,
+} from '../../batch/index.js';
 import { UsageError } from '../../errors.js';
 import { DECODINGS, type Decoding } from '../../model/index.js';
 import { ExitCode } from '../exit-codes.js';
@@ -29,6 +31,9 @@ export interface RestoreArgs {
   json: boolean;
   hints?: string | false;
   reference?: string;
+  part?: string;
+  'part-from'?: Scheduler;
+  'part-count'?: number;
   verbose?: boolean;
 }
 
@@ -58,7 +63,30 @@ export function check(argv: Partial<RestoreArgs>): true {
   if (format !== undefined && !FORMAT_CHOICES.includes(format)) fail(`--format must be one of ${FORMAT_CHOICES.join(', ')}, got ${format}`);
   if (argv.hints !== undefined && argv.hints !== false && (typeof argv.hints !== 'string' || argv.hints.trim() === '')) fail('--hints needs the folder holding <name>.hints.json files');
   if (argv.reference !== undefined && (typeof argv.reference !== 'string' || argv.reference.trim() === '')) fail('--reference needs a colour photograph or a folder of them');
+  if (argv.part !== undefined) {
+    if (typeof argv.part !== 'string') fail('--part must be K/N, part K of N (e.g. 2/3)');
+    if (argv['part-from'] !== undefined) fail('give --part or --part-from, not both');
+    parsePart(argv.part as string);
+  }
+  const from = argv['part-from'];
+  if (from !== undefined && !SCHEDULERS.includes(from)) fail(`--part-from must be one of ${SCHEDULERS.join(', ')}, got ${from}`);
+  const count = argv['part-count'];
+  if (count !== undefined) {
+    if (from === undefined) fail('--part-count goes with --part-from (with --part, write K/N)');
+    if (!(Number.isInteger(count) && count >= 1 && count <= MAX_PARTS)) fail(`--part-count must be a whole number from 1 to ${MAX_PARTS}, got ${count}`);
+  }
   return true;
+}
+
+/**
+ * The part a `restore` command line asks for: --part K/N, or the scheduler's task with --part-from.
+ * @example
+ *   partOfCommand({ 'part-from': 'slurm' }, process.env); // { index: 2, count: 3 } in Slurm array task 2 of 3
+ */
+export function partOfCommand(argv: Partial<RestoreArgs>, env: NodeJS.ProcessEnv): Part | undefined {
+  if (argv.part !== undefined) return parsePart(argv.part);
+  if (argv['part-from'] !== undefined) return partFromScheduler(argv['part-from'], env, argv['part-count']);
+  return undefined;
 }
 
 export const command: CommandModule<object, RestoreArgs> = {
@@ -84,14 +112,22 @@ export const command: CommandModule<object, RestoreArgs> = {
       .option('json', { type: 'boolean', default: false, describe: 'print a machine-readable summary on stdout' })
       .option('hints', { type: 'string', describe: 'folder of <name>.hints.json colour hints (they are also found beside each scan; --no-hints to use none); make one with kinhue hints <scan>' })
       .option('reference', { type: 'string', describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from' })
+      .option('part', { type: 'string', describe: 'restore part K of N (K/N) of the scans, a share picked by a hash of each output name; the N parts, on as many machines, share one --out folder' })
+      .option('part-from', {
+        type: 'string', choices: SCHEDULERS as unknown as string[],
+        describe: 'take the part from the scheduler: slurm (array task id K of the array\'s task count, the array numbered from 1) or kubernetes (Indexed Job completion index + 1, with --part-count)',
+      })
+      .option('part-count', { type: 'number', describe: 'the number of parts with --part-from: the Job\'s completions (kubernetes), or the array\'s size for a Slurm task resubmitted alone' })
       .example(EXAMPLE, 'restore the demo album with the shipped model')
       .example('kinhue restore "archive/**/*.tif" --out restored --format png --jobs 2', 'TIFF scans found by a glob, written as PNG on two cores')
       .example('kinhue restore demo-photos/scans --out demo-restored --reference demo-photos/originals/wrenfold-05-billy-goat.jpg', 'colours taken from a reference photograph')
+      .example('kinhue restore /archive/scans --out /archive/restored --part-from slurm', 'in a Slurm array job (sbatch --array=1-N): each task restores its part; see kinhue progress')
       .epilog('Run the same command again to finish an interrupted run: finished files are skipped, failed ones retried.\n' +
         'Exit codes: 0 all done, 1 some files failed (listed), 2 usage error, 3 internal error, 4 some hints not used (listed), ' +
         '130 stopped with Ctrl-C, SIGTERM or SIGHUP.') as unknown as Argv<RestoreArgs>)
       .check((argv) => check(argv as Partial<RestoreArgs>)),
   handler: async (argv: ArgumentsCamelCase<RestoreArgs>) => {
+    const part = partOfCommand(argv, process.env);
     const progress = new Progress({ plainInterval: 0 });
     const soft = new AbortController();
     const hard = new AbortController();
@@ -109,7 +145,10 @@ export const command: CommandModule<object, RestoreArgs> = {
         case 'plan':
           for (const note of event.notes) progress.log(`note: ${note}`);
           for (const f of event.failures) progress.log(`${f.code === 'KH_OUTPUT_CONFLICT' ? 'conflict' : 'failed'}: ${f.rel}: ${f.code} ${f.message}`);
-          if (!argv['dry-run']) progress.log(`restoring ${event.toRun} of ${event.files.length} files into ${event.outDir}${event.skipped ? ` (${event.skipped} finished earlier)` : ''}`);
+          if (!argv['dry-run']) {
+            const of = part ? `${partLabel(part)}: ` : '';
+            progress.log(`${of}restoring ${event.toRun} of ${event.files.length} files into ${event.outDir}${event.skipped ? ` (${event.skipped} finished earlier)` : ''}`);
+          }
           runStart = performance.now();
           break;
         case 'backend':
@@ -150,6 +189,7 @@ export const command: CommandModule<object, RestoreArgs> = {
           dryRun: argv['dry-run'],
           hints: argv.hints,
           reference: argv.reference,
+          part,
           signal: soft.signal,
           hardSignal: hard.signal,
         },
