@@ -8,11 +8,12 @@ import { mkdir, mkdtemp, readdir, readFile, rm, writeFile } from 'node:fs/promis
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import sharp from 'sharp';
-import { afterAll, beforeAll, describe, expect, it } from 'vitest';
+import { afterAll, beforeAll, describe, expect, it, vi } from 'vitest';
 import {
   loadRunFolder, parsePart, partFromScheduler, partKey, partOf, planOutputs, restore, runProgress, type RestoreSummary, type RunProgress,
 } from '../src/batch/index.js';
 import { check } from '../src/cli/commands/restore.js';
+import { main } from '../src/cli/main.js';
 import { readRun } from '../src/report/index.js';
 import { UsageError } from '../src/errors.js';
 import { hostLabel } from '../src/files/index.js';
@@ -155,6 +156,38 @@ describe('parts in one output folder', () => {
 
     // Another split into the same folder would share outputs with these parts.
     await expect(run([scans], out, { part: { index: 1, count: 4 } })).rejects.toThrow(/split into 3 parts/);
+  });
+
+  it('runs the README\'s Kubernetes Job command for each completion index into one folder', async () => {
+    const readme = await readFile(join(__dirname, '..', 'README.md'), 'utf8');
+    const job = /```yaml\n([\s\S]*?)```/.exec(readme)![1]!;
+    const completions = Number(/completions: (\d+)/.exec(job)![1]);
+    const command = JSON.parse(`[${/command: \[([^\]]*)\]/.exec(job)![1]}]`) as string[];
+    expect(command.slice(0, 3)).toEqual(['node', 'bin/kinhue.js', 'restore']);
+    const scans = await album('pod-album', 10);
+    const out = join(root, 'pod-out');
+    // The archive's paths become this test's; one core and the small model instead of 16 and the shipped one.
+    const args = command.slice(2).map((a, i, all) => (a === '/archive/scans' ? scans : a === '/archive/restored' ? out : all[i - 1] === '--jobs' ? '1' : a));
+    const written: string[] = [];
+    const quiet = [vi.spyOn(process.stderr, 'write').mockImplementation(() => true), vi.spyOn(console, 'log').mockImplementation((t: string) => void written.push(t))];
+    try {
+      for (let index = 0; index < completions; index++) {
+        process.env.JOB_COMPLETION_INDEX = String(index);
+        process.exitCode = undefined;
+        await main([...args, '--model', modelDir, '--work-size', '64']);
+        expect(process.exitCode, written.join('\n')).toBe(0);
+      }
+    } finally {
+      delete process.env.JOB_COMPLETION_INDEX;
+      process.exitCode = undefined;
+      for (const spy of quiet) spy.mockRestore();
+    }
+    const folder = await loadRunFolder(out);
+    expect(folder.manifests.map((m) => m.part!.index).sort((x, y) => x - y)).toEqual(Array.from({ length: completions }, (_, k) => k + 1));
+    const done = folder.manifests.flatMap((m) => m.contents.history.filter((r) => r.status === 'done').map((r) => r.output));
+    expect(done).toHaveLength(10);
+    expect(new Set(done).size).toBe(10);
+    expect(runProgress(folder).total).toMatchObject({ files: 10, done: 10, pending: 0 });
   });
 
   it('keeps another machine\'s temporary files and another part\'s unfinished manifest line; clears its own leftovers', async () => {
