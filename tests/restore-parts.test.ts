@@ -7,7 +7,6 @@ import { createHash } from 'node:crypto';
 import { mkdir, mkdtemp, readdir, readFile, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it, vi } from 'vitest';
 import {
   loadRunFolder, parsePart, partFromScheduler, partKey, partOf, planOutputs, restore, runProgress, type RestoreSummary, type RunProgress,
@@ -17,23 +16,18 @@ import { main } from '../src/cli/main.js';
 import { readRun } from '../src/report/index.js';
 import { UsageError } from '../src/errors.js';
 import { hostLabel } from '../src/files/index.js';
+import { greyPng } from './helpers/grey-png.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
 
 const BIN = join(__dirname, '..', 'bin', 'kinhue.js');
 let root: string;
 let modelDir: string;
 
-async function greyPng(path: string, shade = 0, w = 64, h = 48): Promise<void> {
-  const v = new Uint8Array(w * h);
-  for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) v[y * w + x] = Math.hypot(x - w / 3, y - h / 2) < h / 4 ? 50 + shade : 90 + ((x + y) % 120);
-  await sharp(v, { raw: { width: w, height: h, channels: 1 } }).png().toFile(path);
-}
-
 /** A folder of `n` small scans, a few in a sub-folder. */
 async function album(name: string, n: number): Promise<string> {
   const dir = join(root, name);
   await mkdir(join(dir, 'box-2'), { recursive: true });
-  for (let i = 0; i < n; i++) await greyPng(join(dir, i % 3 === 2 ? 'box-2' : '', `scan-${String(i).padStart(2, '0')}.png`), i);
+  for (let i = 0; i < n; i++) await greyPng(join(dir, i % 3 === 2 ? 'box-2' : '', `scan-${String(i).padStart(2, '0')}.png`), 64, 48, i);
   return dir;
 }
 

@@ -7,23 +7,16 @@ import { createHash } from 'node:crypto';
 import { chmod, chown, link, mkdir, mkdtemp, readdir, readFile, rm, stat, symlink, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
-import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { loadManifest, readManifest, restore, type RestoreSummary } from '../src/batch/index.js';
 import { formatSummary } from '../src/cli/restore-report.js';
 import { NAME_MAX_BYTES } from '../src/files/index.js';
+import { greyPng } from './helpers/grey-png.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
 
 const BIN = join(__dirname, '..', 'bin', 'kinhue.js');
 let root: string;
 let modelDir: string;
-
-/** A grey gradient with a disc: something with edges. */
-async function greyPng(path: string, w = 64, h = 48, shade = 0): Promise<void> {
-  const v = new Uint8Array(w * h);
-  for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) v[y * w + x] = Math.hypot(x - w / 3, y - h / 2) < h / 4 ? 50 + shade : 90 + ((x + y) % 120);
-  await sharp(v, { raw: { width: w, height: h, channels: 1 } }).png().toFile(path);
-}
 
 async function sha(path: string): Promise<string> {
   return createHash('sha256').update(await readFile(path)).digest('hex');
