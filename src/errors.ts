@@ -18,7 +18,7 @@ export const ErrorCodes = {
   CORRUPT_IMAGE: 'KH_CORRUPT_IMAGE',
   /** The image is larger than the pixel limit (decompression-bomb guard). */
   TOO_LARGE: 'KH_TOO_LARGE',
-  /** A model folder is missing, not a kinhue model, or its weights fail their hash. */
+  /** A model folder is missing, not a kinhue model, or its weights or layout (model.json) fail their hash. */
   BAD_MODEL: 'KH_BAD_MODEL',
   /** Training data is unusable: empty, unreadable, too few colour photos. */
   BAD_DATA: 'KH_BAD_DATA',

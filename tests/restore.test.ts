@@ -170,6 +170,7 @@ describe('restore: invariants, failures and resume', () => {
     expect(record.tone.name).toBe('sepia');
     expect(record.model.name).toBe('test-untrained');
     expect(record.model.weightsSha256).toMatch(/^[0-9a-f]{64}$/);
+    expect(record.model.topologySha256).toBe(createHash('sha256').update(await readFile(join(modelDir, 'model.json'))).digest('hex'));
     expect(record.settings).toMatchObject({ workSize: 64, format: 'same' });
     expect(record.backend).toBeTruthy();
     expect(record.meanConfidence).toBeGreaterThanOrEqual(0);

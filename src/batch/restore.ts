@@ -90,7 +90,7 @@ export interface RestoreSummary {
   dryRun: boolean;
   seconds: number;
   backend?: string;
-  model: { dir: string; name: string; weightsSha256: string };
+  model: { dir: string; name: string; weightsSha256: string; topologySha256: string };
   settings: RestoreSettings;
   /** Every discovered file with what was planned for it. */
   files: PlannedFile[];
@@ -154,7 +154,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   const part = options.part ? checkedPart(options.part.index, options.part.count, 'part') : null;
   const discovery = await discoverInputs(options.inputs, outDir);
   const inPart = (rel: string): boolean => !part || partOf(rel, part.count) === part.index;
-  const notes = [...discovery.notes];
+  const notes = [...model.warnings, ...discovery.notes];
   const problems = discovery.problems.filter((p) => inPart(p.rel));
   const failures: FileFailure[] = problems.map((p) => ({ source: p.path, rel: p.rel, code: p.code, message: p.message, hint: p.hint }));
   const guard = await InputGuard.of(discovery.files.map((f) => f.path), {
@@ -222,7 +222,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     outDir, manifest: manifestPath, part, found: discovery.files.length, total: files.length + problems.length,
     done: 0, skipped, failed: failures, hintsNotUsed,
     notRun: 0, interrupted: false, dryRun: Boolean(options.dryRun), seconds: 0,
-    model: { dir: modelDir, name: model.name, weightsSha256: model.weightsSha256 }, settings, files, notes,
+    model: { dir: modelDir, name: model.name, weightsSha256: model.weightsSha256, topologySha256: model.topologySha256 }, settings, files, notes,
   };
   if (options.dryRun || todo.length === 0) {
     summary.notRun = options.dryRun ? todo.length : 0;

@@ -80,6 +80,23 @@ function sha256(data: Uint8Array): string {
   return createHash('sha256').update(data).digest('hex');
 }
 
+/** What to do when a model folder's backbone files are missing. */
+export const BACKBONE_MISSING_HINT = `a model folder with a backbone holds ${BACKBONE_TOPOLOGY_FILE} and ${BACKBONE_WEIGHTS_FILE}; copy them from models/kinhue-base.`;
+
+/**
+ * Throws ModelError when a backbone's files do not match the SHA-256 a model folder recorded for them.
+ * @example
+ * checkBackboneFiles(topology, weights, meta.backbone, 'models/mine');
+ */
+export function checkBackboneFiles(topology: Uint8Array, weights: Uint8Array, expected: BackboneRecord, dir: string): void {
+  if (expected.topologySha256 !== sha256(topology) || expected.weightsSha256 !== sha256(weights)) {
+    throw new ModelError(`${BACKBONE_TOPOLOGY_FILE} or ${BACKBONE_WEIGHTS_FILE} does not match the SHA-256 recorded in the model: the backbone is damaged or was replaced`, {
+      file: dir,
+      hint: 'restore the folder from where it came (for the shipped model: reinstall kinhue), or train or tune it again',
+    });
+  }
+}
+
 /**
  * Loads the backbone kept in a model folder.
  * @example
@@ -95,17 +112,21 @@ export async function loadBackbone(dir: string, expected?: BackboneRecord): Prom
   } catch (error) {
     throw new ModelError(`the model's backbone could not be read: ${(error as Error).message}`, {
       file: dir,
-      hint: `a model folder with a backbone holds ${BACKBONE_TOPOLOGY_FILE} and ${BACKBONE_WEIGHTS_FILE}; copy them from models/kinhue-base.`,
+      hint: BACKBONE_MISSING_HINT,
     });
   }
-  const record: BackboneRecord = { name: expected?.name ?? BACKBONE_NAME, topologySha256: sha256(topologyText), weightsSha256: sha256(weights) };
-  if (expected && (expected.topologySha256 !== record.topologySha256 || expected.weightsSha256 !== record.weightsSha256)) {
-    throw new ModelError(`${BACKBONE_TOPOLOGY_FILE} or ${BACKBONE_WEIGHTS_FILE} does not match the SHA-256 recorded in the model: the backbone is damaged or was replaced`, {
-      file: dir,
-      hint: 'restore the folder from where it came (for the shipped model: reinstall kinhue), or train or tune it again',
-    });
-  }
-  const json = JSON.parse(topologyText.toString('utf8')) as { modelTopology: object; weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[] };
+  if (expected) checkBackboneFiles(topologyText, weights, expected, dir);
+  return backboneFrom(topologyText, weights, expected?.name);
+}
+
+/**
+ * The backbone from its files' bytes (checked by the caller where a model folder recorded their hashes).
+ * @example
+ * const backbone = await backboneFrom(topologyBytes, weightBytes);
+ */
+export async function backboneFrom(topologyText: Uint8Array, weights: Uint8Array, name = BACKBONE_NAME): Promise<Backbone> {
+  const record: BackboneRecord = { name, topologySha256: sha256(topologyText), weightsSha256: sha256(weights) };
+  const json = JSON.parse(Buffer.from(topologyText).toString('utf8')) as { modelTopology: object; weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[] };
   const weightData = weights.buffer.slice(weights.byteOffset, weights.byteOffset + weights.byteLength) as ArrayBuffer;
   const graph = await tf.loadGraphModel(
     tf.io.fromMemory({ modelTopology: json.modelTopology, weightSpecs: json.weightsManifest.flatMap((g) => g.weights), weightData }),

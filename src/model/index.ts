@@ -14,3 +14,4 @@ export * from './predict.js';
 export * from './calibration.js';
 export * from './backbone.js';
 export * from './region-pooling.js';
+export { readModelFiles, tidyModelFolder, type ModelFiles } from './folder.js';

@@ -1,6 +1,7 @@
 /**
  * kinhue's own description of a model folder, `kinhue-model.json`: the bins and decoding
- * settings the network was trained for, what it was trained on, and the SHA-256 of its weights.
+ * settings the network was trained for, what it was trained on, and the SHA-256 of its weights
+ * and of its layout file (model.json).
  */
 import { ModelError } from '../errors.js';
 import type { BackboneRecord } from './backbone.js';
@@ -49,6 +50,8 @@ export interface ModelMetadata {
   backbone?: BackboneRecord;
   /** Region pooling before the colour is chosen (region-pooling.ts); absent for none. */
   pooling?: PoolingSettings;
+  /** SHA-256 (hex) of model.json; absent in folders written before kinhue recorded it (their layout is not checked). */
+  topologySha256?: string;
 }
 
 /** What a caller of saveModel supplies; the rest is filled in. */
@@ -98,6 +101,9 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
   if (!DECODINGS.includes(decoding as Decoding)) fail(dir, `${METADATA_FILE} names an unknown decoding ${JSON.stringify(m.decoding)}`);
   if (typeof m.workingSize !== 'number' || !(m.workingSize >= 16)) fail(dir, `${METADATA_FILE} has no valid working size`);
   if (typeof m.weightsSha256 !== 'string' || !/^[0-9a-f]{64}$/.test(m.weightsSha256)) fail(dir, `${METADATA_FILE} has no weights SHA-256`);
+  if (m.topologySha256 !== undefined && (typeof m.topologySha256 !== 'string' || !/^[0-9a-f]{64}$/.test(m.topologySha256))) {
+    fail(dir, `${METADATA_FILE} has a ${TOPOLOGY_FILE} SHA-256 that is not one`);
+  }
   if (!isNumberArray(m.classWeights) || (m.classWeights.length !== 0 && m.classWeights.length !== bins.count)) {
     fail(dir, `${METADATA_FILE} has class weights that do not match its bins`);
   }
@@ -121,6 +127,7 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
     weightsSha256: m.weightsSha256,
     ...(m.backbone === undefined ? {} : { backbone: parseBackbone(m.backbone, dir) }),
     ...(m.pooling === undefined ? {} : { pooling: parsePooling(m.pooling, dir) }),
+    ...(typeof m.topologySha256 === 'string' ? { topologySha256: m.topologySha256 } : {}),
   };
 }
 

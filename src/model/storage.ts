@@ -1,17 +1,15 @@
 /**
  * A model is a folder: TensorFlow.js layers format (model.json + weights.bin) and kinhue's
  * metadata (kinhue-model.json). Read and written with node:fs through a small IO handler; no
- * network, no tfjs-node. Each file is written under a temporary name and renamed into place, the
- * metadata last, and other files in the folder (a model card) are left alone.
+ * network, no tfjs-node. The files (with a borrowed backbone's, when the network reads one) are written
+ * as one unit (folder.ts), and other files in the folder (a model card, a training log) are left alone.
  */
-import { createHash } from 'node:crypto';
-import { mkdir, readFile, rename, rm, stat, writeFile } from 'node:fs/promises';
-import { basename, join, resolve } from 'node:path';
+import { basename, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import * as tf from '@tensorflow/tfjs';
 import { ModelError } from '../errors.js';
 import { VERSION } from '../version.js';
-import { BACKBONE_TOPOLOGY_FILE, BACKBONE_WEIGHTS_FILE, type Backbone, loadBackbone } from './backbone.js';
+import { type Backbone, backboneFrom } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
 import { DEFAULT_DECODING } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
@@ -22,10 +20,10 @@ import {
   MODEL_FORMAT_VERSION,
   type ModelMetadata,
   type ModelMetadataInput,
-  parseMetadata,
   TOPOLOGY_FILE,
   WEIGHTS_FILE,
 } from './metadata.js';
+import { readModelFiles, sha256, writeModelFiles } from './folder.js';
 import { NETWORK_MULTIPLE, OUTPUT_STRIDE } from './network.js';
 
 /** The shipped model folder, models/kinhue-base in the package. */
@@ -41,21 +39,10 @@ export interface KinhueModel {
   backbone?: Backbone;
   /** The folder it was loaded from (absolute). */
   dir: string;
-}
-
-function sha256(data: Uint8Array): string {
-  return createHash('sha256').update(data).digest('hex');
-}
-
-async function writeAtomic(file: string, data: string | Uint8Array): Promise<void> {
-  const temp = `${file}.${process.pid}.${Date.now().toString(36)}.tmp`;
-  try {
-    await writeFile(temp, data);
-    await rename(temp, file);
-  } catch (error) {
-    await rm(temp, { force: true });
-    throw error;
-  }
+  /** SHA-256 of its model.json as loaded. */
+  topologySha256: string;
+  /** Things to tell the user, e.g. that an older folder's layout could not be checked. */
+  warnings: string[];
 }
 
 /** The layers-format artifacts of a network, taken through an in-memory save handler. */
@@ -99,6 +86,7 @@ export async function saveModel(
     modelTopology: artifacts.modelTopology,
     weightsManifest: [{ paths: [WEIGHTS_FILE], weights: artifacts.weightSpecs ?? [] }],
   };
+  const topologyText = `${JSON.stringify(topology)}\n`;
   const full: ModelMetadata = {
     format: MODEL_FORMAT,
     formatVersion: MODEL_FORMAT_VERSION,
@@ -115,70 +103,28 @@ export async function saveModel(
     weightsSha256: sha256(weights),
     ...(backbone ? { backbone: backbone.record } : {}),
     ...(meta.pooling ? { pooling: meta.pooling } : {}),
+    topologySha256: sha256(topologyText),
   };
-  await mkdir(dir, { recursive: true });
-  if (backbone) {
-    await writeAtomic(join(dir, BACKBONE_WEIGHTS_FILE), backbone.weights);
-    await writeAtomic(join(dir, BACKBONE_TOPOLOGY_FILE), backbone.topology);
-  }
-  await writeAtomic(join(dir, WEIGHTS_FILE), weights);
-  await writeAtomic(join(dir, TOPOLOGY_FILE), `${JSON.stringify(topology)}\n`);
-  await writeAtomic(join(dir, METADATA_FILE), `${JSON.stringify(full, null, 2)}\n`);
+  await writeModelFiles(dir, {
+    weights,
+    topology: topologyText,
+    metadata: `${JSON.stringify(full, null, 2)}\n`,
+    ...(backbone ? { backbone: { topology: backbone.topology, weights: backbone.weights } } : {}),
+  });
   return full;
 }
 
-async function readOrFail(file: string, dir: string, what: string): Promise<Buffer> {
-  try {
-    return await readFile(file);
-  } catch (error) {
-    const missing = (error as NodeJS.ErrnoException).code === 'ENOENT';
-    throw new ModelError(missing ? `not a kinhue model: ${what} is missing` : `${what} cannot be read`, {
-      file: dir,
-      hint: missing
-        ? 'pass a folder written by kinhue train or tune, or leave the model option out to use the shipped model'
-        : 'check the folder\'s permissions',
-      cause: error,
-    });
-  }
-}
-
 /**
- * Loads a model folder, checking that it is a kinhue model and that its weights match their
- * SHA-256. Throws ModelError naming the folder otherwise.
+ * Loads a model folder, checking that it is a kinhue model and that its weights and layout (model.json)
+ * match their SHA-256. Throws ModelError naming the folder (or the file at fault) otherwise.
  * @example
  * const model = await loadModel('models/kinhue-base');
  * const out = predict(model, L, 512, 384);
  */
 export async function loadModel(dir: string): Promise<KinhueModel> {
   const abs = resolve(dir);
-  try {
-    if (!(await stat(abs)).isDirectory()) {
-      throw new ModelError('a model is a folder, this is a file', { file: dir, hint: 'pass the folder that holds kinhue-model.json' });
-    }
-  } catch (error) {
-    if (error instanceof ModelError) throw error;
-    throw new ModelError('model folder not found', {
-      file: dir,
-      hint: 'check the path, or leave the model option out to use the shipped model',
-      cause: error,
-    });
-  }
-  const metaText = await readOrFail(join(abs, METADATA_FILE), dir, METADATA_FILE);
-  let metaJson: unknown;
-  try {
-    metaJson = JSON.parse(metaText.toString('utf8'));
-  } catch (error) {
-    throw new ModelError(`${METADATA_FILE} is not valid JSON`, { file: dir, hint: 'restore the folder from where it came, or train or tune it again', cause: error });
-  }
-  const meta = parseMetadata(metaJson, dir);
-  const weights = await readOrFail(join(abs, WEIGHTS_FILE), dir, WEIGHTS_FILE);
-  if (sha256(weights) !== meta.weightsSha256) {
-    throw new ModelError(`${WEIGHTS_FILE} does not match the SHA-256 in ${METADATA_FILE}: the weights are damaged or were replaced`, {
-      file: dir,
-      hint: 'restore the folder from where it came (for the shipped model: reinstall kinhue), or train or tune it again',
-    });
-  }
-  const topologyText = await readOrFail(join(abs, TOPOLOGY_FILE), dir, TOPOLOGY_FILE);
+  const files = await readModelFiles(dir);
+  const { meta, weights, topology: topologyText, topologySha256, warnings } = files;
   let network: tf.LayersModel;
   try {
     const topology = JSON.parse(topologyText.toString('utf8')) as {
@@ -206,7 +152,8 @@ export async function loadModel(dir: string): Promise<KinhueModel> {
       hint: 'restore the folder from where it came, or train or tune it again',
     });
   }
-  const backbone = meta.backbone ? await loadBackbone(abs, meta.backbone) : undefined;
+  // The backbone comes from the bytes checked with the rest, which may be a staged set (see folder.ts).
+  const backbone = meta.backbone && files.backbone ? await backboneFrom(files.backbone.topology, files.backbone.weights, meta.backbone.name) : undefined;
   if ((network.inputs.length > 1) !== Boolean(backbone)) {
     network.dispose();
     throw new ModelError(`${TOPOLOGY_FILE} and ${METADATA_FILE} disagree on whether the network reads a backbone`, {
@@ -214,5 +161,5 @@ export async function loadModel(dir: string): Promise<KinhueModel> {
       hint: 'restore the folder from where it came, or train or tune it again',
     });
   }
-  return { network, meta, bins, classWeights: Float32Array.from(meta.classWeights), dir: abs, ...(backbone ? { backbone } : {}) };
+  return { network, meta, bins, classWeights: Float32Array.from(meta.classWeights), dir: abs, topologySha256, warnings, ...(backbone ? { backbone } : {}) };
 }
