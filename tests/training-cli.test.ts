@@ -1,4 +1,5 @@
-import { mkdtemp, rm } from 'node:fs/promises';
+import { spawn, spawnSync } from 'node:child_process';
+import { mkdtemp, readdir, rm } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { describe, expect, it, vi } from 'vitest';
@@ -9,6 +10,33 @@ import { formatDuration, Progress } from '../src/cli/progress.js';
 import { UsageError } from '../src/errors.js';
 import { readTrainingLog } from '../src/training/index.js';
 import { writeSkyGrassPhotos } from './helpers/sky-grass-photos.js';
+
+const BIN = join(__dirname, '..', 'bin', 'kinhue.js');
+
+/** Runs the real CLI and sends `signal` once training has begun (its baseline line is printed). */
+function stopped(args: string[], signal: NodeJS.Signals): Promise<{ code: number | null; stdout: string; stderr: string }> {
+  return new Promise((done, fail) => {
+    const child = spawn(process.execPath, [BIN, ...args], { stdio: ['ignore', 'pipe', 'pipe'] });
+    let stdout = '';
+    let stderr = '';
+    let sent = false;
+    child.stdout.on('data', (chunk: Buffer) => (stdout += chunk.toString()));
+    child.stderr.on('data', (chunk: Buffer) => {
+      stderr += chunk.toString();
+      if (!sent && /held-out CIEDE2000: grey/.test(stderr)) {
+        sent = true;
+        child.kill(signal);
+      }
+    });
+    // A run that ignores the signal is ended, so the test reports what it printed.
+    const stuck = setTimeout(() => child.kill('SIGKILL'), 90_000);
+    child.on('error', fail);
+    child.on('exit', (code) => {
+      clearTimeout(stuck);
+      done({ code, stdout, stderr });
+    });
+  });
+}
 
 const ok = { photos: ['photos/'], out: 'models/mine', hours: 1, batch: 16, crop: 128, seed: 1, holdout: 0.1, resume: false, 'eval-every': 100, 'checkpoint-minutes': 5 };
 
@@ -111,6 +139,46 @@ describe('kinhue train on the command line', () => {
       error.mockRestore();
       stderr.mockRestore();
       process.exitCode = undefined;
+      await rm(dir, { recursive: true, force: true });
+    }
+  });
+});
+
+describe('stopping train and tune', () => {
+  // A step budget far beyond what the test waits for: only the signal ends these runs.
+  const small = ['--steps', '100000', '--batch', '2', '--crop', '32', '--eval-every', '100000'];
+
+  it.each([
+    ['tune', 'SIGINT'],
+    ['train', 'SIGTERM'],
+    ['train', 'SIGHUP'],
+  ] as const)('%s stopped by %s writes a checkpoint and a model, and exits 130', async (verb, signal) => {
+    const dir = await mkdtemp(join(tmpdir(), 'kinhue-training-stop-'));
+    try {
+      await writeSkyGrassPhotos(join(dir, 'photos'));
+      const out = join(dir, 'model');
+      const run = await stopped([verb, join(dir, 'photos'), '--out', out, ...small], signal);
+      expect(run.stderr).toMatch(/stopping after this step/);
+      expect(run.stdout).toMatch(/interrupted; continue with --resume/);
+      expect(run.code).toBe(130);
+      expect((await readdir(out)).sort()).toEqual(
+        expect.arrayContaining(['kinhue-model.json', 'model.json', 'training-checkpoint.bin', 'weights.bin']),
+      );
+    } finally {
+      await rm(dir, { recursive: true, force: true });
+    }
+  });
+
+  it('print the code of unusable data, as other errors do', async () => {
+    const dir = await mkdtemp(join(tmpdir(), 'kinhue-training-empty-'));
+    try {
+      for (const verb of ['train', 'tune']) {
+        const run = spawnSync(process.execPath, [BIN, verb, dir, '--out', join(dir, 'model'), '--steps', '2'], { encoding: 'utf8', timeout: 120_000 });
+        expect(run.status).toBe(1);
+        expect(run.stderr).toMatch(new RegExp(`kinhue: KH_BAD_DATA ${dir.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}: `));
+        expect(run.stderr).toMatch(/next step: /);
+      }
+    } finally {
       await rm(dir, { recursive: true, force: true });
     }
   });

@@ -51,7 +51,7 @@ function report(error: unknown, showHelp: () => void): number {
     showHelp();
     console.error(`\nkinhue: ${isKinhueError(error) ? error.describe() : String((error as Error).message ?? error)}`);
   } else if (isKinhueError(error)) {
-    console.error(`kinhue: ${error.describe()}`);
+    console.error(`kinhue: ${error.code} ${error.describe()}`);
   } else {
     console.error('kinhue: internal error, please report it with the command you ran:');
     console.error(error instanceof Error ? (error.stack ?? error.message) : String(error));

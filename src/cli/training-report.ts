@@ -5,6 +5,7 @@
 import type { Argv } from 'yargs';
 import { UsageError } from '../errors.js';
 import type { Evaluation, FitEvent, FitOptions, FitResult } from '../training/index.js';
+import { ExitCode } from './exit-codes.js';
 import { formatDuration, Progress } from './progress.js';
 import { onStopSignals } from './stop-signals.js';
 
@@ -110,8 +111,9 @@ export function fitOptionsFrom(argv: FitArgs): FitOptions {
 }
 
 /**
- * Runs `run` with a progress display and Ctrl-C handling (the first Ctrl-C stops after the current
- * step and writes a checkpoint), then prints the held-out table.
+ * Runs `run` with a progress display and stop handling (the first Ctrl-C, SIGTERM or SIGHUP stops after the
+ * current step and writes a checkpoint; a second one ends the process at once), then prints the held-out
+ * table and sets the exit code: 130 when stopped, as for restore.
  */
 export async function runWithProgress(
   verb: string,
@@ -119,12 +121,12 @@ export async function runWithProgress(
 ): Promise<FitResult> {
   const progress = new Progress();
   const controller = new AbortController();
-  const onStop = (): void => {
-    progress.log(`kinhue ${verb}: stopping after this step and writing a checkpoint (Ctrl-C again to quit at once)`);
+  const release = onStopSignals((signal) => {
+    const how = signal === 'SIGINT' ? 'Ctrl-C' : signal;
+    progress.log(`kinhue ${verb}: ${how}: stopping after this step and writing a checkpoint (Ctrl-C again to quit at once)`);
     controller.abort();
     release();
-  };
-  const release = onStopSignals(onStop);
+  });
   const onEvent = (event: FitEvent): void => {
     switch (event.type) {
       case 'reading':
@@ -172,6 +174,9 @@ export async function runWithProgress(
             `${event.best ? ' (best so far)' : ''}`,
         );
         break;
+      case 'note':
+        progress.log(`note: ${event.message}`);
+        break;
       case 'checkpoint':
       case 'model':
         break;
@@ -181,6 +186,7 @@ export async function runWithProgress(
     const result = await run(controller.signal, onEvent);
     progress.done();
     console.log(summaryTable(result));
+    process.exitCode = result.stoppedBy === 'interrupted' ? ExitCode.INTERRUPTED : ExitCode.OK;
     return result;
   } finally {
     release();

@@ -84,7 +84,9 @@ export type FitEvent =
   | { type: 'step'; step: number; loss: number; seconds: number; secondsLeft: number; fraction: number; heldOut?: number }
   | { type: 'evaluation'; step: number; loss: number; evaluation: Evaluation; best: boolean }
   | { type: 'checkpoint'; step: number; file: string }
-  | { type: 'model'; step: number; dir: string };
+  | { type: 'model'; step: number; dir: string }
+  /** Something to tell the user, e.g. that the starting model's layout could not be checked. */
+  | { type: 'note'; message: string };
 
 /** The outcome of a run, also written to `training-summary.json` and the model's metadata. */
 export interface FitResult {

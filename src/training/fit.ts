@@ -32,6 +32,7 @@ import {
   predict,
   rebalanceWeights,
   saveModel,
+  tidyModelFolder,
   type ModelMetadataInput,
   type TrainerState,
 } from '../model/index.js';
@@ -97,6 +98,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   // The checkpoint's settings win on resume: the same run must continue.
   // (Checkpoints written before the rebalancing option existed used the paper's 0.5.)
   const start = mode === 'tune' ? await loadModel(options.from!) : undefined;
+  for (const message of start?.warnings ?? []) onEvent({ type: 'note', message });
   const settings: FitSettings = saved
     ? { ...saved.options, rebalance: saved.options.rebalance ?? REBALANCE_LAMBDA, backbone: saved.options.backbone ?? false }
     : resolveSettings(options, mode, start ? Boolean(start.backbone) : options.backbone !== false);
@@ -127,6 +129,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   const guard = await InputGuard.of([...set.train, ...set.holdout].map((p) => p.file).concat(set.grey, set.unreadable.map((u) => u.file)), { hint: outHint });
   if (mode === 'tune' && options.from) for (const name of await readdir(options.from).catch(() => [] as string[])) await guard.add(join(options.from, name));
   await checkFolderFiles(out, guard);
+  // What a killed earlier run left half-written in the folder goes before anything new is written.
+  await tidyModelFolder(out);
 
   const backend = await initBackend();
   const { workers, previous: previousWorkers } = chooseWorkers(options.workers, settings, saved?.step, backend.name);
@@ -295,6 +299,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         stoppedBy = 'time';
         break;
       }
+      // A step on this thread runs synchronously: let signal handlers (Ctrl-C) run between steps, or a stop would wait for the next evaluation.
+      await new Promise((next) => setImmediate(next));
       if (options.signal?.aborted) {
         stoppedBy = 'interrupted';
         break;

@@ -4,7 +4,6 @@
  */
 import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
 import { fit } from '../../training/index.js';
-import { ExitCode } from '../exit-codes.js';
 import { checkFitArgs, fitOptions, fitOptionsFrom, runWithProgress, type FitArgs } from '../training-report.js';
 
 const EXAMPLE = 'kinhue train photos/ --out models/mine --hours 2 --seed 1';
@@ -38,6 +37,5 @@ export const command: CommandModule<object, TrainArgs> = {
   handler: async (argv: ArgumentsCamelCase<TrainArgs>) => {
     const backbone = argv.backbone ? {} : { backbone: false as const };
     await runWithProgress('train', (signal, onEvent) => fit({ ...fitOptionsFrom(argv), ...backbone, mode: 'train', signal }, onEvent));
-    process.exitCode = ExitCode.OK;
   },
 };

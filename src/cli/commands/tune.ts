@@ -7,7 +7,6 @@ import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
 import { UsageError } from '../../errors.js';
 import { DEFAULT_MODEL_DIR } from '../../model/index.js';
 import { fit } from '../../training/index.js';
-import { ExitCode } from '../exit-codes.js';
 import { checkFitArgs, fitOptions, fitOptionsFrom, runWithProgress, type FitArgs } from '../training-report.js';
 
 const EXAMPLE = 'kinhue tune family-colour/ --out models/family --hours 1';
@@ -46,6 +45,5 @@ export const command: CommandModule<object, TuneArgs> = {
         onEvent,
       ),
     );
-    process.exitCode = ExitCode.OK;
   },
 };
