@@ -47,6 +47,14 @@ for (const [w, h] of [[512, 384], [1024, 768]]) {
   const { ms, cpu, last } = time(() => propagateHints({ width: w, height: h, L, a, b, confidence }, drawn.constraints));
   console.log(`propagation ${w} x ${h}: ${ms.toFixed(0)} ms wall, ${cpu.toFixed(0)} ms CPU, medians (affinity, multigrid set-up and solve; ${last.iterations} PCG iterations, residual ${last.residual.toExponential(1)}; goal at 512 x 384: under 1000 ms)`);
 }
+// The worst case for drawing: 2,000 entries at the largest radius a file allows, each covering the whole grid.
+{
+  const [w, h] = [400, 266];
+  const crowd = Array.from({ length: 2000 }, (_, k) => ({ x: (k * 37) % W, y: (k * 53) % H, colour: colours[k % colours.length], radius: Math.max(W, H) }));
+  const many = parseHints(JSON.stringify({ format: 'kinhue-hints', version: 1, image: { width: W, height: H }, entries: crowd }), 'bench-crowd.hints.json');
+  const { ms, cpu, last } = time(() => rasteriseHints(many, lightness(w, h), w, h, W, H), 3);
+  console.log(`drawing 2,000 entries at the maximum radius, ${w} x ${h}: ${ms.toFixed(0)} ms wall, ${cpu.toFixed(0)} ms CPU, medians (${last.pixels} cells held)`);
+}
 const reference = await loadReference(join(root, 'demo-photos/originals/wrenfold-05-billy-goat.jpg'));
 const L = lightness(512, 384);
 const { ms, cpu } = time(() => transferReference(reference, L, 512, 384), 3);

@@ -7,8 +7,10 @@ import { describe, expect, it } from 'vitest';
 import { check } from '../src/cli/commands/hints.js';
 import { isKinhueError, KinhueError } from '../src/errors.js';
 import {
-  formatHints, hintLch, hintsCandidates, parseCssColour, parseHints, prepareGuidance, starterHints, writeStarterHints,
+  formatHints, hintLch, hintsCandidates, outOfRange, parseCssColour, parseHints, prepareGuidance, rasteriseHints, starterHints, writeStarterHints,
 } from '../src/hints/index.js';
+import { findJsonError } from '../src/hints/json-syntax.js';
+import { random } from './helpers/random.js';
 
 function thrown(fn: () => unknown): KinhueError {
   try {
@@ -35,6 +37,16 @@ describe('CSS colours', () => {
   });
   it.each(['green', '#12345', '#1234', 'rgb(1, 2)', 'rgb(1%, 2, 3)', 'hsl(120, 50%, 50%)', 'rgb(a, b, c)', ''])('%s is refused', (text) => {
     expect(parseCssColour(text)).toBeNull();
+    expect(outOfRange(text)).toBe(false);
+  });
+  // CSS would clamp these (CSS Color 4, 5.1); a hints file states a known colour, so they are mistakes.
+  it.each(['rgb(300, 0, 0)', 'rgb(120%, 0%, 0%)', 'rgb(-1 0 0)', 'rgb(0, 255.5, 0)'])('%s is out of range, not clamped', (text) => {
+    expect(parseCssColour(text)).toBeNull();
+    expect(outOfRange(text)).toBe(true);
+  });
+  it('reads the edges of the range', () => {
+    expect(parseCssColour('rgb(255, 0, 0)')).toEqual([255, 0, 0]);
+    expect(parseCssColour('rgb(100%, 0%, 0%)')).toEqual([255, 0, 0]);
   });
   it('converts to CIELAB as culori does (lab65: CIE 1976 L*a*b*, D65)', () => {
     // Tolerance 0.01: the two libraries' sRGB matrices and white points differ in the fourth decimal.
@@ -70,6 +82,71 @@ describe('parseHints', () => {
     expect(error.describe()).toContain(file);
   });
 
+  it('gives line and column where Node names no position, and does not repeat the text', () => {
+    const cases: [string, RegExp][] = [
+      ['{\n  "format": "kinhue-hints",\n  "version": one\n}', /at line 3, column 14: expected a value, found "o"/],
+      ['{\n  "entries": [\n    {"x": 1},\n  ]\n}', /at line 4, column 3: expected a value, found "\]"/],
+      ['{\n  "format": "kinhue-hints\n}', /at line 2, column 26: a control character/],
+      ['{"format": "kinhue-hints"', /at line 1, column 26: expected "," or "}", found the end of the text/],
+      ['{"format": "kinhue-hints"} x', /at line 1, column 28: "x" after the end of the JSON value/],
+    ];
+    for (const [text, message] of cases) {
+      const error = thrown(() => parseHints(text, file));
+      expect(error.code).toBe('KH_BAD_HINTS');
+      expect(error.message).toMatch(message);
+      expect(error.message).not.toContain('kinhue-hints');
+    }
+  });
+
+  it('finds a syntax error exactly where JSON.parse fails, and none where it succeeds', () => {
+    // Reference: Node's own JSON.parse, for validity and, where its message gives one, the position.
+    const valid = ['{}', '[]', ' {"a": [1, -2.5e3, true, false, null, "\\u00e9\\n"]} ', '"x"', '0', '[[[[]]]]', '{"a":{"b":{}}}'];
+    const invalid = ['', '{', '{"a" 1}', '{"a": 01}', '[1 2]', '{"a": tru}', '"\\x"', '[-]', '{,}', '{"a": 1}}', "{'a': 1}", '[1,]', '1.', '[1e]', '-x', '"a\tb"'];
+    for (const text of valid) expect(findJsonError(text), text).toBeNull();
+    let positions = 0;
+    for (const text of invalid) {
+      let message = '';
+      try {
+        JSON.parse(text);
+      } catch (error) {
+        message = (error as Error).message;
+      }
+      expect(message, text).not.toBe('');
+      const found = findJsonError(text);
+      expect(found, text).not.toBeNull();
+      const position = /at position (\d+)/.exec(message)?.[1];
+      if (position !== undefined) {
+        expect(found!.offset, text).toBe(Number(position));
+        positions++;
+      }
+    }
+    expect(positions).toBeGreaterThan(4);
+    expect(findJsonError('{"a": 1,}')).toEqual({ offset: 8, problem: 'expected a property name in double quotes, found "}"' });
+    expect(findJsonError(`${'['.repeat(100_000)}${']'.repeat(100_000)}`)).toBeNull();
+  });
+
+  it('accepts a UTF-8 byte-order mark, as Windows editors write it', () => {
+    const hints = parseHints(`\uFEFF${doc([{ x: 10, y: 20, colour: '#2f5d3a' }])}`, file);
+    expect(hints.entries).toHaveLength(1);
+  });
+
+  it('refuses an rgb() colour out of range instead of clamping it', () => {
+    const error = thrown(() => parseHints(doc([{ x: 1, y: 1, colour: 'rgb(300, 0, 0)' }, { x: 1, y: 1, colour: 'rgb(120%, 0%, 0%)' }]), file));
+    expect(error.message).toBe('entry 1: colour "rgb(300, 0, 0)" has a channel out of range');
+    expect(error.hint).toMatch(/from 0 to 255, or from 0% to 100%/);
+    expect(thrown(() => parseHints(doc([{ x: 1, y: 1, colour: 'rgb(120%, 0%, 0%)' }]), file)).message).toContain('out of range');
+  });
+
+  it('repeats at most a few dozen characters of a value from the file', () => {
+    const long = 'x'.repeat(1_000_000);
+    for (const entry of [{ x: 1, y: 1, colour: long }, { x: 1, y: 1, colour: '#fff', [long]: 1 }, { x: 1, y: 1, colour: '#fff', radius: long }]) {
+      const error = thrown(() => parseHints(doc([entry]), file));
+      expect(error.describe().length).toBeLessThan(400);
+      expect(error.message).toContain('(1000002 characters)');
+    }
+    expect(thrown(() => parseHints(doc([], { version: long }), file)).message).toContain('(1000002 characters)');
+  });
+
   it('names the entry whose point lies outside the image, and says what to change', () => {
     const error = thrown(() => parseHints(doc([{ x: 5, y: 5, colour: '#fff' }, { x: 300, y: 10, colour: '#fff' }]), file));
     expect(error.code).toBe('KH_BAD_HINTS');
@@ -97,6 +174,41 @@ describe('parseHints', () => {
     expect(thrown(() => parseHints(doc([{ x: 1, y: 1, colour: '#fff', radius: -2 }]), file)).message).toContain('radius -2');
     expect(thrown(() => parseHints(doc([], { version: 2 }), file)).message).toContain('version 2');
     expect(thrown(() => parseHints('[]', file)).code).toBe('KH_BAD_HINTS');
+  });
+});
+
+describe('drawing entries onto the working grid', () => {
+  it('gives each cell the colour of the last entry covering it, with 2,000 entries at the largest radius', () => {
+    // Reference: each cell's centre tested against every entry in file order, the last one within its radius winning.
+    const next = random(5);
+    const W = 400, H = 266, w = 200, h = 133;
+    const colours = ['#c0504a', '#3d8fbf', '#2f5d3a', '#8a4a26'];
+    const entries = Array.from({ length: 2000 }, (_, k) => k % 2
+      ? { x: Math.floor(next() * W), y: Math.floor(next() * H), colour: colours[k % 4], radius: k > 1990 ? 400 : 5 + next() * 40 }
+      : { points: [[next() * (W - 1), next() * (H - 1)], [next() * (W - 1), next() * (H - 1)]], colour: colours[k % 4], radius: 3 + next() * 30 });
+    const hints = parseHints(JSON.stringify({ format: 'kinhue-hints', version: 1, image: { width: W, height: H }, entries }), file);
+    const L = Float32Array.from({ length: w * h }, () => 30 + next() * 40);
+    const drawn = rasteriseHints(hints, L, w, h, W, H);
+    const s = w / W;
+    const within = (e: (typeof hints.entries)[number], u: number, v: number): boolean => {
+      const pts = e.points.map(([x, y]) => [(x + 0.5) * s, (y + 0.5) * s] as const);
+      const [p, q] = [pts[0]!, pts.at(-1)!];
+      const dx = q[0] - p[0], dy = q[1] - p[1], len2 = dx * dx + dy * dy;
+      const t = len2 > 0 ? Math.max(0, Math.min(1, ((u - p[0]) * dx + (v - p[1]) * dy) / len2)) : 0;
+      return Math.hypot(u - p[0] - t * dx, v - p[1] - t * dy) <= e.radius * s;
+    };
+    let checked = 0;
+    for (let i = 0; i < w * h; i += 97) {
+      const u = (i % w) + 0.5, v = Math.floor(i / w) + 0.5;
+      const last = [...hints.entries].reverse().find((e) => within(e, u, v));
+      expect(drawn.constraints.fixed[i]).toBe(last ? 1 : 0);
+      if (!last) continue;
+      const hue = hintLch(last.rgb).hue;
+      expect(Math.abs(Math.atan2(drawn.constraints.b[i]!, drawn.constraints.a[i]!) - hue)).toBeLessThan(1e-4);
+      checked++;
+    }
+    expect(checked).toBeGreaterThan(200);
+    expect(drawn.pixels).toBe(w * h); // the last entries cover the whole grid
   });
 });
 

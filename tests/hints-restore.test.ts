@@ -1,4 +1,5 @@
 // Hints and reference photos inside a restore run: used, recorded in the provenance, or ignored with a message.
+import { spawnSync } from 'node:child_process';
 import { mkdir, mkdtemp, readFile, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
@@ -9,6 +10,7 @@ import { srgbColourToLab } from '../src/colour/index.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
 import { hintLch, parseCssColour } from '../src/hints/index.js';
 
+const BIN = join(__dirname, '..', 'bin', 'kinhue.js');
 let root: string;
 let modelDir: string;
 
@@ -34,6 +36,26 @@ beforeAll(async () => {
 });
 
 describe('restore with hints', () => {
+  it('lists the first 20 colours it had to weaken and counts the rest (the real CLI)', async () => {
+    const scans = join(root, 'many');
+    await mkdir(scans);
+    await scan(join(scans, 'crowded.png'));
+    // 60 separate points of pure yellow (L* 97), whose chroma no part of the scene (L* about 30 to 85) can hold.
+    const entries = Array.from({ length: 60 }, (_, k) => ({ x: 4 + (k % 12) * 8, y: 8 + Math.floor(k / 12) * 12, colour: '#ffff00' }));
+    await writeFile(join(scans, 'crowded.hints.json'), hints(entries));
+    const out = join(root, 'many-out');
+    const cli = spawnSync(process.execPath, [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--jobs', '1', '--work-size', '96'],
+      { encoding: 'utf8', timeout: 120_000 });
+    expect(cli.status).toBe(0);
+    const lines = cli.stderr.split('\n');
+    expect(lines.filter((line) => /crowded\.png: hint entry \d+ \(/.test(line))).toHaveLength(20);
+    expect(lines.filter((line) => /crowded\.png: hints: and 40 more entries whose chroma was reduced/.test(line))).toHaveLength(1);
+    const record = JSON.parse(await readFile(join(out, 'crowded.kinhue.json'), 'utf8'));
+    expect(record.guidance.hints.adjustments).toHaveLength(20);
+    expect(record.guidance.hints.adjustmentsNotListed).toBe(40);
+    expect(record.warnings).toHaveLength(21);
+  });
+
   it('uses a hints file beside the scan, ignores a bad one with its message, and records both', async () => {
     const scans = join(root, 'scans');
     await mkdir(scans);

@@ -55,7 +55,8 @@ export interface ProvenanceRecord {
   };
   tone: { kind: ToneReport['kind']; tint: { a: number; b: number }; name: string | null };
   result: { image: string; format: string; bitDepth: BitDepth; confidenceMap: string | null };
-  model: { name: string; weightsSha256: string; folder: string };
+  /** `topologySha256`: SHA-256 of the model folder's model.json (the network's layout) as loaded. */
+  model: { name: string; weightsSha256: string; topologySha256: string; folder: string };
   settings: RestoreSettings;
   backend: string;
   /** Mean model confidence over the image, 0-1. */
@@ -137,6 +138,8 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
   });
   if (guidance.record.hints?.ignored) warnings.push(`hints file not used: ${guidance.record.hints.ignored}`);
   for (const note of guidance.record.hints?.adjustments ?? []) warnings.push(`hint ${note}`);
+  const notListed = guidance.record.hints?.adjustmentsNotListed;
+  if (notListed) warnings.push(`hints: and ${notListed} more entries whose chroma was reduced (not listed)`);
   for (const note of guidance.record.reference?.notes ?? []) warnings.push(`reference ${note}`);
   const tModel = clock();
 
@@ -226,7 +229,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
       bitDepth: encoded.depth,
       confidenceMap: settings.confidence ? baseName(outputs.confidence) : null,
     },
-    model: { name: settings.model, weightsSha256: settings.weightsSha256, folder: model.dir ?? '' },
+    model: { name: settings.model, weightsSha256: settings.weightsSha256, topologySha256: model.topologySha256, folder: model.dir ?? '' },
     settings,
     backend: options.backend,
     meanConfidence: Number(meanConfidence.toFixed(4)),

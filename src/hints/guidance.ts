@@ -38,14 +38,19 @@ export interface GuidanceRecord {
     placeholders?: number;
     /** Working-size pixels held at a hinted colour. */
     pixels?: number;
-    /** Hinted colours weakened to fit the scan's lightness. */
+    /** Hinted colours weakened to fit the scan's lightness (the first LISTED_ADJUSTMENTS). */
     adjustments?: string[];
+    /** How many more were weakened than `adjustments` lists. */
+    adjustmentsNotListed?: number;
     scaled?: string;
     iterations?: number;
     milliseconds?: number;
   };
   reference?: { files: string[]; samples: number; notes?: string[]; milliseconds?: number };
 }
+
+/** How many colour adjustments a record (and so the run's output) lists one by one; the rest are counted. */
+export const LISTED_ADJUSTMENTS = 20;
 
 export interface Guidance {
   /** The step to apply at the working size; absent when there is nothing to apply. */
@@ -190,7 +195,8 @@ export async function prepareGuidance(source: string, width: number, height: num
       work.b.set(result.b);
       Object.assign(record.hints!, {
         pixels: drawn.pixels,
-        adjustments: drawn.adjustments.map((adj) => adj.message),
+        adjustments: drawn.adjustments.slice(0, LISTED_ADJUSTMENTS).map((adj) => adj.message),
+        ...(drawn.adjustments.length > LISTED_ADJUSTMENTS ? { adjustmentsNotListed: drawn.adjustments.length - LISTED_ADJUSTMENTS } : {}),
         ...(drawn.scaled ? { scaled: drawn.scaled } : {}),
         iterations: result.iterations,
         milliseconds: Math.round(performance.now() - t),

@@ -3,7 +3,7 @@
  * (the hint's hue and chroma at each pixel's own L*, reduced where sRGB cannot hold it).
  */
 import type { HintConstraints } from './propagate.js';
-import type { HintEntry, Hints } from './hints-file.js';
+import { echo, type HintEntry, type Hints } from './hints-file.js';
 import { chromaAt, hexAt, hintLch } from './hint-colour.js';
 
 /** A hint whose colour had to be weakened at the scan's lightness. */
@@ -41,26 +41,28 @@ export interface RasterisedHints {
  */
 export function rasteriseHints(hints: Hints, L: Float32Array, width: number, height: number, scanWidth: number, scanHeight: number): RasterisedHints {
   const n = width * height;
-  const fixed = new Uint8Array(n), a = new Float32Array(n), b = new Float32Array(n);
+  const a = new Float32Array(n), b = new Float32Array(n);
+  const grid = new FreeCells(width, height);
   // Hint coordinates -> working-grid coordinates (pixel centres at +0.5).
   const sx = width / hints.width, sy = height / hints.height;
   const adjustments: GamutAdjustment[] = [];
-  for (const entry of hints.entries) {
-    const cells = cover(entry, sx, sy, width, height);
+  // Where entries overlap the later one wins. Drawing from the last entry back and colouring only cells still
+  // free gives that, and colours each cell once: the cost is bounded by the grid, not by entries x their area.
+  for (let k = hints.entries.length - 1; k >= 0 && grid.painted < n; k--) {
+    const entry = hints.entries[k]!;
     const lch = hintLch(entry.rgb);
     let minChroma = lch.chroma, lo = Infinity, hi = -Infinity;
-    for (const i of cells) {
+    cover(entry, sx, sy, grid, (i) => {
       const Li = L[i]!;
       const c = chromaAt(Li, lch.chroma, lch.hue);
-      fixed[i] = 1;
       a[i] = c * Math.cos(lch.hue);
       b[i] = c * Math.sin(lch.hue);
       minChroma = Math.min(minChroma, c);
       lo = Math.min(lo, Li);
       hi = Math.max(hi, Li);
-    }
+    });
     // Report a reduction people could see (over one CIELAB unit of chroma).
-    if (cells.length && lch.chroma - minChroma > 1) {
+    if (lo <= hi && lch.chroma - minChroma > 1) {
       const mid = (lo + hi) / 2;
       const usedMid = chromaAt(mid, lch.chroma, lch.hue);
       const instead = hexAt(mid, usedMid, lch.hue);
@@ -71,17 +73,16 @@ export function rasteriseHints(hints: Hints, L: Float32Array, width: number, hei
         usedChroma: round1(minChroma),
         lightness: [round1(lo), round1(hi)],
         usedInstead: instead,
-        message: `entry ${entry.number} (${entry.colour}): the scan's lightness there (L* ${round1(lo)} to ${round1(hi)}) `
+        message: `entry ${entry.number} (${echo(entry.colour)}): the scan's lightness there (L* ${round1(lo)} to ${round1(hi)}) `
           + `cannot hold that colour's chroma of ${round1(lch.chroma)}; chroma was reduced to as little as ${round1(minChroma)}, `
           + `the same hue, e.g. ${instead} at L* ${round1(mid)}`,
       });
     }
   }
+  adjustments.reverse();
   const scaled = hints.width === scanWidth && hints.height === scanHeight ? undefined
     : `the hints were made for ${hints.width} x ${hints.height}; scaled to the scan's ${scanWidth} x ${scanHeight}`;
-  let pixels = 0;
-  for (let i = 0; i < n; i++) pixels += fixed[i]!;
-  return { constraints: { fixed, a, b }, pixels, adjustments, ...(scaled ? { scaled } : {}) };
+  return { constraints: { fixed: grid.fixed, a, b }, pixels: grid.painted, adjustments, ...(scaled ? { scaled } : {}) };
 }
 
 /**
@@ -95,31 +96,113 @@ export function checkHintsSize(hints: Hints, scanWidth: number, scanHeight: numb
   return `the hints were made for a ${hints.width} x ${hints.height} image but the scan is ${scanWidth} x ${scanHeight}`;
 }
 
-/** Grid cells an entry covers: pixels whose centre lies within the radius of its path, and every cell the path crosses. */
-function cover(entry: HintEntry, sx: number, sy: number, width: number, height: number): number[] {
+/**
+ * The working grid's cells not yet taken by a hint: per row, a pointer to the next free column (path
+ * halving keeps each lookup near constant), and a count, so a full row is passed over at once.
+ */
+class FreeCells {
+  readonly fixed: Uint8Array;
+  painted = 0;
+  private readonly next: Int32Array;
+  private readonly freeInRow: Int32Array;
+
+  constructor(readonly width: number, readonly height: number) {
+    this.fixed = new Uint8Array(width * height);
+    // Row y's pointers live at y * (width + 1) + x; x = width is the row's end.
+    this.next = new Int32Array((width + 1) * height);
+    for (let y = 0; y < height; y++) for (let x = 0; x <= width; x++) this.next[y * (width + 1) + x] = x;
+    this.freeInRow = new Int32Array(height).fill(width);
+  }
+
+  rowFull(y: number): boolean {
+    return this.freeInRow[y] === 0;
+  }
+
+  /** The first free column at or after x in row y (width when none). */
+  firstFree(y: number, x: number): number {
+    const base = y * (this.width + 1);
+    const next = this.next;
+    while (next[base + x] !== x) {
+      const up = next[base + next[base + x]!]!;
+      next[base + x] = up;
+      x = up;
+    }
+    return x;
+  }
+
+  /** Takes cell (x, y) when it is free; true when it was. */
+  take(x: number, y: number): boolean {
+    const i = y * this.width + x;
+    if (this.fixed[i]) return false;
+    this.fixed[i] = 1;
+    this.next[y * (this.width + 1) + x] = x + 1;
+    this.freeInRow[y]!--;
+    this.painted++;
+    return true;
+  }
+}
+
+/**
+ * Takes the free grid cells an entry covers, calling `paint` with each cell's index: cells whose centre lies
+ * within the radius of its path, and every cell the path crosses.
+ */
+function cover(entry: HintEntry, sx: number, sy: number, grid: FreeCells, paint: (i: number) => void): void {
+  const { width, height } = grid;
   const pts = entry.points.map(([x, y]) => [(x + 0.5) * sx, (y + 0.5) * sy] as const);
   const r = entry.radius * Math.sqrt(sx * sy);
-  const cells = new Set<number>();
-  const mark = (u: number, v: number): void => {
-    const x = Math.min(width - 1, Math.max(0, Math.floor(u))), y = Math.min(height - 1, Math.max(0, Math.floor(v)));
-    cells.add(y * width + x);
+  const take = (x: number, y: number): void => {
+    if (grid.take(x, y)) paint(y * width + x);
   };
   const segments = pts.length === 1 ? [[pts[0]!, pts[0]!]] : pts.slice(1).map((p, k) => [pts[k]!, p]);
   for (const [p, q] of segments) {
     const [px, py] = p!, [qx, qy] = q!;
     const length = Math.hypot(qx - px, qy - py);
     const steps = Math.max(1, Math.ceil(length * 2));
-    for (let k = 0; k <= steps; k++) mark(px + ((qx - px) * k) / steps, py + ((qy - py) * k) / steps);
+    for (let k = 0; k <= steps; k++) {
+      const u = px + ((qx - px) * k) / steps, v = py + ((qy - py) * k) / steps;
+      take(Math.min(width - 1, Math.max(0, Math.floor(u))), Math.min(height - 1, Math.max(0, Math.floor(v))));
+    }
     if (r <= 0) continue;
-    const x0 = Math.max(0, Math.floor(Math.min(px, qx) - r)), x1 = Math.min(width - 1, Math.ceil(Math.max(px, qx) + r));
+    const inside = (x: number, v: number): boolean => distanceToSegment(x + 0.5, v, px, py, qx, qy) <= r;
     const y0 = Math.max(0, Math.floor(Math.min(py, qy) - r)), y1 = Math.min(height - 1, Math.ceil(Math.max(py, qy) + r));
     for (let y = y0; y <= y1; y++) {
-      for (let x = x0; x <= x1; x++) {
-        if (distanceToSegment(x + 0.5, y + 0.5, px, py, qx, qy) <= r) cells.add(y * width + x);
-      }
+      if (grid.rowFull(y)) continue;
+      const span = rowSpan(y + 0.5, px, py, qx, qy, r, width, inside);
+      if (!span) continue;
+      for (let x = grid.firstFree(y, span[0]); x <= span[1]; x = grid.firstFree(y, x + 1)) take(x, y);
     }
   }
-  return [...cells];
+}
+
+/**
+ * The columns of a row (centre height v) whose centres lie within r of segment p-q, as [first, last], or
+ * null. The covered shape is convex, so on one row it is one run: found from the path's point nearest the
+ * row in height, then its ends by bisection.
+ */
+function rowSpan(v: number, px: number, py: number, qx: number, qy: number, r: number, width: number,
+  inside: (x: number, v: number) => boolean): [number, number] | null {
+  let u: number;
+  if (py !== qy && v >= Math.min(py, qy) && v <= Math.max(py, qy)) u = px + ((qx - px) * (v - py)) / (qy - py);
+  else u = Math.abs(v - py) <= Math.abs(v - qy) ? px : qx;
+  // The run contains u when it exists; the cell centres either side of u are the only candidates to start from.
+  const left = Math.min(width - 1, Math.max(0, Math.floor(u - 0.5)));
+  const start = inside(left, v) ? left : left + 1 < width && inside(left + 1, v) ? left + 1 : -1;
+  if (start < 0) return null;
+  let lo = 0, hi = start; // first inside column in [lo, hi]
+  while (lo < hi) {
+    const mid = (lo + hi) >> 1;
+    if (inside(mid, v)) hi = mid;
+    else lo = mid + 1;
+  }
+  const first = lo;
+  lo = start;
+  hi = width - 1; // last inside column in [lo, hi]
+  while (lo < hi) {
+    const mid = (lo + hi + 1) >> 1;
+    if (inside(mid, v)) lo = mid;
+    else hi = mid - 1;
+  }
+  return [first, lo];
 }
 
 function distanceToSegment(x: number, y: number, px: number, py: number, qx: number, qy: number): number {

@@ -14,7 +14,8 @@
  * An entry whose colour is the empty string is a placeholder (the starter file has some) and is skipped.
  */
 import { ErrorCodes, KinhueError } from '../errors.js';
-import { parseCssColour, type Rgb } from './css-colour.js';
+import { outOfRange, parseCssColour, type Rgb } from './css-colour.js';
+import { findJsonError, lineColumn } from './json-syntax.js';
 
 export const HINTS_FORMAT = 'kinhue-hints';
 export const HINTS_VERSION = 1;
@@ -57,15 +58,25 @@ export interface HintsJson {
 const ENTRY_KEYS = new Set(['x', 'y', 'points', 'colour', 'radius', 'note']);
 const TOP_KEYS = new Set(['format', 'version', 'scan', 'image', 'entries']);
 const COLOUR_HELP = 'write it as "#rrggbb", "#rgb" or "rgb(r, g, b)" with r, g, b from 0 to 255';
+/** The most characters of a value from a hints file that a message repeats. */
+const ECHO_LIMIT = 40;
+const BYTE_ORDER_MARK = '\uFEFF';
 
 function bad(file: string, message: string, hint: string): KinhueError {
   return new KinhueError(ErrorCodes.BAD_HINTS, message, { file, hint });
 }
 
-/** Line and column of a character offset, for JSON syntax errors. */
-function lineColumn(text: string, offset: number): string {
-  const before = text.slice(0, offset).split('\n');
-  return `line ${before.length}, column ${before[before.length - 1]!.length + 1}`;
+/**
+ * A value from a hints file as a message repeats it: as JSON, cut to a few dozen characters, so a
+ * runaway value (a megabyte-long colour) cannot flood the terminal or the record.
+ *
+ * @example
+ *   echo('dark green');      // '"dark green"'
+ *   echo('x'.repeat(1000));  // the first 40 characters of '"xxx...', then '... (1002 characters)'
+ */
+export function echo(value: unknown): string {
+  const text = JSON.stringify(value) ?? String(value);
+  return text.length <= ECHO_LIMIT ? text : `${text.slice(0, ECHO_LIMIT)}... (${text.length} characters)`;
 }
 
 function isNumber(v: unknown): v is number {
@@ -81,14 +92,15 @@ function isNumber(v: unknown): v is number {
  *   hints.entries[0].rgb; // [47, 93, 58]
  */
 export function parseHints(text: string, file: string): Hints {
+  // Editors on Windows often save UTF-8 with a byte-order mark, which JSON itself does not allow.
+  const body = text.startsWith(BYTE_ORDER_MARK) ? text.slice(1) : text;
   let json: unknown;
   try {
-    json = JSON.parse(text);
+    json = JSON.parse(body);
   } catch (error) {
-    const message = (error as Error).message;
-    const at = /position (\d+)/.exec(message);
-    const where = at ? ` at ${lineColumn(text, Number(at[1]))}` : '';
-    throw bad(file, `not valid JSON${where} (${message})`,
+    const found = findJsonError(body);
+    const where = found ? lineColumn(body, found.offset) : undefined;
+    throw bad(file, found && where ? `not valid JSON at line ${where.line}, column ${where.column}: ${found.problem}` : `not valid JSON (${(error as Error).message.slice(0, 200)})`,
       'fix the JSON syntax (a missing comma or quote is the usual cause), or make a new file with `kinhue hints <scan> --force`');
   }
   if (typeof json !== 'object' || json === null || Array.isArray(json)) {
@@ -97,13 +109,13 @@ export function parseHints(text: string, file: string): Hints {
   }
   const top = json as Record<string, unknown>;
   for (const key of Object.keys(top)) {
-    if (!TOP_KEYS.has(key)) throw bad(file, `unknown field "${key}"`, `remove it; the fields are ${[...TOP_KEYS].join(', ')}`);
+    if (!TOP_KEYS.has(key)) throw bad(file, `unknown field ${echo(key)}`, `remove it; the fields are ${[...TOP_KEYS].join(', ')}`);
   }
   if (top.format !== HINTS_FORMAT) {
     throw bad(file, `"format" must be "${HINTS_FORMAT}"`, 'check that this is a kinhue hints file, or make one with `kinhue hints <scan>`');
   }
   if (top.version !== HINTS_VERSION) {
-    throw bad(file, `hints file version ${JSON.stringify(top.version)} is not one this kinhue reads (it reads version ${HINTS_VERSION})`,
+    throw bad(file, `hints file version ${echo(top.version)} is not one this kinhue reads (it reads version ${HINTS_VERSION})`,
       'use the kinhue version that wrote it, or make a new file with `kinhue hints <scan> --force`');
   }
   const image = top.image as Record<string, unknown> | undefined;
@@ -135,18 +147,24 @@ function parseEntry(raw: unknown, number: number, width: number, height: number,
   const e = raw as Record<string, unknown>;
   for (const key of Object.keys(e)) {
     if (key === 'color') throw bad(file, `${where} has "color"`, 'this format spells it "colour"; rename the field');
-    if (!ENTRY_KEYS.has(key)) throw bad(file, `${where} has an unknown field "${key}"`, `remove it; an entry may have ${[...ENTRY_KEYS].join(', ')}`);
+    if (!ENTRY_KEYS.has(key)) throw bad(file, `${where} has an unknown field ${echo(key)}`, `remove it; an entry may have ${[...ENTRY_KEYS].join(', ')}`);
   }
   if (typeof e.colour !== 'string') throw bad(file, `${where} has no "colour"`, `add one: ${COLOUR_HELP}`);
   const note = e.note === undefined ? undefined : String(e.note);
   if (e.colour.trim() === '') return null;
   const rgb = parseCssColour(e.colour);
-  if (!rgb) throw bad(file, `${where}: colour "${e.colour}" is not a colour kinhue reads`, COLOUR_HELP);
+  if (!rgb) {
+    if (outOfRange(e.colour)) {
+      throw bad(file, `${where}: colour ${echo(e.colour)} has a channel out of range`,
+        'give each channel from 0 to 255, or from 0% to 100%; kinhue does not clip colours it cannot show');
+    }
+    throw bad(file, `${where}: colour ${echo(e.colour)} is not a colour kinhue reads`, COLOUR_HELP);
+  }
 
   let radius = 0;
   if (e.radius !== undefined) {
     if (!isNumber(e.radius) || e.radius < 0 || e.radius > Math.max(width, height)) {
-      throw bad(file, `${where}: radius ${JSON.stringify(e.radius)} is not usable`, `give a radius in pixels of the scan, from 0 to ${Math.max(width, height)}`);
+      throw bad(file, `${where}: radius ${echo(e.radius)} is not usable`, `give a radius in pixels of the scan, from 0 to ${Math.max(width, height)}`);
     }
     radius = e.radius;
   }
