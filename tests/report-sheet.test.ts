@@ -1,21 +1,23 @@
+import { spawnSync } from 'node:child_process';
 import { existsSync } from 'node:fs';
 import { cp, mkdir, mkdtemp, readFile, readdir, rm, writeFile } from 'node:fs/promises';
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import { chromium, type BrowserContext, type Page } from 'playwright-core';
+import { type BrowserContext, type Page } from 'playwright-core';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { restore, type RestoreSummary } from '../src/batch/index.js';
 import { createNetwork, DEFAULT_MODEL_DIR, initBackend, saveModel } from '../src/model/index.js';
 import { makeSheet, relativeUrl } from '../src/report/index.js';
+import { launchChromium } from './helpers/chromium.js';
 
 // The review sheet of a real restore run of the demo scans (plus one file that is not an image),
-// opened in a real browser: Debian's headless Chromium driven by playwright-core.
+// opened in a real browser: the headless Chromium of the npm package @sparticuz/chromium, driven by playwright-core.
 
 const REPO = join(__dirname, '..');
 const SCANS = join(REPO, 'demo-photos', 'scans');
-const CHROMIUM = '/usr/bin/chromium';
 const SHOTS = join(REPO, 'tests', 'out');
+const BIN = join(REPO, 'bin', 'kinhue.js');
 
 let root: string;
 let profile: string;
@@ -55,7 +57,6 @@ async function cards(): Promise<Card[]> {
 }
 
 beforeAll(async () => {
-  if (!existsSync(CHROMIUM)) throw new Error(`${CHROMIUM} is missing: install Debian's chromium (apt-get install chromium); .ci/run does`);
   if (!existsSync(SCANS)) throw new Error(`${SCANS} is missing: the demo album is part of the repository`);
   root = await mkdtemp(join(tmpdir(), 'kinhue-sheet-'));
   const input = join(root, 'scans');
@@ -69,13 +70,7 @@ beforeAll(async () => {
   await mkdir(SHOTS, { recursive: true });
   // A fresh profile for every run: nothing remembered from earlier runs or other programs.
   profile = await mkdtemp(join(tmpdir(), 'kinhue-chromium-'));
-  context = await chromium.launchPersistentContext(profile, {
-    executablePath: CHROMIUM,
-    headless: true,
-    args: ['--headless', '--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking',
-      '--disable-component-update', '--disable-sync'],
-    viewport: { width: 1280, height: 900 },
-  });
+  ({ context } = await launchChromium(profile));
   page = context.pages()[0] ?? (await context.newPage());
   page.on('request', (r) => requests.push(r.url()));
   page.on('pageerror', (e) => problems.push(String(e)));
@@ -161,6 +156,41 @@ describe('review sheet in Chromium', () => {
     const srcs = [...html.matchAll(/<img [^>]*src="([^"]*)"/g)].map((m) => m[1]!);
     expect(srcs.length).toBe(5 * summary.done);
     expect(srcs.every((s) => s.startsWith('data:image/jpeg;base64,'))).toBe(true);
+  });
+});
+
+describe('a damaged provenance record', () => {
+  it('shows as a damaged card and the sheet goes on (the real CLI)', async () => {
+    const copy = join(root, 'damaged-run');
+    await cp(run, copy, { recursive: true });
+    const records = (await readdir(copy)).filter((name) => name.endsWith('.kinhue.json')).sort();
+    expect(records.length).toBeGreaterThanOrEqual(2);
+    // One record cut down by hand, one that parses but is not a record at all.
+    const edited = JSON.parse(await readFile(join(copy, records[0]!), 'utf8'));
+    delete edited.source.width;
+    delete edited.timings;
+    await writeFile(join(copy, records[0]!), JSON.stringify(edited));
+    await writeFile(join(copy, records[1]!), '[]');
+
+    const out = join(copy, 'review.html');
+    const cli = spawnSync(process.execPath, [BIN, 'sheet', copy, '-o', out], { encoding: 'utf8', timeout: 120_000 });
+    expect(cli.stderr).toBe('');
+    expect(cli.status).toBe(0);
+    expect(cli.stdout).toContain(`(${summary.done - 2} restored, 3 failed)`);
+
+    const view = await context.newPage();
+    try {
+      await view.goto(pathToFileURL(out).href, { waitUntil: 'load' });
+      const damaged = await view.$$eval('article.failed', (els) => els
+        .filter((el) => el.querySelector('.badge')?.textContent === 'damaged record')
+        .map((el) => `${el.querySelector('.message')?.textContent} / ${el.querySelector('.hint')?.textContent}`));
+      expect(damaged).toHaveLength(2);
+      expect(damaged.join('\n')).toContain(`${records[0]} is damaged: missing or wrong source.width, timings`);
+      expect(damaged.join('\n')).toContain(`${records[1]} is damaged: not a JSON object`);
+      expect(damaged.join('\n')).toContain(`next step: delete ${records[0]} and run the same restore command again`);
+    } finally {
+      await view.close();
+    }
   });
 });
 

@@ -30,6 +30,8 @@ export interface SheetPhoto {
   details: [string, string][];
   /** Why a failed input failed. */
   error?: { code?: string; message: string; hint?: string };
+  /** Restored, but its provenance record cannot be read as one: shown among the failed, marked damaged. */
+  damaged?: boolean;
 }
 
 /** Everything one sheet shows. */
@@ -98,7 +100,7 @@ function failedCard(p: SheetPhoto, index: number): string {
   const name = escapeHtml(p.name);
   const e = p.error ?? { message: 'failed (no message recorded)' };
   return `<article class="photo failed" data-status="failed" data-name="${name}" data-order="${index}" data-confidence="">` +
-    `<header><h2>${name}</h2><span class="badge bad">failed${e.code ? ` &middot; ${escapeHtml(e.code)}` : ''}</span></header>` +
+    `<header><h2>${name}</h2><span class="badge bad">${p.damaged ? 'damaged record' : 'failed'}${e.code ? ` &middot; ${escapeHtml(e.code)}` : ''}</span></header>` +
     `<p class="message">${escapeHtml(e.message)}</p>` +
     (e.hint ? `<p class="hint">next step: ${escapeHtml(e.hint)}</p>` : '') +
     detailsTable(p.details, 'details') + `</article>`;

@@ -15,6 +15,7 @@ import { decodeImage, encodeBuffer, writeFileAtomic, type Pixels } from '../imag
 import { downscaleToFloatRgb } from '../training/index.js';
 import { confidenceHistogram } from './histogram.js';
 import { renderSheetHtml, type SheetData, type SheetImage, type SheetPhoto } from './sheet-html.js';
+import { recordDamage } from './sheet-record.js';
 
 /** What to make a sheet of. */
 export interface SheetOptions {
@@ -140,13 +141,19 @@ async function photoFor(run: string, record: ManifestRecord, ctx: Context): Prom
   const recordName = record.companions?.find((c) => c.endsWith('.kinhue.json')) ??
     `${record.output.slice(0, record.output.length - extname(record.output).length)}.kinhue.json`;
   const recordPath = underFolder(run, recordName);
-  let provenance: ProvenanceRecord;
+  let parsed: unknown;
   try {
-    provenance = JSON.parse(await readFile(recordPath, 'utf8')) as ProvenanceRecord;
+    parsed = JSON.parse(await readFile(recordPath, 'utf8'));
   } catch {
     return failed(record.output, `its provenance record ${recordName} is missing or unreadable`, basic, undefined,
       'run the same restore command again to redo this file');
   }
+  const damage = recordDamage(parsed);
+  if (damage) {
+    return { ...failed(record.output, `its provenance record ${recordName} is damaged: ${damage}`, basic, undefined,
+      `delete ${recordName} and run the same restore command again to redo this file`), damaged: true };
+  }
+  const provenance = parsed as ProvenanceRecord;
   if (!(await exists(resultPath))) {
     return failed(record.output, `the result ${record.output} is missing from the output folder`, basic, undefined,
       'run the same restore command again to redo this file');
