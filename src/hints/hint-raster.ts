@@ -3,7 +3,7 @@
  * (the hint's hue and chroma at each pixel's own L*, reduced where sRGB cannot hold it).
  */
 import type { HintConstraints } from './propagate.js';
-import { echo, type HintEntry, type Hints } from './hints-file.js';
+import type { HintEntry, Hints } from './hints-file.js';
 import { chromaAt, hexAt, hintLch } from './hint-colour.js';
 
 /** A hint whose colour had to be weakened at the scan's lightness. */
@@ -73,7 +73,7 @@ export function rasteriseHints(hints: Hints, L: Float32Array, width: number, hei
         usedChroma: round1(minChroma),
         lightness: [round1(lo), round1(hi)],
         usedInstead: instead,
-        message: `entry ${entry.number} (${echo(entry.colour)}): the scan's lightness there (L* ${round1(lo)} to ${round1(hi)}) `
+        message: `entry ${entry.number} (${entry.colour}): the scan's lightness there (L* ${round1(lo)} to ${round1(hi)}) `
           + `cannot hold that colour's chroma of ${round1(lch.chroma)}; chroma was reduced to as little as ${round1(minChroma)}, `
           + `the same hue, e.g. ${instead} at L* ${round1(mid)}`,
       });
