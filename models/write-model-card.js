@@ -162,6 +162,7 @@ ${recipe.join('\n')}
 - ${summary.steps} steps, ${f(hours, 2)} hours of training on ${cores} core${cores === 1 ? '' : 's'} (${f(hours * cores, 2)} core-hours; WebAssembly backend, ${summary.backend ?? 'wasm'}),
   Adam, learning rate ${summary.options.learningRate}${summary.options.learningRateChanges?.length ? ` (changed on resume: ${summary.options.learningRateChanges.map((c) => `${c.learningRate} from step ${c.step + 1}`).join(', ')})` : ''}, seed ${summary.options.seed},
   class rebalancing lambda ${summary.options.rebalance}. The weights kept are those of step ${summary.heldOut.keptStep}${summary.options.keep === 'best' ? ' (the best held-out error)' : ' (the last step)'}.
+- Files: \`weights.bin\` with SHA-256 ${meta.weightsSha256}, \`model.json\` with SHA-256 ${meta.topologySha256 ?? '(not recorded)'}.
 ${last ? `- Last evaluation in the training log (step ${last.step}, held-out photos at ${summary.options.photoSize} px): mean CIEDE2000 ${f(last.ciede2000)}, colourfulness ${f(last.colourfulness, 1)}${last.rightHue !== undefined ? `, right hue ${pct(last.rightHue)}, false colour ${pct(last.falseColour)}` : ''}.` : ''}
 
 ## Figures

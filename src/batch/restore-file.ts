@@ -12,7 +12,7 @@ import {
   classifyTone, decodeImage, encodeImage, estimateStatement, provenanceXmp, supports16Bit, writeFileAtomic, writeGreyMap,
   type BitDepth, type Pixels, type ToneReport,
 } from '../image/index.js';
-import type { KinhueModel } from '../model/index.js';
+import type { BackboneRecord, KinhueModel } from '../model/index.js';
 import { prepareGuidance, type GuidanceRecord } from '../hints/index.js';
 import { VERSION } from '../version.js';
 import { fullSizeGrid, mean, workingColour, workingSize, type RefineStep } from './colourise.js';
@@ -55,8 +55,11 @@ export interface ProvenanceRecord {
   };
   tone: { kind: ToneReport['kind']; tint: { a: number; b: number }; name: string | null };
   result: { image: string; format: string; bitDepth: BitDepth; confidenceMap: string | null };
-  /** `topologySha256`: SHA-256 of the model folder's model.json (the network's layout) as loaded. */
-  model: { name: string; weightsSha256: string; topologySha256: string; folder: string };
+  /**
+   * `topologySha256`: SHA-256 of the model folder's model.json (the network's layout) as loaded;
+   * `backbone`: the borrowed detector the network reads, with its files' SHA-256, when it reads one.
+   */
+  model: { name: string; weightsSha256: string; topologySha256: string; folder: string; backbone?: BackboneRecord };
   settings: RestoreSettings;
   backend: string;
   /** Mean model confidence over the image, 0-1. */
@@ -229,7 +232,10 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
       bitDepth: encoded.depth,
       confidenceMap: settings.confidence ? baseName(outputs.confidence) : null,
     },
-    model: { name: settings.model, weightsSha256: settings.weightsSha256, topologySha256: model.topologySha256, folder: model.dir ?? '' },
+    model: {
+      name: settings.model, weightsSha256: settings.weightsSha256, topologySha256: model.topologySha256, folder: model.dir ?? '',
+      ...(model.meta.backbone ? { backbone: model.meta.backbone } : {}),
+    },
     settings,
     backend: options.backend,
     meanConfidence: Number(meanConfidence.toFixed(4)),
