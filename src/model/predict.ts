@@ -117,10 +117,9 @@ export function predict(
   // every decoding and the confidence read as logits.
   const scores = pooling ? pooledLogits(raw, q, shrinkPlane(L, width, height, ow, oh), ow, oh, pooling) : raw;
   const [ab, conf] = tf.tidy(() => {
-    const cropped = scores;
     const colour =
-      decoding === 'annealed-mean' ? annealedMeanTensor(cropped, bins, temperature) : leastCiede2000(cropped, bins, classWeights);
-    const logp = tf.logSoftmax(CONFIDENCE_TEMPERATURE === 1 ? cropped : tf.div(cropped, CONFIDENCE_TEMPERATURE));
+      decoding === 'annealed-mean' ? annealedMeanTensor(scores, bins, temperature) : leastCiede2000(scores, bins, classWeights);
+    const logp = tf.logSoftmax(CONFIDENCE_TEMPERATURE === 1 ? scores : tf.div(scores, CONFIDENCE_TEMPERATURE));
     const entropy = tf.neg(tf.sum(tf.mul(tf.exp(logp), logp), -1));
     const confidence = tf.clipByValue(tf.sub(1, tf.div(entropy, Math.log(q))), 0, 1);
     return [colour, confidence];
