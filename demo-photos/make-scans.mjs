@@ -23,7 +23,8 @@ const SCANS = join(here, 'scans');
 const ORIGINAL_LONG_SIDE = 1600;
 
 /**
- * The album. `source` is the file name gather-photos.sh gives the photo; `tone` the print tone;
+ * The album. `source` is the file name gather-photos.sh gives the photo; `extract` the part of it used,
+ * where the file shows more than the photo (left, top, width, height in pixels); `tone` the print tone;
  * `black`/`white` where the faded print's darkest and lightest greys sit (0-1); `gamma` > 1 darkens
  * the mid-tones; `grain` the noise standard deviation in the mid-tones (0-1 scale); `blur` the
  * Gaussian sigma in pixels; `vignette` how much the corners darken; `out` jpeg (8-bit) or tiff16.
@@ -43,6 +44,10 @@ const ALBUM = [
     tone: 'none', black: 0.09, white: 0.9, gamma: 1.0, grain: 0.03, blur: 0.7, vignette: 0.2, seed: 606, out: 'tiff16', longSide: 1200 },
   { id: 'wrenfold-07-orchard-clocks', source: 'lomiri-wallpapers-16.04--seeding_by_Clements_Engelhardt.jpg',
     tone: 'sepia', black: 0.13, white: 0.86, gamma: 1.0, grain: 0.04, blur: 1.2, vignette: 0.3, seed: 707, out: 'jpeg' },
+  { id: 'wrenfold-08-ferry-couple', source: 'fotoxx-common--vignette2.jpg',
+    tone: 'warm', black: 0.06, white: 0.94, gamma: 1.0, grain: 0.02, blur: 0.4, vignette: 0, seed: 808, out: 'jpeg' },
+  { id: 'wrenfold-09-cousin-ada', source: 'fotoxx-common--denoise.jpg', extract: { left: 432, top: 306, width: 229, height: 263 },
+    tone: 'none', black: 0.07, white: 0.92, gamma: 1.0, grain: 0.025, blur: 0.4, vignette: 0.1, seed: 909, out: 'jpeg' },
 ];
 
 /**
@@ -110,7 +115,7 @@ async function makeOriginal(entry, fromDir) {
   if (!existsSync(src)) throw new Error(`${src} is missing; run models/gather-photos.sh --demo ${fromDir} first`);
   const out = join(ORIGINALS, `${entry.id}.jpg`);
   await writeAtomic(
-    sharp(src).rotate().resize(ORIGINAL_LONG_SIDE, ORIGINAL_LONG_SIDE, { fit: 'inside', withoutEnlargement: true })
+    (entry.extract ? sharp(src).rotate().extract(entry.extract) : sharp(src).rotate()).resize(ORIGINAL_LONG_SIDE, ORIGINAL_LONG_SIDE, { fit: 'inside', withoutEnlargement: true })
       .toColourspace('srgb').jpeg({ quality: 88, chromaSubsampling: '4:4:4' }),
     out,
   );

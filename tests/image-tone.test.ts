@@ -202,7 +202,8 @@ async function albumTone(folder: string, name: string): Promise<ReturnType<typeo
 describe('classifyTone on the demo album (demo-photos/SOURCES.md)', () => {
   const originals = [
     'wrenfold-01-hill-pasture.jpg', 'wrenfold-02-spaniels.jpg', 'wrenfold-03-new-calf.jpg', 'wrenfold-04-hill-pony.jpg',
-    'wrenfold-05-billy-goat.jpg', 'wrenfold-06-gosling.jpg', 'wrenfold-07-orchard-clocks.jpg',
+    'wrenfold-05-billy-goat.jpg', 'wrenfold-06-gosling.jpg', 'wrenfold-07-orchard-clocks.jpg', 'wrenfold-08-ferry-couple.jpg',
+    'wrenfold-09-cousin-ada.jpg',
   ];
   // 03 (a brown calf on beige ground) and 07 (dandelion clocks in evening light) are warm, one-hue colour
   // photographs that an earlier rule called sepia.
@@ -219,6 +220,8 @@ describe('classifyTone on the demo album (demo-photos/SOURCES.md)', () => {
     ['wrenfold-05-billy-goat.jpg', 'toned', 'cyanotype'],
     ['wrenfold-06-gosling.tif', 'grey', undefined],
     ['wrenfold-07-orchard-clocks.jpg', 'toned', 'sepia'],
+    ['wrenfold-08-ferry-couple.jpg', 'toned', 'sepia'],
+    ['wrenfold-09-cousin-ada.jpg', 'grey', undefined],
   ];
   it.each(scans)('scan %s is %s (%s)', async (name, kind, tint) => {
     for (const report of await albumTone('scans', name)) {

@@ -378,7 +378,7 @@ describe('the training photo list (models/photo-list.tsv)', () => {
       pkg: m[1]!,
       path: [...m[2]!.matchAll(/`([^`]+)`/g)].map((p) => p[1]).join('!'),
     }));
-    expect(demo).toHaveLength(7);
+    expect(demo).toHaveLength(9);
     for (const { pkg, path } of demo) {
       const listed = rows.filter((r) => r.package === pkg && r.path === path);
       expect(listed.map((r) => r.use), `${pkg} ${path}`).toEqual(['demo']);

@@ -8,7 +8,8 @@ import {
   bilateralGrid, bilateralUpsample, greyToLightness, lightnessToGrey, limitChroma, resizePlane, shrinkPlane, sliceRows,
   type BilateralGrid, type WorkingColour,
 } from '../colour/index.js';
-import { predict, type Decoding, type KinhueModel } from '../model/index.js';
+import { applySkinPrior, type SkinRecord } from '../hints/index.js';
+import { findFaces, predict, type Decoding, type FaceFinder, type KinhueModel } from '../model/index.js';
 
 export type { WorkingColour };
 
@@ -22,8 +23,16 @@ export interface ColouriseOptions {
   decoding?: Decoding;
   /** Annealed-mean temperature. Default: the model's. */
   temperature?: number;
-  /** Applied at the working size before upsampling. */
+  /** Finds faces for the skin prior; without it, no skin prior. */
+  faceFinder?: FaceFinder;
+  /** Applied at the working size before upsampling, after the skin prior (hints have the last word). */
   refine?: RefineStep;
+}
+
+/** The working colour and, when a face finder was given, what the skin prior did. */
+export interface WorkingResult {
+  work: WorkingColour;
+  skin?: SkinRecord;
 }
 
 /** Bilateral grid settings per stage: quarter -> working size, then working size -> full size (cells of 2). */
@@ -41,9 +50,10 @@ export function workingSize(width: number, height: number, workSize: number): { 
 }
 
 /**
- * Runs the model on working-size L* and brings its colour to the working size, edge-aware; then refines.
+ * Runs the model on working-size L* and brings its colour to the working size, edge-aware; then gives
+ * the faces found a skin hue (when a face finder is given) and refines.
  * @example
- *   const work = await workingColour(Lwork, 512, 384, model);
+ *   const { work } = await workingColour(Lwork, 512, 384, model);
  */
 export async function workingColour(
   L: Float32Array,
@@ -51,19 +61,22 @@ export async function workingColour(
   height: number,
   model: KinhueModel,
   options: ColouriseOptions = {},
-): Promise<WorkingColour> {
+): Promise<WorkingResult> {
   const p = await predict(model, L, width, height, { decoding: options.decoding, temperature: options.temperature });
   const guide = shrinkPlane(L, width, height, p.width, p.height);
-  const { a, b } = bilateralUpsample(guide, p.a, p.b, p.width, p.height, L, width, height, {
+  const predicted = bilateralUpsample(guide, p.a, p.b, p.width, p.height, L, width, height, {
     ...STAGE1,
     weights: p.confidence,
   });
+  const skin = options.faceFinder
+    ? applySkinPrior(L, predicted.a, predicted.b, width, height, findFaces(options.faceFinder, L, width, height))
+    : undefined;
   const work: WorkingColour = {
-    width, height, L, a, b,
+    width, height, L, a: skin?.a ?? predicted.a, b: skin?.b ?? predicted.b,
     confidence: p.confidence, confidenceWidth: p.width, confidenceHeight: p.height,
   };
   if (options.refine) await options.refine(work);
-  return work;
+  return skin ? { work, skin: skin.record } : { work };
 }
 
 /**
@@ -92,7 +105,7 @@ export async function colouriseLightness(
   // Shrink as restore does: average sRGB-encoded grey, not L* (see workingLab).
   const grey = lightnessToGrey(L, new Float32Array(L.length));
   const Lwork = greyToLightness(shrinkPlane(grey, width, height, ws.width, ws.height), 1);
-  const work = await workingColour(Lwork, ws.width, ws.height, model, options);
+  const { work } = await workingColour(Lwork, ws.width, ws.height, model, options);
   const a = new Float32Array(width * height);
   const b = new Float32Array(width * height);
   sliceRows(fullSizeGrid(work), L, width, height, 0, height, a, b);

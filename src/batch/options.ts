@@ -43,6 +43,8 @@ export interface RestoreOptions {
   hints?: string | false;
   /** A reference colour photograph, or a folder of them, for every scan (Welsh et al. 2002). */
   reference?: string;
+  /** Give the faces found a skin hue (the skin prior). Default true. */
+  skin?: boolean;
   /**
    * Restore only this part of the scans (see part.ts): parts of one run, started alike on many
    * machines, share the output folder and never write the same file.
@@ -76,6 +78,8 @@ export interface RestoreSettings {
   hints?: string | false;
   /** Absolute reference photo or folder, when given. */
   reference?: string;
+  /** False when the skin prior is off (absent when on, the default). */
+  skin?: false;
 }
 
 /**

@@ -12,7 +12,7 @@ import {
   classifyTone, decodeImage, encodeImage, estimateStatement, provenanceXmp, supports16Bit, writeFileAtomic, writeGreyMap,
   type BitDepth, type Pixels, type ToneReport,
 } from '../image/index.js';
-import type { BackboneRecord, KinhueModel } from '../model/index.js';
+import type { BackboneRecord, FaceFinder, KinhueModel } from '../model/index.js';
 import { prepareGuidance, type GuidanceRecord } from '../hints/index.js';
 import { VERSION } from '../version.js';
 import { fullSizeGrid, mean, workingColour, workingSize, type RefineStep } from './colourise.js';
@@ -84,6 +84,8 @@ export interface RestoreFileOptions {
   backend: string;
   /** Applied to the working-size colour before upsampling (hints, reference photos). */
   refine?: RefineStep;
+  /** Finds faces for the skin prior (absent when the run turned it off). */
+  faceFinder?: FaceFinder;
 }
 
 /** Rows per strip: about a million pixels, so strip buffers stay near 20 MB whatever the image size. */
@@ -134,11 +136,13 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
   const refine: RefineStep | undefined = options.refine || guidance.refine
     ? async (w) => { await options.refine?.(w); guidance.refine?.(w); }
     : undefined;
-  const work = await workingColour(Lwork, ws.width, ws.height, model, {
+  const { work, skin } = await workingColour(Lwork, ws.width, ws.height, model, {
     decoding: settings.decoding,
     temperature: settings.temperature,
+    faceFinder: options.faceFinder,
     refine,
   });
+  if (skin?.faces.length) warnings.push(`skin prior: ${skin.faces.length} face${skin.faces.length === 1 ? '' : 's'} given a skin hue; correct with a hints file if wrong`);
   if (guidance.record.hints?.ignored) warnings.push(`hints file not used: ${guidance.record.hints.ignored}`);
   for (const note of guidance.record.hints?.adjustments ?? []) warnings.push(`hint ${note}`);
   const notListed = guidance.record.hints?.adjustmentsNotListed;
@@ -185,6 +189,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
       meanConfidence: meanConfidence.toFixed(3),
       ...(settings.confidence ? { confidenceMap: baseName(outputs.confidence) } : {}),
       record: baseName(outputs.record),
+      ...(skin?.faces.length ? { skinPriorFaces: skin.faces.length } : {}),
     },
   });
   // A result is its image, confidence map and record together: when one cannot be written, the
@@ -244,7 +249,9 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
       total: 0,
     },
     warnings,
-    ...(guidance.record.hints || guidance.record.reference ? { guidance: guidance.record } : {}),
+    ...(guidance.record.hints || guidance.record.reference || skin?.faces.length
+      ? { guidance: { ...guidance.record, ...(skin?.faces.length ? { skin } : {}) } }
+      : {}),
   };
   record.timings.total = Math.round(performance.now() - t0);
   await writeFileAtomic(underFolder(job.outDir, outputs.record), `${JSON.stringify(record, null, 2)}\n`).catch(undo);

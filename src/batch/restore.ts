@@ -136,6 +136,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     confidence: options.confidence ?? true,
     ...(options.hints !== undefined ? { hints: options.hints === false ? false : resolve(options.hints) } : {}),
     ...(options.reference ? { reference: resolve(options.reference) } : {}),
+    ...(options.skin === false ? { skin: false as const } : {}),
   };
   // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.
   if (settings.reference) await cachedReference(settings.reference);

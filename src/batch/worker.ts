@@ -3,7 +3,7 @@
  * restores one file per message. Loaded from dist/ (built JavaScript) by the pool.
  */
 import { parentPort, workerData } from 'node:worker_threads';
-import { initBackend, loadModel, type KinhueModel } from '../model/index.js';
+import { initBackend, loadFaceFinder, loadModel, type FaceFinder, type KinhueModel } from '../model/index.js';
 import { restoreFile } from './restore-file.js';
 import { serialiseError, type FromWorker, type ToWorker, type WorkerInit } from './worker-protocol.js';
 
@@ -24,9 +24,15 @@ async function start(): Promise<void> {
     post({ type: 'init-failed', error: serialiseError(error) });
     return;
   }
+  // The face finder loads with the first scan that asks for the skin prior.
+  let faceFinder: Promise<FaceFinder> | undefined;
   port!.on('message', (message: ToWorker) => {
     if (message.type !== 'job') return;
-    restoreFile(message.job, model, { backend }).then(
+    const skin = message.job.settings.skin !== false;
+    if (skin) faceFinder ??= loadFaceFinder();
+    Promise.resolve(skin ? faceFinder : undefined)
+      .then((finder) => restoreFile(message.job, model, { backend, faceFinder: finder }))
+      .then(
       (outcome) => post({ type: 'done', id: message.id, outcome }),
       (error: unknown) => post({ type: 'failed', id: message.id, error: serialiseError(error) }),
     );

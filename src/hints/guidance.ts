@@ -13,6 +13,7 @@ import { parseHints, type Hints } from './hints-file.js';
 import { checkHintsSize, rasteriseHints } from './hint-raster.js';
 import { PREDICTION_EDGE_SCALE, propagateHints } from './propagate.js';
 import { loadReference, transferReference, type ReferenceSet } from './reference.js';
+import type { SkinRecord } from './skin-prior.js';
 
 export interface GuidanceOptions {
   /** Folder of hints files; searched before the scan's own folder. */
@@ -47,6 +48,8 @@ export interface GuidanceRecord {
     milliseconds?: number;
   };
   reference?: { files: string[]; samples: number; notes?: string[]; milliseconds?: number };
+  /** The skin prior, when it found faces (applied before hints, which override it). */
+  skin?: SkinRecord;
 }
 
 /** How many colour adjustments a record (and so the run's output) lists one by one; the rest are counted. */

@@ -8,4 +8,5 @@ export { MultigridSolver, type GridSystem, type SolveReport } from './multigrid.
 export * from './propagate.js';
 export * from './reference.js';
 export * from './guidance.js';
+export * from './skin-prior.js';
 export * from './starter.js';

@@ -14,4 +14,5 @@ export * from './predict.js';
 export * from './calibration.js';
 export * from './backbone.js';
 export * from './region-pooling.js';
+export * from './face-finder.js';
 export { readModelFiles, tidyModelFolder, type ModelFiles } from './folder.js';

@@ -14,7 +14,7 @@ import { colouriseLightness, discoverInputs } from '../batch/index.js';
 import { ErrorCodes, InputError, KinhueError, UsageError } from '../errors.js';
 import { InputGuard } from '../files/index.js';
 import { classifyTone, decodeImage, writeFileAtomic, type Pixels } from '../image/index.js';
-import { DEFAULT_MODEL_DIR, initBackend, loadModel, type KinhueModel } from '../model/index.js';
+import { DEFAULT_MODEL_DIR, initBackend, loadFaceFinder, loadModel, type KinhueModel } from '../model/index.js';
 import { VERSION } from '../version.js';
 import { labStatistics, reinhardTransfer, type LabStatistics } from './reinhard.js';
 import {
@@ -34,6 +34,8 @@ export interface ScoreOptions {
   workSize?: number;
   /** Annealed-mean temperature. Default: each model's own. */
   temperature?: number;
+  /** Give the faces found a skin hue, as restore does by default. Default true. */
+  skin?: boolean;
   /** Pixel limit per image; default the image module's. */
   maxPixels?: number;
   /**
@@ -163,6 +165,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
   const models: KinhueModel[] = [];
   try {
     for (const dir of dirs) models.push(await loadModel(dir));
+    const faceFinder = options.skin === false ? undefined : await loadFaceFinder();
     let pooled: LabStatistics | undefined;
     const needsPool = models.some((m) => m.meta.classWeights.length !== m.bins.count);
     if (needsPool) pooled = await pooledStatistics(files, options.maxPixels);
@@ -199,7 +202,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
           } else {
             const model = modelOf.get(method.id)!;
             const workSize = options.workSize ?? model.meta.workingSize;
-            const { a, b } = await colouriseLightness(lab.L, width, height, model, { workSize, temperature: options.temperature });
+            const { a, b } = await colouriseLightness(lab.L, width, height, model, { workSize, temperature: options.temperature, faceFinder });
             figures[method.id] = measure({ L: lab.L, a, b }, original);
           }
         }
@@ -219,7 +222,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     const notes = [
       "Each original's colour is taken out (its CIELAB L* kept, a* = b* = 0) and put back by each method; L* is never changed.",
       'Figures compare the 8-bit sRGB rendering of each result with the original rounded to 8 bits; averages count each photo once (PSNR averaged in dB).',
-      `Models run as restore runs them: at ${options.workSize ? `a working size of ${options.workSize} px` : "each model's own working size"} (long side), colour carried to full size edge-aware.`,
+      `Models run as restore runs them: at ${options.workSize ? `a working size of ${options.workSize} px` : "each model's own working size"} (long side), colour carried to full size edge-aware${options.skin === false ? ', without the skin prior' : ', faces found given a skin hue'}.`,
       `${HUE_FIGURES_NOTE} Averages of right hue and left grey skip photos with no clearly coloured pixel.`,
       'Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper\'s l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target\'s mean colour everywhere.',
       ...transfer.map((m) => `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`),

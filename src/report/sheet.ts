@@ -111,8 +111,22 @@ function provenanceRows(p: ProvenanceRecord): [string, string][] {
     ['made', `${p.created} by kinhue ${p.kinhue}`],
     ['statement', p.statement],
   ];
+  const skin = skinFact(p);
+  if (skin) rows.push(['skin prior', `${skin}; faces at ${p.guidance!.skin!.faces.map(faceWhere).join(', ')}`]);
   if (p.warnings.length) rows.push(['warnings', p.warnings.join('; ')]);
   return rows;
+}
+
+/** Where a face is, in words a reader can find on the picture: its box in percent from the top-left corner. */
+function faceWhere(f: { x: number; y: number; width: number; height: number }): string {
+  const pct = (v: number): string => `${Math.round(v * 100)}%`;
+  return `${pct(f.x)} across, ${pct(f.y)} down (${pct(f.width)} x ${pct(f.height)})`;
+}
+
+/** How many faces were given a skin hue, or undefined when none (older records have no skin field). */
+function skinFact(p: ProvenanceRecord): string | undefined {
+  const n = p.guidance?.skin?.faces.length ?? 0;
+  return n ? `${n} face${n === 1 ? '' : 's'} given a skin hue (a guess: check, correct with hints)` : undefined;
 }
 
 /** The facts worth seeing without opening the record. */
@@ -123,6 +137,7 @@ function keyFactsOf(p: ProvenanceRecord): [string, string][] {
     ['tone', p.tone.kind === 'toned' ? `toned (${p.tone.name ?? 'tint'}), tint removed` : p.tone.kind],
     ['result', `${p.result.format.toUpperCase()}, ${p.result.bitDepth}-bit`],
     ['time', `${(p.timings.total / 1000).toFixed(1)} s`],
+    ...(skinFact(p) ? [['skin prior', skinFact(p)!] as [string, string]] : []),
   ];
 }
 

@@ -31,6 +31,7 @@ export interface RestoreArgs {
   json: boolean;
   hints?: string | false;
   reference?: string;
+  skin: boolean;
   part?: string;
   'part-from'?: Scheduler;
   'part-count'?: number;
@@ -112,6 +113,7 @@ export const command: CommandModule<object, RestoreArgs> = {
       .option('json', { type: 'boolean', default: false, describe: 'print a machine-readable summary on stdout' })
       .option('hints', { type: 'string', describe: 'folder of <name>.hints.json colour hints (they are also found beside each scan; --no-hints to use none); make one with kinhue hints <scan>' })
       .option('reference', { type: 'string', describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from' })
+      .option('skin', { type: 'boolean', default: true, describe: 'give the faces found a skin hue at the scan\'s own lightness (a guess: check it, correct it with hints); --no-skin to leave faces to the model' })
       .option('part', { type: 'string', describe: 'restore part K of N (K/N) of the scans, a share picked by a hash of each output name; the N parts, on as many machines, share one --out folder' })
       .option('part-from', {
         type: 'string', choices: SCHEDULERS as unknown as string[],
@@ -189,6 +191,7 @@ export const command: CommandModule<object, RestoreArgs> = {
           dryRun: argv['dry-run'],
           hints: argv.hints,
           reference: argv.reference,
+          skin: argv.skin,
           part,
           signal: soft.signal,
           hardSignal: hard.signal,

@@ -18,6 +18,7 @@ export interface ScoreArgs {
   out?: string;
   json: boolean;
   'work-size'?: number;
+  skin: boolean;
 }
 
 /**
@@ -50,6 +51,7 @@ export const command: CommandModule<object, ScoreArgs> = {
       .option('out', { type: 'string', describe: `folder to write kinhue-score.csv and kinhue-score.json into` })
       .option('json', { type: 'boolean', default: false, describe: 'print the report as JSON instead of a table' })
       .option('work-size', { type: 'number', describe: 'long side in pixels at which the model runs (as for restore)' })
+      .option('skin', { type: 'boolean', default: true, describe: 'give the faces found a skin hue, as restore does; --no-skin to score the model alone' })
       .example(EXAMPLE, 'compare the shipped model with a tuned one on the demo originals')
       .example('kinhue score originals/ --out scores/ --json', 'write CSV and JSON, and print JSON') as unknown as Argv<ScoreArgs>)
       .check((argv) => check(argv as Partial<ScoreArgs>)),
@@ -58,7 +60,7 @@ export const command: CommandModule<object, ScoreArgs> = {
     const onEvent = (event: ScoreEvent): void => {
       if (event.type === 'photo') progress.update(event.done / event.total, `scoring ${event.done}/${event.total}  ${event.file}`, event.done === event.total);
     };
-    const report = await score({ photos: argv.photos, models: argv.model, workSize: argv['work-size'], out: argv.out, onEvent });
+    const report = await score({ photos: argv.photos, models: argv.model, workSize: argv['work-size'], skin: argv.skin, out: argv.out, onEvent });
     progress.done();
     if (argv.out) {
       const files = await writeScoreFiles(report, argv.out);
