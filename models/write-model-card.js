@@ -52,10 +52,23 @@ for (const [n, s] of list.slice(1).map((l) => l.split('\t')).filter((c) => c[col
 const trained = [...bySubject.values()].reduce((s, v) => s + v, 0);
 
 await kinhue.initBackend();
-const scoreOf = async (photos) =>
-  photos.length ? kinhue.score({ photos, models: [modelDir] }) : null;
+const faceFinder = await kinhue.loadFaceFinder();
+const scoreOf = async (photos, skin = true) =>
+  photos.length ? kinhue.score({ photos, models: [modelDir], skin }) : null;
 const heldOutReport = await scoreOf(holdout);
 const demoReport = await scoreOf([demo]);
+
+// Photos with people (a face the skin prior's detector finds), held out or in the demo album: the model
+// alone against the model with the skin prior.
+async function hasFace(file) {
+  const { data, info } = await sharp(file).rotate().resize(512, 512, { fit: 'inside' }).removeAlpha().raw().toBuffer({ resolveWithObject: true });
+  return kinhue.findFaces(faceFinder, kinhue.srgbToLab(new Uint8Array(data), 3).L, info.width, info.height).length > 0;
+}
+const demoFiles = (await kinhue.discoverInputs([demo], join(root, '.data', 'no-output'))).files.map((x) => x.path);
+const people = [];
+for (const file of [...holdout, ...demoFiles]) if (await hasFace(file)) people.push(file);
+const peopleAlone = await scoreOf(people, false);
+const peopleSkin = await scoreOf(people);
 
 // A sheet of held-out results: grey | this model | original, each 256 px high.
 const SHEET_ROW = 256;
@@ -66,7 +79,7 @@ async function writeSheet(files) {
   for (const file of files) {
     const { data, info } = await sharp(file).rotate().resize({ height: SHEET_ROW }).removeAlpha().raw().toBuffer({ resolveWithObject: true });
     const lab = kinhue.srgbToLab(new Uint8Array(data), 3);
-    const { a, b } = await kinhue.colouriseLightness(lab.L, info.width, info.height, model, { workSize: model.meta.workingSize });
+    const { a, b } = await kinhue.colouriseLightness(lab.L, info.width, info.height, model, { workSize: model.meta.workingSize, faceFinder });
     const n = info.width * info.height;
     const grey = kinhue.labToSrgb({ L: lab.L, a: new Float32Array(n), b: new Float32Array(n) }, new Uint8Array(n * 3), 3);
     const result = kinhue.labToSrgb({ L: lab.L, a, b }, new Uint8Array(n * 3), 3);
@@ -87,12 +100,11 @@ if (sheetFiles.length) await writeSheet(sheetFiles);
 
 const f = (x, d = 2) => (Number.isFinite(x) ? x.toFixed(d) : '-');
 const pct = (x) => (x === null || x === undefined ? '-' : `${x.toFixed(1)}%`);
-function table(report) {
+const row = (label, g) => `| ${label} | ${f(g.ciede2000)} | ${f(g.psnr)} | ${f(g.colourfulness, 1)} | ${pct(g.rightHue)} | ${pct(g.falseColour)} | ${pct(g.leftGrey)} |`;
+function table(report, extra = []) {
   if (!report?.average) return '(no photos to measure)';
-  const rows = report.methods.map((m) => {
-    const g = report.average.figures[m.id];
-    return `| ${m.kind === 'model' ? `**${m.label}**` : m.label} | ${f(g.ciede2000)} | ${f(g.psnr)} | ${f(g.colourfulness, 1)} | ${pct(g.rightHue)} | ${pct(g.falseColour)} | ${pct(g.leftGrey)} |`;
-  });
+  const rows = report.methods.map((m) => row(m.kind === 'model' ? `**${m.label}**` : m.label, report.average.figures[m.id]));
+  rows.push(...extra);
   return [
     `| ${report.average.photos} photos | mean CIEDE2000 | PSNR, dB | colourfulness (originals ${f(report.average.originalColourfulness, 1)}) | right hue | false colour | left grey |`,
     '| --- | ---: | ---: | ---: | ---: | ---: | ---: |',
@@ -172,6 +184,9 @@ original's clearly coloured pixels (C*ab >= 15), the share given a hue within 30
 false colour: of all pixels, the share given C*ab >= 15 where the original is near-neutral or 60 degrees off;
 left grey: of the clearly coloured pixels, the share left below C*ab 8.
 
+Models run as restore runs them by default: faces the detector finds get the skin prior (README, "The
+skin prior"; the section below measures it apart).
+
 Held-out photos (never learnt from):
 
 ${table(heldOutReport)}
@@ -190,11 +205,17 @@ ${[...goals(heldOutReport, 'held out'), ...goals(demoReport, 'demo album')].join
 
 \`held-out-sheet.png\` beside this card shows ${sheetFiles.length} held-out photos: grey | this model | original.
 
+## People: the model alone and with the skin prior
+Photos among those above in which the skin prior's face detector finds a face (${people.map((p) => `\`${basename(p)}\``).join(', ') || 'none'}):
+
+${table(peopleSkin, figuresOf(peopleAlone) ? [row('model alone (\`--no-skin\`)', figuresOf(peopleAlone).model)] : [])}
+
 ## Limits
 - It learnt colour from ${summary.photos.train} photographs with few people, faces, rooms, clothes or vehicles and almost no
   historical scenes, which are what family archives hold. The detector it reads knows such things by shape,
-  but the colours it learnt for them rest on few examples: expect generic or wrong colour there, on skin most
-  of all, where a wrong guess can misrepresent who a person was. Correct it with hints.
+  but the colours it learnt for them rest on few examples: expect generic or wrong colour there. Skin is where
+  a wrong guess can misrepresent who a person was: faces the detector finds get one skin hue (the skin prior,
+  the same for everyone), hands and small faces do not. Check every person; correct them with hints.
 - Tune it on your own colour photographs (\`kinhue tune\`) for colours that fit your archive.
 - It cannot know the true colour of anything. Treat every result as an interpretation.
 
