@@ -123,7 +123,7 @@ describe('kinhue train on the command line', () => {
     const stderr = vi.spyOn(process.stderr, 'write').mockImplementation(() => true);
     try {
       process.exitCode = undefined;
-      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32', '--eval-every', '1', '--keep-checkpoint']);
+      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32', '--eval-every', '1', '--keep-checkpoint', '--no-backbone', '--workers', '1']);
       expect(process.exitCode ?? 0).toBe(0);
       const first = printed.join('\n');
       expect(first).toMatch(/trained 2 steps \(4 crops\)/);
@@ -133,7 +133,7 @@ describe('kinhue train on the command line', () => {
       expect(first).toMatch(/model card: .*MODEL_CARD\.md, measured as restore colours on the 2 held-out photos:\n {2}model model: /);
 
       // Reusing the folder: the one-line reason, without the whole help before it.
-      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32']);
+      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32', '--no-backbone']);
       expect(process.exitCode).toBe(2);
       const refused = error.mock.calls.flat().join('\n');
       expect(refused).toMatch(/^kinhue: .* holds an unfinished or finished training run .*\n {2}next step: add --resume/);
@@ -161,7 +161,7 @@ describe('kinhue train on the command line', () => {
       // A run whose checkpoint was kept, resumed within its spent budget: nothing to do, and said once.
       const kept = join(dir, 'kept');
       process.exitCode = undefined;
-      await main(['train', photos, '--out', kept, '--steps', '1', '--batch', '2', '--crop', '32', '--keep-checkpoint']);
+      await main(['train', photos, '--out', kept, '--steps', '1', '--batch', '2', '--crop', '32', '--keep-checkpoint', '--no-backbone', '--workers', '1']);
       error.mockClear();
       printed.length = 0;
       await main(['train', photos, '--out', kept, '--steps', '1', '--resume']);
@@ -175,7 +175,7 @@ describe('kinhue train on the command line', () => {
       process.exitCode = undefined;
       await rm(dir, { recursive: true, force: true });
     }
-  });
+  }, 300_000);
 });
 
 describe('stopping train and tune', () => {
