@@ -20,6 +20,8 @@ const readJson = async (file, fallback) => JSON.parse(await readFile(file, 'utf8
 const summary = await readJson(join(modelDir, 'training-summary.json'), null);
 const meta = await readJson(join(modelDir, 'kinhue-model.json'), {});
 if (!summary) throw new Error(`${rel} has no training-summary.json: write a card for a folder that kinhue train or tune wrote`);
+// A tuned model's card is written by kinhue tune itself (src/cli/model-card.ts), measured on its own held-out photos.
+if (summary.mode === 'tune') throw new Error(`${rel} is a tuned model: kinhue tune wrote its MODEL_CARD.md; this script writes the shipped model's`);
 const log = (await readFile(join(modelDir, 'training-log.jsonl'), 'utf8').catch(() => ''))
   .split('\n')
   .filter((l) => l.trim())

@@ -65,9 +65,15 @@ export class KinhueError extends Error {
 
 /** The command line itself is wrong. Exit code 2. */
 export class UsageError extends KinhueError {
-  constructor(message: string, hint?: string) {
+  /**
+   * False when the command line is well formed but asks for something the folders on disk refuse
+   * (an output folder already in use): the command's help would not help, so only the reason is printed.
+   */
+  readonly aboutCommandLine: boolean;
+  constructor(message: string, hint?: string, options: { aboutCommandLine?: boolean } = {}) {
     super(ErrorCodes.USAGE, message, { hint });
     this.name = 'UsageError';
+    this.aboutCommandLine = options.aboutCommandLine ?? true;
   }
 }
 

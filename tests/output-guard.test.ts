@@ -27,8 +27,8 @@ beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'kinhue-guard-'));
   photos = join(root, 'photos');
   await mkdir(photos);
-  // Four small colour photos (a training run needs four): two-colour halves, each pair of colours its own.
-  const pairs = [['#c03020', '#2060c0'], ['#30a040', '#e0c020'], ['#8040a0', '#40c0c0'], ['#d07030', '#3050a0']];
+  // Six small colour photos (a training run needs six): two-colour halves, each pair of colours its own.
+  const pairs = [['#c03020', '#2060c0'], ['#30a040', '#e0c020'], ['#8040a0', '#40c0c0'], ['#d07030', '#3050a0'], ['#a03060', '#60b030'], ['#2080a0', '#c09040']];
   for (const [i, [left, right]] of pairs.entries()) {
     const half = (colour: string) => sharp({ create: { width: 24, height: 48, channels: 3, background: colour } }).png().toBuffer();
     await sharp({ create: { width: 48, height: 48, channels: 3, background: '#000000' } })
@@ -102,6 +102,8 @@ describe('commands that write beside their inputs', () => {
     // A file in the model folder that is a photo (a hard link) would be replaced with the folder.
     const out = join(root, 'model-out');
     await cp(base, out, { recursive: true });
+    // (A folder that holds a whole model is refused before the photos are read: leave its files loose.)
+    await rm(join(out, 'kinhue-model.json'));
     await rm(join(out, 'weights.bin'));
     await link(join(photos, 'c3.png'), join(out, 'weights.bin'));
     await expect(fit({ photos: [photos], out, mode: 'train', ...tiny })).rejects.toBeInstanceOf(OutputOnInputError);

@@ -23,7 +23,7 @@ function stopped(args: string[], signal: NodeJS.Signals): Promise<{ code: number
     child.stdout.on('data', (chunk: Buffer) => (stdout += chunk.toString()));
     child.stderr.on('data', (chunk: Buffer) => {
       stderr += chunk.toString();
-      if (!sent && /held-out CIEDE2000: grey/.test(stderr)) {
+      if (!sent && /at start, on the \d+ validation photos/.test(stderr)) {
         sent = true;
         child.kill(signal);
       }
@@ -73,6 +73,9 @@ describe('train and tune command lines', () => {
       [{ workers: 0 }, /--workers/],
       [{ workers: 1.5 }, /--workers/],
       [{ workers: 17 }, /--workers 17 is more than the 16 crops/],
+      [{ validation: 0 }, /--validation must be a fraction above 0/],
+      [{ patience: -1 }, /--patience must be a whole number of 0 or more/],
+      [{ steps: Number.NaN }, /--steps must be a whole number of at least 1, got NaN/],
     ];
     for (const [change, message] of cases) {
       const error = usage(() => checkTrain({ ...ok, ...change } as never));
@@ -120,20 +123,51 @@ describe('kinhue train on the command line', () => {
     const stderr = vi.spyOn(process.stderr, 'write').mockImplementation(() => true);
     try {
       process.exitCode = undefined;
-      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32', '--eval-every', '1']);
+      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32', '--eval-every', '1', '--keep-checkpoint', '--no-backbone', '--workers', '1']);
       expect(process.exitCode ?? 0).toBe(0);
-      expect(printed.join('\n')).toMatch(/trained 2 steps \(4 crops\)/);
-      expect(printed.join('\n')).toMatch(/grey \(L\* only\)/);
-      expect(printed.join('\n')).toMatch(/CIEDE2000  PSNR \(dB\)  colourfulness  right hue  false colour  left grey\n {2}grey \(L\* only\)[ \d.]+0\.0%\s+0\.0%\s+100\.0%\n/);
+      const first = printed.join('\n');
+      expect(first).toMatch(/trained 2 steps \(4 crops\)/);
+      // The originals' colourfulness heads the held-out table, for reading the results' against.
+      expect(first).toMatch(/CIEDE2000  PSNR \(dB\)  colourfulness  right hue  false colour  left grey\n {2}originals {20,}\d+\.\d\n {2}grey \(L\* only\)[ \d.]+0\.0%\s+0\.0%\s+100\.0%\n/);
+      expect(first).toMatch(/checkpoint kept \(--keep-checkpoint\)/);
+      expect(first).toMatch(/model card: .*MODEL_CARD\.md, measured as restore colours on the 2 held-out photos:\n {2}model model: /);
 
-      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32']);
+      // Reusing the folder: the one-line reason, without the whole help before it.
+      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32', '--no-backbone']);
       expect(process.exitCode).toBe(2);
-      expect(error.mock.calls.flat().join('\n')).toMatch(/--resume/);
+      const refused = error.mock.calls.flat().join('\n');
+      expect(refused).toMatch(/^kinhue: .* holds an unfinished or finished training run .*\n {2}next step: add --resume/);
+      expect(refused).not.toMatch(/--checkpoint-minutes/);
 
       process.exitCode = undefined;
+      printed.length = 0;
       await main(['train', photos, '--out', out, '--steps', '3', '--resume']);
       expect(process.exitCode ?? 0).toBe(0);
       expect((await readTrainingLog(out)).map((e) => e.step)).toEqual([1, 2, 3]);
+      // Finished without --keep-checkpoint: the checkpoint goes, the model card stays.
+      expect((await readdir(out)).sort()).toEqual(['MODEL_CARD.md', 'kinhue-model.json', 'model.json', 'training-log.jsonl', 'training-summary.json', 'weights.bin']);
+
+      // Resuming a finished run says so, and what to do instead; it evaluates nothing.
+      error.mockClear();
+      printed.length = 0;
+      await main(['train', photos, '--out', out, '--steps', '3', '--resume']);
+      expect(process.exitCode).toBe(2);
+      expect(error.mock.calls.flat().join('\n')).toMatch(/has finished and its checkpoint was removed[^]*next step: tune that model further with --from/);
+      expect(printed.join('\n')).not.toMatch(/loss 0\.000/);
+      error.mockClear();
+      await main(['train', photos, '--out', out, '--steps', '3']);
+      expect(error.mock.calls.flat().join('\n')).toMatch(/already holds a model/);
+
+      // A run whose checkpoint was kept, resumed within its spent budget: nothing to do, and said once.
+      const kept = join(dir, 'kept');
+      process.exitCode = undefined;
+      await main(['train', photos, '--out', kept, '--steps', '1', '--batch', '2', '--crop', '32', '--keep-checkpoint', '--no-backbone', '--workers', '1']);
+      error.mockClear();
+      printed.length = 0;
+      await main(['train', photos, '--out', kept, '--steps', '1', '--resume']);
+      expect(process.exitCode).toBe(2);
+      expect(error.mock.calls.flat().join('\n')).toMatch(/already reached its budget \(--steps 1\) at step 1; nothing to do\n {2}next step: give a larger --steps or --hours/);
+      expect(printed.join('\n')).not.toMatch(/loss 0\.000/);
     } finally {
       log.mockRestore();
       error.mockRestore();
@@ -141,7 +175,7 @@ describe('kinhue train on the command line', () => {
       process.exitCode = undefined;
       await rm(dir, { recursive: true, force: true });
     }
-  });
+  }, 300_000);
 });
 
 describe('stopping train and tune', () => {

@@ -23,6 +23,7 @@ import {
 } from '../src/training/index.js';
 
 const toLab = converter('lab65');
+const toRgb = converter('rgb');
 
 let dir: string;
 beforeAll(async () => {
@@ -156,6 +157,18 @@ describe('photo sets', () => {
     // The same seed gives the same split.
     const again = await loadPhotoSet([photos], { maxSide: 40, seed: 1, holdout: 0.1 });
     expect(again.holdout.map((p) => p.file)).toEqual(set.holdout.map((p) => p.file));
+    // Names say where a photo lies below the folder given, not where that folder is on this machine.
+    expect(set.train.concat(set.holdout).map((p) => p.name).sort()).toEqual(['mixed/c0.png', 'mixed/c1.png', 'mixed/c2.png', 'mixed/scan0007', 'mixed/sub/c3.png', 'mixed/sub/c4.png']);
+
+    // A validation split comes out of the photos left to learn from: the held-out photos stay those
+    // of a run without one, so a run from before the split resumes with the same photos.
+    const validated = await loadPhotoSet([photos], { maxSide: 40, seed: 1, holdout: 0.1, validation: 0.1 });
+    expect(validated.holdout.map((p) => p.file)).toEqual(set.holdout.map((p) => p.file));
+    expect(validated.validation.length).toBe(2);
+    expect(validated.train.length).toBe(2);
+    const all = [...validated.train, ...validated.validation, ...validated.holdout].map((p) => p.file);
+    expect(new Set(all).size).toBe(6);
+    expect(set.validation).toEqual([]);
   });
 
   it('keeps colours as CIELAB matching an independent library (culori, lab65) within 0.05', async () => {
@@ -181,9 +194,9 @@ describe('photo sets', () => {
     const fs = await import('node:fs/promises');
     const empty = join(dir, 'empty');
     await fs.mkdir(empty, { recursive: true });
-    const code = async (paths: string[]): Promise<KinhueError> => {
+    const code = async (paths: string[], validation?: number): Promise<KinhueError> => {
       try {
-        await loadPhotoSet(paths, { maxSide: 32, seed: 1 });
+        await loadPhotoSet(paths, { maxSide: 32, seed: 1, validation });
       } catch (error) {
         expect(error).toBeInstanceOf(KinhueError);
         return error as KinhueError;
@@ -206,10 +219,13 @@ describe('photo sets', () => {
 
     const few = join(dir, 'few');
     await fs.mkdir(few, { recursive: true });
-    for (let i = 0; i < 3; i++) await png(join(few, `c${i}.png`), 80, 60, scene(i));
-    const e3 = await code([few]);
+    for (let i = 0; i < 5; i++) await png(join(few, `c${i}.png`), 80, 60, scene(i));
+    const e3 = await code([few], 0.1);
     expect(e3.code).toBe('KH_BAD_DATA');
-    expect(e3.message).toMatch(/too few colour photos to train on: 3 colour photos usable/);
+    // Two held out, two for validation, two to learn from.
+    expect(e3.message).toMatch(/too few colour photos to train on: 5 colour photos usable; at least 6 are needed/);
+    // Without a validation split (runs from before it), four do.
+    await expect(loadPhotoSet([few], { maxSide: 32, seed: 1 })).resolves.toMatchObject({ validation: [] });
   });
 
   it('splits at least 2 held out and 2 to train, about the fraction asked', () => {
@@ -233,7 +249,7 @@ function rampPhoto(file: string, w: number, h: number): Photo {
       b[y * w + x] = y;
     }
   }
-  return { file, width: w, height: h, L, a, b };
+  return { file, name: file, width: w, height: h, L, a, b };
 }
 
 describe('crop sampling', () => {
@@ -301,7 +317,7 @@ describe('held-out evaluation', () => {
   it('scores the grey baseline as the CIEDE2000 of removing the colour (culori as reference)', async () => {
     const w = 8;
     const h = 8;
-    const photo: Photo = { file: 'flat', width: w, height: h, L: new Float32Array(w * h).fill(55), a: new Float32Array(w * h).fill(30), b: new Float32Array(w * h).fill(-20) };
+    const photo: Photo = { file: 'flat', name: 'flat', width: w, height: h, L: new Float32Array(w * h).fill(55), a: new Float32Array(w * h).fill(30), b: new Float32Array(w * h).fill(-20) };
     const grey = await evaluatePhotos([photo]);
     const reference = differenceCiede2000()({ mode: 'lab65', l: 55, a: 30, b: -20 }, { mode: 'lab65', l: 55, a: 0, b: 0 });
     expect(grey.ciede2000).toBeCloseTo(reference, 4);
@@ -312,13 +328,21 @@ describe('held-out evaluation', () => {
     expect(perfect.ciede2000).toBeLessThan(1e-3);
     expect(perfect.psnr).toBe(100);
     expect(perfect.psnr).toBeGreaterThan(grey.psnr);
+    // The originals' colourfulness beside the results': for one flat colour the spread terms of Hasler &
+    // Suesstrunk 2003 are 0, leaving 0.3 * sqrt(mean(rg)^2 + mean(yb)^2), rg = R - G, yb = (R + G) / 2 - B
+    // on 0-255 values (sRGB from culori; within 0.5 for the 8-bit rounding).
+    const rgb = toRgb({ mode: 'lab65', l: 55, a: 30, b: -20 });
+    const [R, G, B] = [rgb.r * 255, rgb.g * 255, rgb.b * 255];
+    const expected = 0.3 * Math.hypot(R - G, (R + G) / 2 - B);
+    expect(Math.abs(grey.originalColourfulness! - expected)).toBeLessThan(0.5);
+    expect(perfect.originalColourfulness).toBe(grey.originalColourfulness);
   });
 
   it('gives the hue figures, averaging right hue and left grey over the photos that have clearly coloured pixels', async () => {
     // Two flat photos (our own): one of a* 30, b* -20 (C* 36, clearly coloured), one neutral (no clearly coloured pixel).
     const w = 8, h = 8, n = w * h;
     const flat = (file: string, L: number, a: number, b: number): Photo =>
-      ({ file, width: w, height: h, L: new Float32Array(n).fill(L), a: new Float32Array(n).fill(a), b: new Float32Array(n).fill(b) });
+      ({ file, name: file, width: w, height: h, L: new Float32Array(n).fill(L), a: new Float32Array(n).fill(a), b: new Float32Array(n).fill(b) });
     const photos = [flat('coloured', 55, 30, -20), flat('neutral', 70, 0, 0)];
     const everywhere = (a: number, b: number) => () => ({ a: new Float32Array(n).fill(a), b: new Float32Array(n).fill(b), width: w, height: h });
     // Grey by construction: right hue 0 and left grey 100 on the coloured photo, no false colour anywhere.

@@ -14,6 +14,7 @@ import {
   fit,
   loadCheckpoint,
   loadPhotoSet,
+  MIN_IMPROVEMENT,
   readTrainingLog,
   saveCheckpoint,
   type FitEvent,
@@ -22,8 +23,9 @@ import {
 
 // Small enough for CI: a narrow network, 32-pixel crops, 2 crops a step (common practice for tests).
 // L* alone unless a test says otherwise: the backbone costs a detector pass per photo. One thread
-// unless a test says otherwise (the default follows the machine's cores).
-const TINY = { batch: 2, crop: 32, photoSize: 64, network: { width: 4 }, evalEvery: 2, checkpointMinutes: 60, backbone: false, workers: 1 } satisfies Partial<FitOptions>;
+// unless a test says otherwise (the default follows the machine's cores). The checkpoint stays in finished
+// folders, for the tests that compare or resume them.
+const TINY = { batch: 2, crop: 32, photoSize: 64, network: { width: 4 }, evalEvery: 2, checkpointMinutes: 60, backbone: false, workers: 1, keepCheckpoint: true } satisfies Partial<FitOptions>;
 
 let dir: string;
 beforeAll(async () => {
@@ -73,7 +75,7 @@ async function weightsOf(out: string): Promise<{ weights: Float32Array[]; traine
 describe('fit: resume', () => {
   it('a network reading the backbone resumes bit for bit too, and its folder loads with the backbone', async () => {
     const photos = join(dir, 'scenes-backbone');
-    await writeScenes(photos, 4, 13);
+    await writeScenes(photos, 6, 13);
     const base = { ...TINY, backbone: DEFAULT_MODEL_DIR, photos: [photos], seed: 4, learningRate: 3e-3 };
     await fit({ ...base, out: join(dir, 'bb-whole'), steps: 4 });
     await fit({ ...base, out: join(dir, 'bb-split'), steps: 2 });
@@ -90,7 +92,7 @@ describe('fit: resume', () => {
 
   it('an interrupted and resumed run reaches the same weights as an uninterrupted one, bit for bit', async () => {
     const photos = join(dir, 'scenes');
-    await writeScenes(photos, 6, 11);
+    await writeScenes(photos, 8, 11);
     const base = { ...TINY, photos: [photos], seed: 3, learningRate: 3e-3 };
 
     const whole = await fit({ ...base, out: join(dir, 'whole'), steps: 6 });
@@ -100,6 +102,7 @@ describe('fit: resume', () => {
     // Interrupted by its step budget after 3 steps, then resumed to 6.
     const first = await fit({ ...base, out: join(dir, 'split'), steps: 3 });
     expect(first.steps).toBe(3);
+    const midway = await weightsOf(join(dir, 'split'));
     const resumed = await fit({ ...base, out: join(dir, 'split'), steps: 6, resume: true });
     expect(resumed.steps).toBe(6);
 
@@ -120,8 +123,8 @@ describe('fit: resume', () => {
       b.weights.forEach((w, i) => expect(Buffer.from(w.buffer).equals(Buffer.from(a.weights[i]!.buffer))).toBe(true));
       b.trainer.moments.forEach((m, i) => expect(Buffer.from(m.v.buffer).equals(Buffer.from(a.trainer.moments[i]!.v.buffer))).toBe(true));
     }
-    // The weights did change from the start (so the comparison means something).
-    expect(whole.heldOut.after.ciede2000).not.toBe(whole.heldOut.before.ciede2000);
+    // The weights did change after step 3 (so the comparison means something).
+    expect(a.weights.some((w, i) => !Buffer.from(w.buffer).equals(Buffer.from(midway.weights[i]!.buffer)))).toBe(true);
 
     // The log has one line per evaluation (steps 2, 4, 6), also after a resume (no duplicates).
     const log = await readTrainingLog(join(dir, 'whole'));
@@ -279,10 +282,14 @@ describe('fit: tune', () => {
     expect(result.options.workers).toBe(2);
     expect(result.heldOut.after.ciede2000).toBeLessThan(result.heldOut.before.ciede2000 - 2);
 
-    // The model kept is the best evaluation, not the last, and evaluates to the reported figure.
+    // The model kept is the best evaluation on the validation photos (the first within MIN_IMPROVEMENT
+    // of the lowest), and its held-out figure is that of the model in the folder.
     const log = await readTrainingLog(out);
-    expect(result.heldOut.after.ciede2000).toBe(Math.min(...log.map((e) => e.ciede2000)));
-    const set = await loadPhotoSet([castPhotos], { maxSide: TINY.photoSize, holdout: 0.25, seed: 2 });
+    const lowest = Math.min(...log.map((e) => e.ciede2000));
+    expect(result.validation.best.ciede2000).toBeLessThanOrEqual(lowest + MIN_IMPROVEMENT);
+    expect(result.heldOut.keptStep).toBe(log.filter((e) => e.best).at(-1)!.step);
+    const set = await loadPhotoSet([castPhotos], { maxSide: TINY.photoSize, holdout: 0.25, validation: 0.1, seed: 2 });
+    for (const e of log) expect(e.photos).toBe(set.validation.length);
     const model = await loadModel(out);
     const again = await evaluatePhotos(set.holdout, (L, w, h) => predict(model, L, w, h));
     expect(again.ciede2000).toBeCloseTo(result.heldOut.after.ciede2000, 4);
@@ -292,5 +299,93 @@ describe('fit: tune', () => {
     for (const layer of encoderLayerNames(model.network)) expect(weightOf(model, layer)).toEqual(weightOf(original, layer));
     expect(weightOf(model, 'logits')).not.toEqual(weightOf(original, 'logits'));
     original.network.dispose();
+  });
+});
+
+describe('fit: honest tuning', () => {
+  /** A small base model trained with a rebalancing other than the default, so inheriting it shows. */
+  async function baseModel(): Promise<string> {
+    const natural = join(dir, 'honest-natural');
+    await writeScenes(natural, 6, 41);
+    const base = join(dir, 'honest-base');
+    await fit({ ...TINY, photos: [natural], out: base, steps: 4, learningRate: 3e-3, seed: 1, rebalance: 0.9 });
+    return base;
+  }
+
+  it('a tuned model keeps its base\'s class weights and decoding: with weights that barely move, its held-out figures do not move', async () => {
+    const base = await baseModel();
+    const photos = join(dir, 'honest-cast');
+    await writeScenes(photos, 10, 43, (a, b) => [45 + 0.5 * a, 40 + 0.5 * b]);
+    const out = join(dir, 'honest-tuned');
+    const events: FitEvent[] = [];
+    const result = await fit(
+      { ...TINY, keepCheckpoint: false, photos: [photos], out, mode: 'tune', from: base, steps: 50, evalEvery: 1, patience: 2, learningRate: 1e-12 },
+      (e) => events.push(e),
+    );
+    const start = await loadModel(base);
+    const tuned = await loadModel(out);
+    expect(tuned.classWeights).toEqual(start.classWeights);
+    expect(tuned.meta.decoding).toBe(start.meta.decoding);
+    expect(result.options.rebalance).toBe(0.9);
+    expect(result.options.classWeightsFrom).toBe('base');
+    // Before and after decode alike: a learning rate of 1e-12 leaves the figures where they were.
+    expect(Math.abs(result.heldOut.after.ciede2000 - result.heldOut.before.ciede2000)).toBeLessThan(1e-4);
+    expect(Math.abs(result.heldOut.after.colourfulness - result.heldOut.before.colourfulness)).toBeLessThan(1e-3);
+
+    // Early stopping: two evaluations without improvement since the start, and it says so.
+    expect(result.stoppedBy).toBe('no-improvement');
+    expect(result.steps).toBe(2);
+    expect(result.heldOut.keptStep).toBe(0);
+    expect(events.find((e) => e.type === 'stalled')).toMatchObject({ step: 2, bestStep: 0, patience: 2 });
+    const last = events.filter((e) => e.type === 'step').at(-1);
+    expect(last).toMatchObject({ best: { step: 0 } });
+
+    // One record: the model's and the summary's steps, kept step and time agree; no checkpoint is left;
+    // nothing names this machine's folders.
+    const summaryText = await readFile(join(out, SUMMARY_FILE), 'utf8');
+    const metaText = await readFile(join(out, 'kinhue-model.json'), 'utf8');
+    const summary = JSON.parse(summaryText);
+    const training = JSON.parse(metaText).training;
+    expect([summary.steps, summary.heldOut.keptStep]).toEqual([2, 0]);
+    expect([training.steps, training.keptStep, training.stoppedBy]).toEqual([2, 0, 'no-improvement']);
+    expect(training.seconds).toBe(Math.round(summary.seconds));
+    expect(training.heldOut.after).toEqual(summary.heldOut.after);
+    expect(training.from).toEqual({ name: 'honest-base', weightsSha256: start.meta.weightsSha256 });
+    expect(await readdir(out)).not.toContain(CHECKPOINT_FILE);
+    expect(result.checkpointKept).toBe(false);
+    for (const text of [summaryText, metaText]) expect(text).not.toContain(dir);
+
+    // Validation and held-out photos are apart: the log rests on the validation photos only.
+    expect(summary.validationFiles.length).toBe(2);
+    expect(summary.holdoutFiles.filter((f: string) => summary.validationFiles.includes(f))).toEqual([]);
+    for (const e of await readTrainingLog(out)) expect(e.photos).toBe(2);
+    start.network.dispose();
+    tuned.network.dispose();
+
+    // A new rebalancing asked for replaces the weights, and the starting figures use them too.
+    const rebalanced = await fit({ ...TINY, keepCheckpoint: false, photos: [photos], out: join(dir, 'honest-rebalanced'), mode: 'tune', from: base, steps: 1, rebalance: 0.5, learningRate: 1e-12 });
+    expect(rebalanced.options.classWeightsFrom).toBe('photos');
+    expect(Math.abs(rebalanced.heldOut.after.ciede2000 - rebalanced.heldOut.before.ciede2000)).toBeLessThan(1e-4);
+  }, 180_000);
+
+  it('a checkpoint from before the validation split resumes with the same photos and order, choosing on the held-out photos', async () => {
+    const photos = join(dir, 'scenes');
+    // validation 0 is how those runs split their photos; their checkpoints record no validation at all.
+    const base = { ...TINY, photos: [photos], seed: 3, learningRate: 3e-3, validation: 0 };
+    await fit({ ...base, out: join(dir, 'old-whole'), steps: 4 });
+    const out = join(dir, 'old-split');
+    await fit({ ...base, out, steps: 2 });
+    const state = await loadCheckpoint(join(out, CHECKPOINT_FILE));
+    delete (state.options as { validation?: number }).validation;
+    delete (state.options as { patience?: number }).patience;
+    delete (state.options as { classWeightsFrom?: string }).classWeightsFrom;
+    await saveCheckpoint(join(out, CHECKPOINT_FILE), state);
+    const events: FitEvent[] = [];
+    const resumed = await fit({ ...TINY, photos: [photos], out, steps: 4, resume: true }, (e) => events.push(e));
+    expect(resumed.photos.validation).toBe(0);
+    expect(events.some((e) => e.type === 'note' && /chooses its steps on the held-out photos/.test(e.message))).toBe(true);
+    const whole = await weightsOf(join(dir, 'old-whole'));
+    const split = await weightsOf(out);
+    whole.weights.forEach((w, i) => expect(Buffer.from(split.weights[i]!.buffer).equals(Buffer.from(w.buffer))).toBe(true));
   });
 });

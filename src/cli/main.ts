@@ -48,8 +48,9 @@ export async function main(args: string[]): Promise<void> {
 function report(error: unknown, showHelp: () => void): number {
   const code = exitCodeFor(error);
   if (code === ExitCode.USAGE) {
-    showHelp();
-    console.error(`\nkinhue: ${isKinhueError(error) ? error.describe() : String((error as Error).message ?? error)}`);
+    const help = !(error instanceof UsageError && !error.aboutCommandLine);
+    if (help) showHelp();
+    console.error(`${help ? '\n' : ''}kinhue: ${isKinhueError(error) ? error.describe() : String((error as Error).message ?? error)}`);
   } else if (isKinhueError(error)) {
     console.error(`kinhue: ${error.code} ${error.describe()}`);
   } else {

@@ -4,8 +4,9 @@
  */
 import type { Argv } from 'yargs';
 import { UsageError } from '../errors.js';
-import type { Evaluation, FitEvent, FitOptions, FitResult } from '../training/index.js';
+import { fit, FIT_OPTIONS, fitDefault, type BestSoFar, type Evaluation, type FitEvent, type FitMode, type FitOptions, type FitResult } from '../training/index.js';
 import { ExitCode } from './exit-codes.js';
+import { writeModelCard } from './model-card.js';
 import { formatDuration, Progress } from './progress.js';
 import { onStopSignals } from './stop-signals.js';
 
@@ -19,48 +20,22 @@ function hueFigures(e: Evaluation): string {
   return `right hue ${percent(e.rightHue)}, false colour ${percent(e.falseColour)}, left grey ${percent(e.leftGrey)}`;
 }
 
-/** Options both verbs take, as yargs parses them. */
-export interface FitArgs {
-  photos: string[];
-  out?: string;
-  hours?: number;
-  steps?: number;
-  batch: number;
-  crop: number;
-  seed: number;
-  holdout: number;
-  resume: boolean;
-  'learning-rate'?: number;
-  rebalance?: number;
-  'eval-every': number;
-  'checkpoint-minutes': number;
-  workers?: number;
+/** The command line of train or tune as yargs parses it: each option under its flag and its camelCase name. */
+export type FitArgs = { photos: string[] } & Record<string, unknown>;
+
+/** Adds a verb's option table, as {@link FIT_OPTIONS} lists it; the defaults are fit's, shown, not set here. */
+export function fitOptions<T>(yargs: Argv<T>, mode: FitMode): Argv<T & FitArgs> {
+  let table = yargs.positional('photos', { type: 'string', array: true, describe: 'colour photos: files and folders (searched recursively)' });
+  for (const spec of FIT_OPTIONS) {
+    if (!spec.verbs.includes(mode)) continue;
+    const shown = spec.defaults?.[mode];
+    table = table.option(spec.flag, { type: spec.type, describe: spec.describe, ...(shown === undefined ? {} : { defaultDescription: String(shown) }) });
+  }
+  return table as unknown as Argv<T & FitArgs>;
 }
 
-/** Adds the shared option table. */
-export function fitOptions<T>(yargs: Argv<T>): Argv<T & FitArgs> {
-  return yargs
-    .positional('photos', { type: 'string', array: true, describe: 'colour photos: files and folders (searched recursively)' })
-    .option('out', { type: 'string', describe: 'model folder to write (created if missing)' })
-    .option('hours', { type: 'number', describe: 'time budget in hours (all resumed sessions together)' })
-    .option('steps', { type: 'number', describe: 'step budget (all resumed sessions together)' })
-    .option('batch', { type: 'number', default: 16, describe: 'crops per step' })
-    .option('crop', { type: 'number', default: 128, describe: 'crop side in pixels, a multiple of 16' })
-    .option('seed', { type: 'number', default: 1, describe: 'seed of every random choice (same seed, same model)' })
-    .option('holdout', { type: 'number', default: 0.1, describe: 'fraction of the photos held out for evaluation (at least 2 photos)' })
-    .option('resume', { type: 'boolean', default: false, describe: 'continue the run whose checkpoint is in --out' })
-    .option('learning-rate', { type: 'number', describe: 'optimiser learning rate (default 1e-3)' })
-    .option('rebalance', { type: 'number', describe: 'class rebalancing lambda, 0-1: 0.5 favours vivid colours, higher is more cautious (default 0.5)' })
-    .option('eval-every', { type: 'number', default: 100, describe: 'evaluate on the held-out photos every this many steps' })
-    .option('checkpoint-minutes', { type: 'number', default: 5, describe: 'minutes between checkpoints' })
-    .option('workers', {
-      type: 'number',
-      describe: 'worker threads computing each step, each on its share of the crops (default: one per core; on --resume the run\'s own; 1 = one thread)',
-    }) as unknown as Argv<T & FitArgs>;
-}
-
-/** The checks both verbs share; `example` is the verb's example command. Pure: throws UsageError. */
-export function checkFitArgs(argv: Partial<FitArgs>, example: string): true {
+/** The checks of a verb's command line, from {@link FIT_OPTIONS}; `example` is the verb's example command. Pure: throws UsageError. */
+export function checkFitArgs(argv: Partial<FitArgs>, mode: FitMode, example: string): true {
   const fail = (message: string): never => {
     throw new UsageError(`${message}\nExample usage: ${example}`);
   };
@@ -68,57 +43,42 @@ export function checkFitArgs(argv: Partial<FitArgs>, example: string): true {
   if (photos.length === 0) fail('name at least one photo folder or file');
   if (!argv.out) fail('--out <model folder> is required');
   if (argv.hours === undefined && argv.steps === undefined) fail('give a budget: --hours, --steps or both');
-  if (argv.hours !== undefined && !(argv.hours > 0)) fail(`--hours must be above 0, got ${argv.hours}`);
-  if (argv.steps !== undefined && !(Number.isInteger(argv.steps) && argv.steps >= 1)) fail(`--steps must be a whole number of at least 1, got ${argv.steps}`);
-  if (argv.batch !== undefined && !(Number.isInteger(argv.batch) && argv.batch >= 1 && argv.batch <= 256)) fail(`--batch must be a whole number from 1 to 256, got ${argv.batch}`);
-  if (argv.crop !== undefined && !(Number.isInteger(argv.crop) && argv.crop >= 32 && argv.crop <= 512 && argv.crop % 16 === 0)) {
-    fail(`--crop must be a multiple of 16 from 32 to 512, got ${argv.crop}`);
+  for (const spec of FIT_OPTIONS) {
+    const value = argv[spec.flag];
+    if (value === undefined || !spec.verbs.includes(mode)) continue;
+    if (spec.type === 'string' && String(value).trim() === '') fail(`--${spec.flag} needs a value`);
+    if (spec.valid && !(typeof value === 'number' && spec.valid(value))) fail(`--${spec.flag} must be ${spec.rule}, got ${String(value)}`);
   }
-  if (argv.seed !== undefined && !(Number.isInteger(argv.seed) && argv.seed >= 0)) fail(`--seed must be a whole number of 0 or more, got ${argv.seed}`);
-  if (argv.holdout !== undefined && !(argv.holdout > 0 && argv.holdout <= 0.5)) fail(`--holdout must be a fraction above 0 and at most 0.5, got ${argv.holdout}`);
-  const lr = argv['learning-rate'];
-  if (lr !== undefined && !(lr > 0 && lr < 1)) fail(`--learning-rate must be between 0 and 1, got ${lr}`);
-  if (argv.rebalance !== undefined && !(argv.rebalance > 0 && argv.rebalance <= 1)) fail(`--rebalance must be above 0 and at most 1, got ${argv.rebalance}`);
-  const every = argv['eval-every'];
-  if (every !== undefined && !(Number.isInteger(every) && every >= 1)) fail(`--eval-every must be a whole number of at least 1, got ${every}`);
-  const minutes = argv['checkpoint-minutes'];
-  if (minutes !== undefined && !(minutes > 0)) fail(`--checkpoint-minutes must be above 0, got ${minutes}`);
-  if (argv.workers !== undefined && !(Number.isInteger(argv.workers) && argv.workers >= 1)) fail(`--workers must be a whole number of at least 1, got ${argv.workers}`);
-  if (argv.workers !== undefined && argv.batch !== undefined && !argv.resume && argv.workers > argv.batch) {
-    fail(`--workers ${argv.workers} is more than the ${argv.batch} crops of a step (--batch): each worker needs at least one`);
+  const workers = argv.workers as number | undefined;
+  const batch = (argv.batch as number | undefined) ?? fitDefault<number>('batch', mode)!;
+  if (workers !== undefined && !argv.resume && workers > batch) {
+    fail(`--workers ${workers} is more than the ${batch} crops of a step (--batch): each worker needs at least one`);
   }
   return true;
 }
 
-/** The fit options the shared arguments stand for. */
-export function fitOptionsFrom(argv: FitArgs): FitOptions {
-  return {
-    photos: argv.photos,
-    out: argv.out!,
-    hours: argv.hours,
-    steps: argv.steps,
-    batch: argv.batch,
-    crop: argv.crop,
-    seed: argv.seed,
-    holdout: argv.holdout,
-    resume: argv.resume,
-    learningRate: argv['learning-rate'],
-    rebalance: argv.rebalance,
-    evalEvery: argv['eval-every'],
-    checkpointMinutes: argv['checkpoint-minutes'],
-    workers: argv.workers,
-  };
+/** The fit options a verb's arguments stand for. */
+export function fitOptionsFrom(argv: FitArgs, mode: FitMode): FitOptions {
+  const options: FitOptions = { photos: argv.photos, out: String(argv.out), mode };
+  for (const spec of FIT_OPTIONS) {
+    if (spec.verbs.includes(mode) && argv[spec.flag] !== undefined) (options as unknown as Record<string, unknown>)[spec.key] = argv[spec.flag];
+  }
+  return options;
+}
+
+/** "CIEDE2000 9.80 at step 200": a best or last figure for live lines. */
+function atStep(figure: BestSoFar): string {
+  return `${figure.ciede2000.toFixed(2)} at step ${figure.step}`;
 }
 
 /**
- * Runs `run` with a progress display and stop handling (the first Ctrl-C, SIGTERM or SIGHUP stops after the
- * current step and writes a checkpoint; a second one ends the process at once), then prints the held-out
- * table and sets the exit code: 130 when stopped, as for restore.
+ * Runs fit with a progress display and stop handling (the first Ctrl-C, SIGTERM or SIGHUP stops after the
+ * current step and writes a checkpoint; a second one ends the process at once), prints the closing table,
+ * writes the model card (measured on the held-out photos, with the verdict) and sets the exit code: 130
+ * when stopped, as for restore.
  */
-export async function runWithProgress(
-  verb: string,
-  run: (signal: AbortSignal, onEvent: (event: FitEvent) => void) => Promise<FitResult>,
-): Promise<FitResult> {
+export async function runWithProgress(options: Omit<FitOptions, 'signal'>): Promise<FitResult> {
+  const verb = options.mode ?? 'train';
   const progress = new Progress();
   const controller = new AbortController();
   const release = onStopSignals((signal) => {
@@ -137,7 +97,9 @@ export async function runWithProgress(
         break;
       case 'data':
         progress.log(
-          `${event.train + event.holdout} colour photos: ${event.train} to learn from, ${event.holdout} held out` +
+          `${event.train + event.validation + event.holdout} colour photos: ${event.train} to learn from` +
+            (event.validation ? `, ${event.validation} to choose the steps kept (validation)` : '') +
+            `, ${event.holdout} held out to report on` +
             (event.grey ? `; ${event.grey} grey or toned skipped` : '') +
             (event.unreadable.length ? `; ${event.unreadable.length} unreadable skipped` : ''),
         );
@@ -156,22 +118,30 @@ export async function runWithProgress(
         break;
       case 'baseline':
         progress.log(
-          `held-out CIEDE2000: grey ${event.grey.ciede2000.toFixed(2)}, model at start ${event.start.ciede2000.toFixed(2)} (${hueFigures(event.start)})`,
+          `at start, on the ${event.validation.start.photos} validation photos: CIEDE2000 grey ${event.validation.grey.ciede2000.toFixed(2)}, ` +
+            `model ${event.validation.start.ciede2000.toFixed(2)} (${hueFigures(event.validation.start)})`,
         );
         break;
       case 'step':
         progress.update(
           event.fraction,
           `step ${event.step}  loss ${event.loss.toFixed(3)}` +
-            (event.heldOut === undefined ? '' : `  held-out CIEDE2000 ${event.heldOut.toFixed(2)}`) +
+            (event.last ? `  validation CIEDE2000 ${event.last.ciede2000.toFixed(2)}` : '') +
+            (event.best ? `  best ${atStep(event.best)}` : '') +
             `  ${formatDuration(event.secondsLeft)} left`,
         );
         break;
       case 'evaluation':
         progress.log(
-          `step ${event.step}: loss ${event.loss.toFixed(3)}, held-out CIEDE2000 ${event.evaluation.ciede2000.toFixed(2)}, ` +
-            `PSNR ${event.evaluation.psnr.toFixed(2)} dB, colourfulness ${event.evaluation.colourfulness.toFixed(1)}, ${hueFigures(event.evaluation)}` +
-            `${event.best ? ' (best so far)' : ''}`,
+          `step ${event.step}: ${event.loss === null ? '' : `loss ${event.loss.toFixed(3)}, `}validation CIEDE2000 ${event.evaluation.ciede2000.toFixed(2)} ` +
+            `(${event.evaluation.photos} photos), PSNR ${event.evaluation.psnr.toFixed(2)} dB, colourfulness ${event.evaluation.colourfulness.toFixed(1)}, ${hueFigures(event.evaluation)}` +
+            (event.best ? ' (best so far)' : `; best ${atStep(event.bestSoFar)}`),
+        );
+        break;
+      case 'stalled':
+        progress.log(
+          `no improvement since step ${event.bestStep} (validation CIEDE2000 ${event.ciede2000.toFixed(2)}) in ${event.patience} evaluation${event.patience === 1 ? '' : 's'}: ` +
+            'stopping early (--patience)',
         );
         break;
       case 'note':
@@ -183,9 +153,12 @@ export async function runWithProgress(
     }
   };
   try {
-    const result = await run(controller.signal, onEvent);
+    const result = await fit({ ...options, signal: controller.signal }, onEvent);
     progress.done();
     console.log(summaryTable(result));
+    const { file, report } = await writeModelCard(result, options.from, options.photos);
+    console.log(`model card: ${file}, measured as restore colours on the ${report.average?.photos ?? 0} held-out photos:`);
+    for (const verdict of report.verdicts) console.log(`  ${verdict.text}`);
     process.exitCode = result.stoppedBy === 'interrupted' ? ExitCode.INTERRUPTED : ExitCode.OK;
     return result;
   } finally {
@@ -194,23 +167,47 @@ export async function runWithProgress(
   }
 }
 
-/** The closing lines: held-out figures before and after, beside the grey baseline. */
+/** Why a run stopped, for people. */
+function stopReason(result: FitResult): string {
+  switch (result.stoppedBy) {
+    case 'interrupted':
+      return 'interrupted; continue with --resume';
+    case 'no-improvement':
+      return `stopped early: no improvement on the validation photos since step ${result.validation.bestStep}`;
+    default:
+      return `stopped by the ${result.stoppedBy === 'time' ? 'time' : 'step'} budget`;
+  }
+}
+
+/** The closing lines: which steps were chosen on what, then held-out figures before and after, beside the originals and grey. */
 export function summaryTable(result: FitResult): string {
   const widths = [11, 11, 15, 11, 14, 11];
-  const line = (label: string, cells: string[]): string => label.padEnd(26) + cells.map((c, i) => c.padStart(widths[i])).join('');
+  const line = (label: string, cells: string[]): string => label.padEnd(30) + cells.map((c, i) => c.padStart(widths[i])).join('');
   const row = (label: string, e: Evaluation): string =>
     line(`  ${label}`, [e.ciede2000.toFixed(2), e.psnr.toFixed(2), e.colourfulness.toFixed(1), percent(e.rightHue), percent(e.falseColour), percent(e.leftGrey)]);
   const { grey, before, after, keptStep } = result.heldOut;
-  const stop = result.stoppedBy === 'interrupted' ? 'interrupted; continue with --resume' : `stopped by the ${result.stoppedBy === 'time' ? 'time' : 'step'} budget`;
+  const { validation } = result;
+  const onValidation = `CIEDE2000 ${validation.before.ciede2000.toFixed(2)} at start, best ${validation.best.ciede2000.toFixed(2)} at step ${validation.bestStep} (grey ${validation.grey.ciede2000.toFixed(2)})`;
+  const chosen = result.photos.validation === 0
+    ? 'steps chosen on the held-out photos (a run from before the validation split): the figures below are not independent'
+    : result.options.keep === 'best'
+      ? `steps chosen on ${result.photos.validation} validation photos: ${onValidation}`
+      : `on the ${result.photos.validation} validation photos: ${onValidation}; the last weights are kept`;
+  const checkpoint = result.checkpointKept
+    ? `; checkpoint kept${result.stoppedBy === 'interrupted' ? ' for --resume' : ' (--keep-checkpoint)'}`
+    : '; checkpoint removed (a finished run; --keep-checkpoint keeps it)';
   return [
-    `${result.mode === 'tune' ? 'tuned' : 'trained'} ${result.steps} steps (${result.crops} crops) in ${formatDuration(result.seconds)}, ${stop}`,
-    `model written to ${result.out} (weights of step ${keptStep})`,
+    `${result.mode === 'tune' ? 'tuned' : 'trained'} ${result.steps} steps (${result.crops} crops) in ${formatDuration(result.seconds)}, ${stopReason(result)}`,
+    chosen,
+    `model written to ${result.out} (weights of step ${keptStep})${checkpoint}`,
     line(`held-out photos (${after.photos})`, ['CIEDE2000', 'PSNR (dB)', 'colourfulness', 'right hue', 'false colour', 'left grey']),
+    line('  originals', ['', '', after.originalColourfulness === undefined ? '-' : after.originalColourfulness.toFixed(1)]),
     row('grey (L* only)', grey),
     row('model before', before),
     row(`model after (step ${keptStep})`, after),
     ...(after.colouredPhotos !== undefined && after.colouredPhotos < after.photos
       ? [`  (right hue and left grey rest on the ${after.colouredPhotos} held-out photos with clearly coloured pixels)`]
       : []),
+    '  (the held-out photos were never used to choose: these figures are measured once, at the end)',
   ].join('\n');
 }

@@ -17,6 +17,8 @@ export interface Evaluation {
   psnr: number;
   /** Mean colourfulness of the results, Hasler & Suesstrunk 2003 (0-255 scale). */
   colourfulness: number;
+  /** Mean colourfulness of the originals, to read the results' against (absent in records from before it). */
+  originalColourfulness?: number;
   /** Percent of clearly coloured pixels given a hue within 30 degrees (higher is better); null when no photo has such pixels. */
   rightHue: number | null;
   /** Percent of pixels given a clear colour that is not there (lower is better). */
@@ -61,6 +63,7 @@ export async function evaluatePhotos(photos: Photo[], predictor?: AbPredictor): 
   let de = 0;
   let db = 0;
   let cf = 0;
+  let ocf = 0;
   let fc = 0;
   const right: (number | null)[] = [];
   const grey: (number | null)[] = [];
@@ -87,11 +90,12 @@ export async function evaluatePhotos(photos: Photo[], predictor?: AbPredictor): 
     // An exact match would give Infinity; cap at 100 dB so averages stay finite (common practice).
     db += Math.min(100, psnr(rgb, originalRgb(photo)));
     cf += colourfulness(rgb, 3);
+    ocf += colourfulness(originalRgb(photo), 3);
   }
   const n = photos.length;
   const rightHue = meanOfPresent(right);
   return {
-    ciede2000: de / n, psnr: db / n, colourfulness: cf / n,
+    ciede2000: de / n, psnr: db / n, colourfulness: cf / n, originalColourfulness: ocf / n,
     rightHue: rightHue.mean, falseColour: fc / n, leftGrey: meanOfPresent(grey).mean,
     photos: n, colouredPhotos: rightHue.photos,
   };

@@ -29,8 +29,13 @@ export interface FitOptions {
   crop?: number;
   /** Seed of every random choice. Default 1. */
   seed?: number;
-  /** Fraction of the photos held out for evaluation. Default 0.1 (at least 2 photos). */
+  /** Fraction of the photos held out to report on, never used to choose anything. Default 0.1 (at least 2 photos). */
   holdout?: number;
+  /**
+   * Fraction of the photos set aside to choose the step kept and when to stop (validation), apart from the
+   * held-out ones. Default 0.1 (at least 2 photos).
+   */
+  validation?: number;
   /**
    * Optimiser learning rate. Default 1e-3 for train, 1e-4 for tune. Given with `resume`, it replaces the
    * checkpoint's from the next step on (a step-down schedule); the change is recorded.
@@ -38,20 +43,29 @@ export interface FitOptions {
   learningRate?: number;
   /**
    * Class rebalancing lambda of Zhang et al. (2016): 0.5 (the paper's) favours vivid, rarer colours;
-   * towards 1 the weights even out and colours grow more cautious. Default 0.5.
+   * towards 1 the weights even out and colours grow more cautious. Default for train 0.5; for tune the
+   * starting model's own class weights (and so its decoding) are kept, and a value given here replaces
+   * them with weights from the tuning photos.
    */
   rebalance?: number;
   /** Keep the encoder's weights fixed (tune). */
   freezeEncoder?: boolean;
   /** Continue the run whose checkpoint is in `out`. */
   resume?: boolean;
-  /** Evaluate on the held-out photos every this many steps. Default 100. */
+  /** Evaluate on the validation photos every this many steps. Default 100 for train, 50 for tune. */
   evalEvery?: number;
+  /**
+   * Stop once this many evaluations in a row bring no improvement on the validation photos (0: never).
+   * Default 0 for train, 5 for tune.
+   */
+  patience?: number;
+  /** Keep the checkpoint in a finished folder (to continue later with a larger budget). Default false. */
+  keepCheckpoint?: boolean;
   /** Minutes between checkpoints. Default 5. */
   checkpointMinutes?: number;
   /** Long side, in pixels, photos are kept and evaluated at. Default the model's working size (512) or 3 x crop if larger. */
   photoSize?: number;
-  /** Which model to keep in `out`: the last, or the best by held-out CIEDE2000. Default: last for train, best for tune. */
+  /** Which model to keep in `out`: the last, or the best by validation CIEDE2000. Default: last for train, best for tune. */
   keep?: 'last' | 'best';
   /** Size of a new network (train only). */
   network?: NetworkOptions;
@@ -72,48 +86,78 @@ export interface FitOptions {
   signal?: AbortSignal;
 }
 
+/** The best validation figure so far and the step it was reached at. */
+export interface BestSoFar {
+  step: number;
+  ciede2000: number;
+}
+
 /** What the loop reports while it runs. */
 export type FitEvent =
   | { type: 'reading'; done: number; total: number; file: string }
   | { type: 'features'; done: number; total: number }
-  | { type: 'data'; train: number; holdout: number; grey: number; unreadable: { file: string; reason: string }[]; otherFiles: number }
+  | { type: 'data'; train: number; validation: number; holdout: number; grey: number; unreadable: { file: string; reason: string }[]; otherFiles: number }
   | { type: 'resumed'; step: number; seconds: number }
   /** How many worker threads compute the steps; `previous` when a resumed run changes the checkpoint's number. */
   | { type: 'workers'; workers: number; step: number; previous?: number }
-  | { type: 'baseline'; grey: Evaluation; start: Evaluation }
-  | { type: 'step'; step: number; loss: number; seconds: number; secondsLeft: number; fraction: number; heldOut?: number }
-  | { type: 'evaluation'; step: number; loss: number; evaluation: Evaluation; best: boolean }
+  /** Figures of the starting weights: `validation` chooses the steps, `heldOut` is only reported. */
+  | { type: 'baseline'; validation: { grey: Evaluation; start: Evaluation }; heldOut: { grey: Evaluation; start: Evaluation } }
+  | { type: 'step'; step: number; loss: number; seconds: number; secondsLeft: number; fraction: number; last?: BestSoFar; best?: BestSoFar }
+  | { type: 'evaluation'; step: number; loss: number | null; evaluation: Evaluation; best: boolean; bestSoFar: BestSoFar }
+  /** Early stopping: `patience` evaluations in a row without improvement since `bestStep`. */
+  | { type: 'stalled'; step: number; bestStep: number; ciede2000: number; patience: number }
   | { type: 'checkpoint'; step: number; file: string }
   | { type: 'model'; step: number; dir: string }
   /** Something to tell the user, e.g. that the starting model's layout could not be checked. */
   | { type: 'note'; message: string };
 
+/** Why a run stopped. `no-improvement`: early stopping (see FitOptions.patience). */
+export type StoppedBy = 'steps' | 'time' | 'no-improvement' | 'interrupted';
+
 /** The outcome of a run, also written to `training-summary.json` and the model's metadata. */
 export interface FitResult {
   mode: FitMode;
+  /** The model folder (as given; the files written record only its name). */
   out: string;
-  /** Total optimiser steps (over all sessions). */
+  /** Optimiser steps taken (over all sessions). */
   steps: number;
   /** Crops seen: steps x batch. */
   crops: number;
   /** Training seconds over all sessions. */
   seconds: number;
   /** Why the run stopped. */
-  stoppedBy: 'steps' | 'time' | 'interrupted';
-  photos: { train: number; holdout: number; grey: number; unreadable: number };
-  /** Held-out figures: the grey baseline, the model before training, and the model kept in `out`. */
+  stoppedBy: StoppedBy;
+  /** Whether the checkpoint was left in the folder (interrupted runs, or asked with keepCheckpoint). */
+  checkpointKept: boolean;
+  photos: { train: number; validation: number; holdout: number; grey: number; unreadable: number };
+  /**
+   * Figures on the validation photos, which chose the step kept (`photos` 0 and figures copied from
+   * `heldOut` in runs from before the validation split, which chose on the held-out photos).
+   */
+  validation: { grey: Evaluation; before: Evaluation; best: Evaluation; bestStep: number };
+  /** Held-out figures, never used to choose: the grey baseline, the model before training, and the model kept in `out`. */
   heldOut: { grey: Evaluation; before: Evaluation; after: Evaluation; keptStep: number };
+  /** The held-out photos (paths as found on this machine; not written to any file). */
+  holdoutFiles: string[];
+  /** The model tuned from: its name and weights' SHA-256 (tune only). */
+  from?: { name: string; weightsSha256: string };
   options: {
     batch: number;
     crop: number;
     seed: number;
     holdout: number;
+    /** Fraction set aside for validation (0 in runs from before the split: they chose on the held-out photos). */
+    validation?: number;
     learningRate: number;
     /** Learning rates set on resume, and the step from which each applied. */
     learningRateChanges?: { step: number; learningRate: number }[];
     rebalance: number;
+    /** Where the class weights come from: the starting model's (tune, by default) or the training photos. */
+    classWeightsFrom?: 'base' | 'photos';
     freezeEncoder: boolean;
     keep: 'last' | 'best';
+    /** Evaluations without improvement before stopping (0 or absent: never). */
+    patience?: number;
     photoSize: number;
     /** The network reads a backbone's features (absent in runs from before backbones: false). */
     backbone?: boolean;
@@ -133,24 +177,91 @@ export const SUMMARY_FILE = 'training-summary.json';
 /** The settings a run is made with; a resumed run keeps those of its checkpoint. */
 export type FitSettings = FitResult['options'];
 
+/** A value the command line can give. */
+type OptionValue = number | boolean | string;
+
 /**
- * Fills in the defaults: 16 crops of 128 px a step, seed 1, 10 percent held out, learning rate 1e-3
- * for train and a tenth of that for tune (common practice for fine-tuning), photos kept at the model's
- * working size so crops show things at the scale restore sees them.
- * @example
- *   resolveSettings({ photos: ['p/'], out: 'm', steps: 10 }, 'train').batch; // 16
+ * One option of `train` and `tune`: the FitOptions field it sets, its name on the command line, the
+ * verbs that take it, its default per verb (what fit applies when it is not given) and what a valid value
+ * is. The yargs tables, their checks and the defaults fit applies all read this one list.
  */
-export function resolveSettings(options: FitOptions, mode: FitMode, backbone: boolean): FitSettings {
-  const crop = options.crop ?? 128;
+export interface FitOptionSpec {
+  key: keyof FitOptions;
+  flag: string;
+  type: 'number' | 'boolean' | 'string';
+  verbs: readonly FitMode[];
+  describe: string;
+  /** The default per verb; absent: none (or one described in `describe`). */
+  defaults?: Partial<Record<FitMode, OptionValue>>;
+  /** What a valid value is, for the message ("--crop must be <rule>, got 100"), and the test. */
+  rule?: string;
+  valid?: (value: number) => boolean;
+}
+
+const BOTH: readonly FitMode[] = ['train', 'tune'];
+const whole = (min: number) => (v: number) => Number.isInteger(v) && v >= min;
+
+/** The options `train` and `tune` share with the fit loop, in the order `--help` lists them. */
+export const FIT_OPTIONS: readonly FitOptionSpec[] = [
+  { key: 'out', flag: 'out', type: 'string', verbs: BOTH, describe: 'model folder to write (created if missing; one of its own)' },
+  { key: 'from', flag: 'from', type: 'string', verbs: ['tune'], describe: 'model folder to start from (default: the shipped model)' },
+  { key: 'hours', flag: 'hours', type: 'number', verbs: BOTH, describe: 'time budget in hours (all resumed sessions together)', rule: 'above 0', valid: (v) => v > 0 },
+  { key: 'steps', flag: 'steps', type: 'number', verbs: BOTH, describe: 'step budget (all resumed sessions together)', rule: 'a whole number of at least 1', valid: whole(1) },
+  { key: 'batch', flag: 'batch', type: 'number', verbs: BOTH, describe: 'crops per step', defaults: { train: 16, tune: 16 }, rule: 'a whole number from 1 to 256', valid: (v) => whole(1)(v) && v <= 256 },
+  { key: 'crop', flag: 'crop', type: 'number', verbs: BOTH, describe: 'crop side in pixels, a multiple of 16', defaults: { train: 128, tune: 128 }, rule: 'a multiple of 16 from 32 to 512', valid: (v) => whole(32)(v) && v <= 512 && v % 16 === 0 },
+  { key: 'seed', flag: 'seed', type: 'number', verbs: BOTH, describe: 'seed of every random choice (same seed, same model)', defaults: { train: 1, tune: 1 }, rule: 'a whole number of 0 or more', valid: whole(0) },
+  { key: 'holdout', flag: 'holdout', type: 'number', verbs: BOTH, describe: 'fraction of the photos held out to report on, never to choose (at least 2 photos)', defaults: { train: 0.1, tune: 0.1 }, rule: 'a fraction above 0 and at most 0.5', valid: (v) => v > 0 && v <= 0.5 },
+  { key: 'validation', flag: 'validation', type: 'number', verbs: BOTH, describe: 'fraction of the photos that choose the step kept and when to stop (at least 2 photos)', defaults: { train: 0.1, tune: 0.1 }, rule: 'a fraction above 0 and at most 0.5', valid: (v) => v > 0 && v <= 0.5 },
+  { key: 'learningRate', flag: 'learning-rate', type: 'number', verbs: BOTH, describe: 'optimiser learning rate; with --resume it applies from the next step', defaults: { train: 1e-3, tune: 1e-4 }, rule: 'between 0 and 1', valid: (v) => v > 0 && v < 1 },
+  {
+    key: 'rebalance', flag: 'rebalance', type: 'number', verbs: BOTH, defaults: { train: 0.5 }, rule: 'above 0 and at most 1', valid: (v) => v > 0 && v <= 1,
+    describe: 'class rebalancing lambda, 0-1: 0.5 favours vivid colours, higher is more cautious (tune: default the starting model\'s own weights and decoding)',
+  },
+  { key: 'freezeEncoder', flag: 'freeze-encoder', type: 'boolean', verbs: ['tune'], describe: 'keep the encoder fixed; learn only the decoder (small archives)', defaults: { tune: false } },
+  { key: 'evalEvery', flag: 'eval-every', type: 'number', verbs: BOTH, describe: 'evaluate on the validation photos every this many steps', defaults: { train: 100, tune: 50 }, rule: 'a whole number of at least 1', valid: whole(1) },
+  { key: 'patience', flag: 'patience', type: 'number', verbs: BOTH, describe: 'stop after this many evaluations in a row without improvement (0: never)', defaults: { train: 0, tune: 5 }, rule: 'a whole number of 0 or more', valid: whole(0) },
+  { key: 'resume', flag: 'resume', type: 'boolean', verbs: BOTH, describe: 'continue the run whose checkpoint is in --out', defaults: { train: false, tune: false } },
+  { key: 'checkpointMinutes', flag: 'checkpoint-minutes', type: 'number', verbs: BOTH, describe: 'minutes between checkpoints', defaults: { train: 5, tune: 5 }, rule: 'above 0', valid: (v) => v > 0 },
+  { key: 'keepCheckpoint', flag: 'keep-checkpoint', type: 'boolean', verbs: BOTH, describe: 'leave the checkpoint in a finished folder, to continue later with a larger budget', defaults: { train: false, tune: false } },
+  {
+    key: 'workers', flag: 'workers', type: 'number', verbs: BOTH, rule: 'a whole number of at least 1', valid: whole(1),
+    describe: "worker threads computing each step, each on its share of the crops (default: one per core; on --resume the run's own; 1 = one thread)",
+  },
+];
+
+/**
+ * The default fit applies for an option of a verb.
+ * @example
+ *   fitDefault('learningRate', 'tune'); // 1e-4
+ */
+export function fitDefault<T extends OptionValue>(key: keyof FitOptions, mode: FitMode): T | undefined {
+  return FIT_OPTIONS.find((o) => o.key === key)?.defaults?.[mode] as T | undefined;
+}
+
+/**
+ * Fills in the defaults of {@link FIT_OPTIONS}: 16 crops of 128 px a step, seed 1, 10 percent held out and
+ * 10 percent for validation, learning rate 1e-3 for train and a tenth of that for tune (common practice for
+ * fine-tuning), photos kept at the model's working size so crops show things at the scale restore sees
+ * them. `baseRebalance` is the starting model's recorded lambda (tune).
+ * @example
+ *   resolveSettings({ photos: ['p/'], out: 'm', steps: 10 }, 'train', true).batch; // 16
+ */
+export function resolveSettings(options: FitOptions, mode: FitMode, backbone: boolean, baseRebalance?: number): FitSettings {
+  const pick = <T extends OptionValue>(key: keyof FitOptions): T => (options[key] as T | undefined) ?? fitDefault<T>(key, mode)!;
+  const crop = pick<number>('crop');
+  const inherit = mode === 'tune' && options.rebalance === undefined;
   return {
-    batch: options.batch ?? 16,
+    batch: pick<number>('batch'),
     crop,
-    seed: options.seed ?? 1,
-    holdout: options.holdout ?? 0.1,
-    learningRate: options.learningRate ?? (mode === 'tune' ? 1e-4 : 1e-3),
-    rebalance: options.rebalance ?? REBALANCE_LAMBDA,
+    seed: pick<number>('seed'),
+    holdout: pick<number>('holdout'),
+    validation: pick<number>('validation'),
+    learningRate: pick<number>('learningRate'),
+    rebalance: options.rebalance ?? (inherit ? baseRebalance : undefined) ?? REBALANCE_LAMBDA,
+    classWeightsFrom: inherit ? 'base' : 'photos',
     freezeEncoder: options.freezeEncoder ?? false,
     keep: options.keep ?? (mode === 'tune' ? 'best' : 'last'),
+    patience: pick<number>('patience'),
     photoSize: options.photoSize ?? (backbone ? BACKBONE_PHOTO_SIZE : Math.max(DEFAULT_WORKING_SIZE, crop * 3)),
     backbone,
   };

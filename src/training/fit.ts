@@ -5,8 +5,8 @@
  * held-out error for tune). A resumed run continues from its checkpoint and reaches the same weights
  * as an uninterrupted one with the same seed.
  */
-import { mkdir, readdir, stat } from 'node:fs/promises';
-import { join, resolve } from 'node:path';
+import { mkdir, readdir, rm, stat } from 'node:fs/promises';
+import { basename, join, resolve } from 'node:path';
 import * as tf from '@tensorflow/tfjs';
 import { ErrorCodes, KinhueError, UsageError } from '../errors.js';
 import { checkFolderFiles, InputGuard, inputInside, OutputOnInputError } from '../files/index.js';
@@ -29,6 +29,7 @@ import {
   freezeEncoder,
   initBackend,
   loadModel,
+  METADATA_FILE,
   predict,
   rebalanceWeights,
   saveModel,
@@ -40,11 +41,11 @@ import { VERSION } from '../version.js';
 import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js';
 import { type CropBatch, CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
 import { evaluatePhotos, type Evaluation } from './evaluation.js';
-import { SUMMARY_FILE, resolveSettings, type FitEvent, type FitMode, type FitOptions, type FitResult, type FitSettings } from './fit-options.js';
+import { fitDefault, SUMMARY_FILE, resolveSettings, type FitEvent, type FitMode, type FitOptions, type FitResult, type FitSettings, type StoppedBy } from './fit-options.js';
 import { defaultWorkers, ParallelTrainer } from './parallel-trainer.js';
 import { loadPhotoSet, type Photo, type PhotoSet } from './photo-set.js';
 import { Random, type RandomState } from './random.js';
-import { appendTrainingLog, truncateTrainingLog } from './training-log.js';
+import { appendTrainingLog, readTrainingLog, truncateTrainingLog } from './training-log.js';
 
 interface CheckpointState {
   kind: 'kinhue-training-checkpoint';
@@ -59,12 +60,19 @@ interface CheckpointState {
   options: FitSettings;
   trainFiles: string[];
   holdoutFiles: string[];
+  /** The best evaluation so far on the validation photos (on the held-out ones in runs from before the split). */
   best: { step: number; evaluation: Evaluation } | null;
+  /** Held-out figures of grey and of the starting weights. */
   grey: Evaluation;
   before: Evaluation;
+  /** The validation photos and their figures of grey and of the starting weights (absent in runs from before the split). */
+  validation?: { files: string[]; grey: Evaluation; before: Evaluation };
   weights: Float32Array[];
   trainer: unknown;
 }
+
+/** An improvement of the validation error smaller than this is rounding, not learning (our own margin). */
+export const MIN_IMPROVEMENT = 0.01;
 
 /**
  * Trains (or tunes) a model on colour photos.
@@ -83,36 +91,63 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     throw new OutputOnInputError(out, heldInput, outHint, `the model folder is, or holds, the input ${heldInput} (perhaps through a link); writing the model there would change it`);
   }
   const checkpointFile = join(out, CHECKPOINT_FILE);
+  const hasCheckpoint = await exists(checkpointFile);
+  const hasModel = await exists(join(out, METADATA_FILE));
+  // A folder in use is not a mistake in the command's shape: the reason alone, without the help.
+  const inUse = { aboutCommandLine: false };
+  if (!options.resume && hasCheckpoint) {
+    throw new UsageError(`${out} holds an unfinished or finished training run (${CHECKPOINT_FILE})`, 'add --resume to continue it, or choose another --out folder.', inUse);
+  }
+  if (!options.resume && hasModel) {
+    throw new UsageError(`${out} already holds a model`, `choose another --out folder, or tune that model further with --from ${options.out}.`, inUse);
+  }
+  if (options.resume && !hasCheckpoint && hasModel) {
+    throw new UsageError(
+      `the run in ${out} has finished and its checkpoint was removed (a finished folder keeps it only with --keep-checkpoint)`,
+      `tune that model further with --from ${options.out} and a new --out folder.`,
+      inUse,
+    );
+  }
   const saved = options.resume ? ((await loadCheckpoint(checkpointFile)) as unknown as CheckpointState) : undefined;
   if (saved && saved.kind !== 'kinhue-training-checkpoint') {
     throw new KinhueError(ErrorCodes.BAD_DATA, 'not a kinhue training checkpoint', { file: checkpointFile, hint: 'run without --resume to start again.' });
   }
-  if (!options.resume && (await exists(checkpointFile))) {
-    throw new UsageError(
-      `${out} holds an unfinished or finished training run (${CHECKPOINT_FILE})`,
-      'add --resume to continue it, or choose another --out folder.',
-    );
-  }
   if (mode === 'tune' && !options.from) throw new UsageError('tune needs a model to start from', 'pass --from <model folder>.');
 
-  // The checkpoint's settings win on resume: the same run must continue.
-  // (Checkpoints written before the rebalancing option existed used the paper's 0.5.)
+  // The checkpoint's settings win on resume: the same run must continue. Checkpoints from before an
+  // option existed get what those runs did: rebalancing 0.5, no backbone, no validation split, no early stop.
   const start = mode === 'tune' ? await loadModel(options.from!) : undefined;
   for (const message of start?.warnings ?? []) onEvent({ type: 'note', message });
+  const baseRebalance = start?.meta.training?.rebalance;
   const settings: FitSettings = saved
-    ? { ...saved.options, rebalance: saved.options.rebalance ?? REBALANCE_LAMBDA, backbone: saved.options.backbone ?? false }
-    : resolveSettings(options, mode, start ? Boolean(start.backbone) : options.backbone !== false);
-  // (A learning rate given with --resume is the one setting that may change: see FitOptions.learningRate.)
+    ? {
+        ...saved.options,
+        rebalance: saved.options.rebalance ?? REBALANCE_LAMBDA,
+        backbone: saved.options.backbone ?? false,
+        validation: saved.options.validation ?? 0,
+        patience: options.patience ?? saved.options.patience ?? 0,
+      }
+    : resolveSettings(options, mode, start ? Boolean(start.backbone) : options.backbone !== false, typeof baseRebalance === 'number' ? baseRebalance : undefined);
+  // (A learning rate given with --resume is the one setting that changes the weights: see FitOptions.learningRate.)
   const maxSteps = options.steps ?? Infinity;
   const maxSeconds = options.hours === undefined ? Infinity : options.hours * 3600;
   if (maxSteps === Infinity && maxSeconds === Infinity) throw new UsageError('no budget given', 'pass --hours, --steps or both.');
-  const evalEvery = Math.max(1, Math.floor(options.evalEvery ?? 100));
-  const checkpointMs = (options.checkpointMinutes ?? 5) * 60_000;
+  if (saved && (saved.step >= maxSteps || saved.seconds >= maxSeconds)) {
+    const budget = saved.step >= maxSteps ? `--steps ${options.steps}` : `--hours ${options.hours}`;
+    throw new UsageError(
+      `the run in ${out} already reached its budget (${budget}) at step ${saved.step}; nothing to do`,
+      'give a larger --steps or --hours to continue it.',
+      inUse,
+    );
+  }
+  const evalEvery = Math.max(1, Math.floor(options.evalEvery ?? fitDefault<number>('evalEvery', mode)!));
+  const checkpointMs = (options.checkpointMinutes ?? fitDefault<number>('checkpointMinutes', mode)!) * 60_000;
 
   // Data first: bad data stops the run before a model folder is touched.
   const set = await loadPhotoSet(options.photos, {
     maxSide: settings.photoSize,
     holdout: settings.holdout,
+    validation: settings.validation,
     seed: settings.seed,
     exclude: out,
     onFile: (done, total, file) => onEvent({ type: 'reading', done, total, file }),
@@ -120,13 +155,19 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   onEvent({
     type: 'data',
     train: set.train.length,
+    validation: set.validation.length,
     holdout: set.holdout.length,
     grey: set.grey.length,
     unreadable: set.unreadable,
     otherFiles: set.otherFiles,
   });
+  // A run from before the validation split goes on choosing on its held-out photos, with the same photo order.
+  const validationSet = set.validation.length > 0 ? set.validation : set.holdout;
+  if (set.validation.length === 0) {
+    onEvent({ type: 'note', message: 'this run was started before kinhue kept validation photos apart: it chooses its steps on the held-out photos, so their figures are not independent' });
+  }
   if (saved) checkSameData(saved, set, checkpointFile);
-  const guard = await InputGuard.of([...set.train, ...set.holdout].map((p) => p.file).concat(set.grey, set.unreadable.map((u) => u.file)), { hint: outHint });
+  const guard = await InputGuard.of([...set.train, ...set.validation, ...set.holdout].map((p) => p.file).concat(set.grey, set.unreadable.map((u) => u.file)), { hint: outHint });
   if (mode === 'tune' && options.from) for (const name of await readdir(options.from).catch(() => [] as string[])) await guard.add(join(options.from, name));
   await checkFolderFiles(out, guard);
   // What a killed earlier run left half-written in the folder goes before anything new is written.
@@ -135,9 +176,26 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   const backend = await initBackend();
   const { workers, previous: previousWorkers } = chooseWorkers(options.workers, settings, saved?.step, backend.name);
   const bins = abBins();
-  const counts = new Float64Array(bins.count);
-  for (const photo of set.train) binHistogram(photo.a, photo.b, bins, counts);
-  const classWeights = rebalanceWeights(counts, settings.rebalance);
+  if (start && start.bins.count !== bins.count) {
+    throw new KinhueError(ErrorCodes.BAD_MODEL, `the model predicts ${start.bins.count} colour bins, this kinhue trains ${bins.count}`, {
+      file: options.from,
+      hint: 'tune a model written by this version of kinhue.',
+    });
+  }
+  // A tuned model keeps its base's class weights, and so its decoding, unless a rebalancing is asked for:
+  // new weights would change the colours chosen before any learning (and training under them would too).
+  if (settings.classWeightsFrom === 'base' && start?.classWeights.length !== bins.count) {
+    settings.classWeightsFrom = 'photos';
+    onEvent({ type: 'note', message: `the model tuned from records no class weights: they come from these photos (rebalancing ${settings.rebalance})` });
+  }
+  let classWeights: Float32Array;
+  if (settings.classWeightsFrom === 'base') {
+    classWeights = Float32Array.from(start!.classWeights);
+  } else {
+    const counts = new Float64Array(bins.count);
+    for (const photo of set.train) binHistogram(photo.a, photo.b, bins, counts);
+    classWeights = rebalanceWeights(counts, settings.rebalance);
+  }
 
   const backbone: Backbone | undefined = start
     ? start.backbone
@@ -146,25 +204,20 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       : undefined;
   const network = start ? start.network : createNetwork({ ...options.network, backbone: settings.backbone });
   // The backbone is frozen: each photo's features are computed once, both ways round for the crops.
+  const evaluated = [...set.validation, ...set.holdout];
   const trainFeatures: PhotoFeatures[] | undefined = backbone
     ? set.train.map((photo, i) => {
-        onEvent({ type: 'features', done: i, total: set.train.length + set.holdout.length });
+        onEvent({ type: 'features', done: i, total: set.train.length + evaluated.length });
         return { plain: backboneFeatures(backbone, photo.L, photo.width, photo.height), mirrored: backboneFeatures(backbone, photo.L, photo.width, photo.height, true) };
       })
     : undefined;
   // A network that reads a backbone chooses its colours after region pooling; a tuned model keeps its base's.
   const pooling = start ? start.meta.pooling : backbone ? DEFAULT_POOLING : undefined;
-  const holdoutFeatures = new Map<Photo, BackboneFeatures>(
-    backbone ? set.holdout.map((photo) => [photo, backboneFeatures(backbone, photo.L, photo.width, photo.height)]) : [],
+  const evaluatedFeatures = new Map<Photo, BackboneFeatures>(
+    backbone ? evaluated.map((photo) => [photo, backboneFeatures(backbone, photo.L, photo.width, photo.height)]) : [],
   );
   const temperature = options.temperature ?? start?.meta.temperature ?? DEFAULT_TEMPERATURE;
   const decoding = chooseDecoding({ temperature: options.temperature }, start?.meta.decoding ?? DEFAULT_DECODING);
-  if (start && start.bins.count !== bins.count) {
-    throw new KinhueError(ErrorCodes.BAD_MODEL, `the model predicts ${start.bins.count} colour bins, this kinhue trains ${bins.count}`, {
-      file: options.from,
-      hint: 'tune a model written by this version of kinhue.',
-    });
-  }
   if (settings.freezeEncoder) freezeEncoder(network);
   const trainer = createTrainer(network, { learningRate: settings.learningRate, classWeights });
   const rng = new Random(settings.seed);
@@ -179,12 +232,17 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
    */
   let ahead: { batch: CropBatch; rng: RandomState; sampler: SamplerState } | undefined;
   let best: CheckpointState['best'] = null;
+  /** The best weights when this session reached them (else they are the model in `out`). */
+  let bestWeights: Float32Array[] | undefined;
+  /** Evaluations since the best, for early stopping. */
+  let sinceBest = 0;
   let grey: Evaluation;
   let before: Evaluation;
-  // Scored the way the saved model will colour: its decoding, with the weights it was trained under.
-  const evaluate = (photos: Photo[], weights: ArrayLike<number> = classWeights): Promise<Evaluation> =>
+  let validation: { grey: Evaluation; before: Evaluation };
+  // Every figure, before and after, is scored the way the saved model will colour: its decoding, with its class weights.
+  const evaluate = (photos: Photo[]): Promise<Evaluation> =>
     evaluatePhotos(photos, (L, w, h, photo) => {
-      const p = predict(network, L, w, h, { decoding, temperature, classWeights: weights, features: holdoutFeatures.get(photo), pooling: pooling ?? false });
+      const p = predict(network, L, w, h, { decoding, temperature, classWeights, features: evaluatedFeatures.get(photo), pooling: pooling ?? false });
       return { a: p.a, b: p.b, width: p.width, height: p.height };
     });
 
@@ -205,43 +263,54 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     best = saved.best;
     grey = saved.grey;
     before = saved.before;
+    validation = saved.validation ?? { grey, before };
     await truncateTrainingLog(out, step);
+    if (best) sinceBest = (await readTrainingLog(out)).filter((e) => e.step > best!.step).length;
     onEvent({ type: 'resumed', step, seconds: priorSeconds });
   } else {
     sampler = new CropSampler(set.train, rng, undefined, trainFeatures);
     grey = await evaluatePhotos(set.holdout);
-    before = await evaluate(set.holdout, start?.classWeights);
+    before = await evaluate(set.holdout);
+    validation = set.validation.length > 0 ? { grey: await evaluatePhotos(set.validation), before: await evaluate(set.validation) } : { grey, before };
     await mkdir(out, { recursive: true });
     await truncateTrainingLog(out, 0);
-    if (settings.keep === 'best') best = { step: 0, evaluation: before };
+    if (settings.keep === 'best') best = { step: 0, evaluation: validation.before };
   }
-  onEvent({ type: 'baseline', grey, start: before });
+  onEvent({ type: 'baseline', validation: { grey: validation.grey, start: validation.before }, heldOut: { grey, start: before } });
+  const stalled = (): boolean => Boolean(settings.patience && best && sinceBest >= settings.patience);
 
-  const meta = (evaluation: Evaluation, evaluatedStep: number, seconds: number): ModelMetadataInput => ({
+  const from = start ? { name: start.meta.name, weightsSha256: start.meta.weightsSha256 } : undefined;
+  /** The training record of the model folder; `kept` is the step whose weights it holds. */
+  const record = (kept: number, seconds: number, heldOut: { after?: Evaluation }, stoppedBy?: StoppedBy): ModelMetadataInput['training'] => ({
+    mode,
+    from: from ?? null,
+    photos: set.train.length,
+    validationPhotos: set.validation.length,
+    heldOutPhotos: set.holdout.length,
+    skippedGreyOrToned: set.grey.length,
+    steps: step,
+    keptStep: kept,
+    crops: step * settings.batch,
+    seconds: Math.round(seconds),
+    ...(stoppedBy ? { stoppedBy } : {}),
+    ...settings,
+    validation: { grey: validation.grey, before: validation.before, ...(best ? { best: best.evaluation, bestStep: best.step } : {}) },
+    heldOut: { grey, before, ...(heldOut.after ? { after: heldOut.after, evaluatedAtStep: kept } : {}) },
+    backend: backend.name,
+  });
+  const metaOf = (training: ModelMetadataInput['training']): ModelMetadataInput => ({
     decoding,
     ...(backbone ? { workingSize: settings.photoSize } : start ? { workingSize: start.meta.workingSize } : {}),
     ...(pooling ? { pooling } : {}),
     temperature,
     classWeights,
-    training: {
-      mode,
-      from: options.from ? resolve(options.from) : null,
-      photos: set.train.length,
-      heldOutPhotos: set.holdout.length,
-      skippedGreyOrToned: set.grey.length,
-      steps: step,
-      crops: step * settings.batch,
-      seconds: Math.round(seconds),
-      ...settings,
-      heldOut: { grey, before, after: evaluation, evaluatedAtStep: evaluatedStep },
-      backend: backend.name,
-    },
+    training,
   });
-  const saveKept = async (evaluation: Evaluation, evaluatedStep: number, seconds: number): Promise<void> => {
-    await saveModel(network, out, meta(evaluation, evaluatedStep, seconds), backbone);
+  const saveKept = async (kept: number, seconds: number): Promise<void> => {
+    await saveModel(network, out, metaOf(record(kept, seconds, {})), backbone);
     onEvent({ type: 'model', step, dir: out });
   };
-  if (!saved && settings.keep === 'best') await saveKept(before, 0, 0);
+  if (!saved && settings.keep === 'best') await saveKept(0, 0);
 
   const sessionStart = Date.now();
   const elapsed = (): number => priorSeconds + (Date.now() - sessionStart) / 1000;
@@ -264,6 +333,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       best,
       grey,
       before,
+      ...(set.validation.length > 0 ? { validation: { files: set.validation.map((p) => p.file), ...validation } } : {}),
       weights: network.getWeights().map((w) => w.dataSync() as Float32Array),
       trainer: await trainer.getState(),
     };
@@ -272,26 +342,39 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     onEvent({ type: 'checkpoint', step, file: checkpointFile });
   };
 
-  /** Evaluates the current weights, logs the result, and saves the model when keeping the best. */
+  /** Evaluates the current weights on the validation photos, logs the result, and saves the model when keeping the best. */
   const recordEvaluation = async (): Promise<void> => {
-    const evaluation = await evaluate(set.holdout);
+    const evaluation = await evaluate(validationSet);
     lastEvaluation = { step, evaluation };
-    const improved = !best || evaluation.ciede2000 < best.evaluation.ciede2000;
-    if (improved) best = { step, evaluation };
-    const loss = lossSum / Math.max(1, lossCount);
+    const improved = !best || evaluation.ciede2000 < best.evaluation.ciede2000 - MIN_IMPROVEMENT;
+    if (improved) {
+      best = { step, evaluation };
+      sinceBest = 0;
+      if (settings.keep === 'best') bestWeights = network.getWeights().map((w) => Float32Array.from(w.dataSync() as Float32Array));
+    } else {
+      sinceBest++;
+    }
+    const loss = lossCount > 0 ? lossSum / lossCount : null;
     const { ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey } = evaluation;
     await appendTrainingLog(out, {
-      step, seconds: elapsed(), loss, ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey, best: improved, time: new Date().toISOString(),
+      step, seconds: elapsed(), loss, ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey, best: improved, photos: evaluation.photos, time: new Date().toISOString(),
     });
-    onEvent({ type: 'evaluation', step, loss, evaluation, best: improved });
+    onEvent({ type: 'evaluation', step, loss, evaluation, best: improved, bestSoFar: { step: best!.step, ciede2000: best!.evaluation.ciede2000 } });
     lossSum = 0;
     lossCount = 0;
-    if (improved && settings.keep === 'best') await saveKept(evaluation, step, elapsed());
+    if (improved && settings.keep === 'best') await saveKept(step, elapsed());
   };
 
   onEvent({ type: 'workers', workers, step, ...(previousWorkers !== undefined ? { previous: previousWorkers } : {}) });
+  if (stalled()) {
+    throw new UsageError(
+      `the run in ${out} stopped early: no improvement in ${sinceBest} evaluations since step ${best!.step}`,
+      `pass a larger --patience (or --patience 0 for none) with --resume to go on.`,
+      inUse,
+    );
+  }
   const parallel = workers > 1 ? new ParallelTrainer(network, trainer, { workers, classWeights, backend: backend.name }) : undefined;
-  let stoppedBy: FitResult['stoppedBy'] = 'steps';
+  let stoppedBy: StoppedBy = 'steps';
   try {
     for (;;) {
       if (step >= maxSteps) break;
@@ -326,12 +409,21 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       const perStep = (seconds - priorSeconds) / Math.max(1, step - (saved?.step ?? 0));
       const secondsLeft = Math.min(maxSeconds - seconds, (maxSteps - step) * perStep);
       const fraction = Math.max(maxSteps === Infinity ? 0 : step / maxSteps, maxSeconds === Infinity ? 0 : seconds / maxSeconds);
-      onEvent({ type: 'step', step, loss, seconds, secondsLeft: Math.max(0, secondsLeft), fraction: Math.min(1, fraction), heldOut: lastEvaluation?.evaluation.ciede2000 ?? best?.evaluation.ciede2000 });
+      onEvent({
+        type: 'step', step, loss, seconds, secondsLeft: Math.max(0, secondsLeft), fraction: Math.min(1, fraction),
+        ...(lastEvaluation ? { last: { step: lastEvaluation.step, ciede2000: lastEvaluation.evaluation.ciede2000 } } : {}),
+        ...(best ? { best: { step: best.step, ciede2000: best.evaluation.ciede2000 } } : {}),
+      });
 
       if (step % evalEvery === 0) await recordEvaluation();
+      if (stalled()) {
+        stoppedBy = 'no-improvement';
+        onEvent({ type: 'stalled', step, bestStep: best!.step, ciede2000: best!.evaluation.ciede2000, patience: settings.patience! });
+        break;
+      }
       if (Date.now() - lastCheckpoint >= checkpointMs) {
         await writeCheckpoint();
-        if (settings.keep === 'last') await saveKept(lastEvaluation?.evaluation ?? before, lastEvaluation?.step ?? 0, elapsed());
+        if (settings.keep === 'last') await saveKept(step, elapsed());
       }
     }
   } finally {
@@ -343,16 +435,17 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   if (step > 0 && lastEvaluation?.step !== step && (stoppedBy !== 'interrupted' || settings.keep === 'last')) await recordEvaluation();
   await writeCheckpoint();
   const seconds = elapsed();
-  let after: Evaluation;
-  let keptStep: number;
-  if (settings.keep === 'best' && best) {
-    after = best.evaluation;
+  // The model kept: the best on the validation photos, or the last; then, once, its held-out figures.
+  let keptStep = step;
+  if (settings.keep === 'best' && best && best.step !== step) {
     keptStep = best.step;
-  } else {
-    after = lastEvaluation?.step === step ? lastEvaluation.evaluation : await evaluate(set.holdout);
-    keptStep = step;
-    await saveKept(after, step, seconds);
+    setWeights(network, bestWeights ?? (await keptWeights(out)));
   }
+  const after = await evaluate(set.holdout);
+  const finished = stoppedBy !== 'interrupted';
+  const checkpointKept = !finished || Boolean(options.keepCheckpoint);
+  await saveModel(network, out, metaOf(record(keptStep, seconds, { after }, stoppedBy)), backbone);
+  onEvent({ type: 'model', step: keptStep, dir: out });
 
   const result: FitResult = {
     mode,
@@ -361,15 +454,41 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     crops: step * settings.batch,
     seconds,
     stoppedBy,
-    photos: { train: set.train.length, holdout: set.holdout.length, grey: set.grey.length, unreadable: set.unreadable.length },
+    checkpointKept,
+    photos: { train: set.train.length, validation: set.validation.length, holdout: set.holdout.length, grey: set.grey.length, unreadable: set.unreadable.length },
+    validation: { grey: validation.grey, before: validation.before, best: best?.evaluation ?? lastEvaluation?.evaluation ?? validation.before, bestStep: best?.step ?? keptStep },
     heldOut: { grey, before, after, keptStep },
+    holdoutFiles: set.holdout.map((p) => p.file),
+    ...(from ? { from } : {}),
     options: settings,
   };
-  const record = { ...result, budget: { hours: options.hours ?? null, steps: options.steps ?? null }, decoding, temperature, backend: backend.name, holdoutFiles: set.holdout.map((p) => p.file), skippedGreyOrToned: set.grey, unreadable: set.unreadable };
-  await writeFileAtomic(join(out, SUMMARY_FILE), `${JSON.stringify(record, null, 2)}\n`);
+  // Names below the photo folders given, never this machine's paths.
+  const { out: _out, holdoutFiles: _files, ...shared } = result;
+  const summary = {
+    ...shared,
+    out: basename(out),
+    budget: { hours: options.hours ?? null, steps: options.steps ?? null },
+    decoding,
+    temperature,
+    backend: backend.name,
+    holdoutFiles: set.holdout.map((p) => p.name),
+    validationFiles: set.validation.map((p) => p.name),
+    skippedGreyOrToned: set.grey.map((f) => basename(f)),
+    unreadable: set.unreadable.map((u) => ({ file: basename(u.file), reason: u.reason })),
+  };
+  await writeFileAtomic(join(out, SUMMARY_FILE), `${JSON.stringify(summary, null, 2)}\n`);
+  if (!checkpointKept) await rm(checkpointFile, { force: true });
   trainer.dispose?.();
   network.dispose();
   return result;
+}
+
+/** The weights of the model folder `dir` (the best kept so far, written when it was reached). */
+async function keptWeights(dir: string): Promise<Float32Array[]> {
+  const model = await loadModel(dir);
+  const weights = model.network.getWeights().map((w) => Float32Array.from(w.dataSync() as Float32Array));
+  model.network.dispose();
+  return weights;
 }
 
 function setWeights(network: tf.LayersModel, weights: Float32Array[]): void {
@@ -422,7 +541,11 @@ async function exists(path: string): Promise<boolean> {
 
 function checkSameData(saved: CheckpointState, set: PhotoSet, file: string): void {
   const same = (x: string[], y: string[]): boolean => x.length === y.length && x.every((v, i) => v === y[i]);
-  if (!same(saved.trainFiles, set.train.map((p) => p.file)) || !same(saved.holdoutFiles, set.holdout.map((p) => p.file))) {
+  if (
+    !same(saved.trainFiles, set.train.map((p) => p.file)) ||
+    !same(saved.holdoutFiles, set.holdout.map((p) => p.file)) ||
+    !same(saved.validation?.files ?? [], set.validation.map((p) => p.file))
+  ) {
     throw new KinhueError(ErrorCodes.BAD_DATA, 'the photos differ from those the checkpoint was trained on, so the run cannot continue exactly', {
       file,
       hint: 'resume with the same photo folders, or start a new run without --resume.',

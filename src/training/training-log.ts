@@ -1,6 +1,6 @@
 /**
  * The evaluation log of a run: one JSON object per line (JSONL) in the output folder, one line per
- * held-out evaluation, so a run can be followed or plotted while it trains.
+ * validation evaluation, so a run can be followed or plotted while it trains.
  */
 import { appendFile, readFile } from 'node:fs/promises';
 import { join } from 'node:path';
@@ -14,8 +14,8 @@ export interface TrainingLogEntry {
   step: number;
   /** Seconds of training so far (over all resumed sessions). */
   seconds: number;
-  /** Mean training loss since the previous entry. */
-  loss: number;
+  /** Mean training loss since the previous entry (null when no step was taken since). */
+  loss: number | null;
   ciede2000: number;
   psnr: number;
   colourfulness: number;
@@ -23,6 +23,8 @@ export interface TrainingLogEntry {
   rightHue?: number | null;
   falseColour?: number;
   leftGrey?: number | null;
+  /** Photos the figures rest on: the validation photos (absent in logs from before the split, which evaluated the held-out ones). */
+  photos?: number;
   /** True when this evaluation is the best so far. */
   best: boolean;
   time: string;

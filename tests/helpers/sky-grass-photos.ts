@@ -4,9 +4,9 @@ import sharp from 'sharp';
 
 /**
  * Writes `count` colour photos in miniature, 64 x 48 PNGs, sky above and grass below, each a little
- * different (our own test images): enough for a training run's crops and held-out photos.
+ * different (our own test images): enough for a training run's crops, validation and held-out photos.
  */
-export async function writeSkyGrassPhotos(folder: string, count = 4): Promise<string> {
+export async function writeSkyGrassPhotos(folder: string, count = 6): Promise<string> {
   await mkdir(folder, { recursive: true });
   for (let k = 0; k < count; k++) {
     const w = 64;

@@ -3,7 +3,6 @@
  * photographs, within a time and/or step budget, resumable.
  */
 import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
-import { fit } from '../../training/index.js';
 import { checkFitArgs, fitOptions, fitOptionsFrom, runWithProgress, type FitArgs } from '../training-report.js';
 
 const EXAMPLE = 'kinhue train photos/ --out models/mine --hours 2 --seed 1';
@@ -14,18 +13,16 @@ const EXAMPLE = 'kinhue train photos/ --out models/mine --hours 2 --seed 1';
  *   check({ photos: ['photos/'], out: 'models/mine', hours: 1 }); // true
  */
 export function check(argv: Partial<FitArgs>): true {
-  return checkFitArgs(argv, EXAMPLE);
+  return checkFitArgs(argv, 'train', EXAMPLE);
 }
 
-interface TrainArgs extends FitArgs {
-  backbone: boolean;
-}
+type TrainArgs = FitArgs & { backbone: boolean };
 
 export const command: CommandModule<object, TrainArgs> = {
   command: 'train <photos...>',
   describe: 'train a new model on folders of colour photographs (time budget, resumable)',
   builder: (yargs: Argv) =>
-    fitOptions(yargs)
+    fitOptions(yargs, 'train')
       .option('backbone', {
         type: 'boolean',
         default: true,
@@ -33,9 +30,8 @@ export const command: CommandModule<object, TrainArgs> = {
       })
       .example(EXAMPLE, 'train for two hours; add --resume after an interruption')
       .example('kinhue train photos/ --out models/mine --steps 2000 --batch 8 --crop 96', 'a fixed number of smaller steps')
-      .check((argv) => check(argv as Partial<FitArgs>)),
+      .check((argv) => check(argv as Partial<FitArgs>)) as unknown as Argv<TrainArgs>,
   handler: async (argv: ArgumentsCamelCase<TrainArgs>) => {
-    const backbone = argv.backbone ? {} : { backbone: false as const };
-    await runWithProgress('train', (signal, onEvent) => fit({ ...fitOptionsFrom(argv), ...backbone, mode: 'train', signal }, onEvent));
+    await runWithProgress({ ...fitOptionsFrom(argv, 'train'), ...(argv.backbone ? {} : { backbone: false as const }) });
   },
 };
