@@ -147,7 +147,10 @@ function borrowedFor(L: Float32Array, width: number, height: number, pw: number,
 
 /** Log of the region-pooled distributions of `logits` ([pixels, q] over a width x height grid). */
 function pooledLogits(logits: tf.Tensor2D, q: number, guide: Float32Array, width: number, height: number, settings: PoolingSettings): tf.Tensor2D {
-  const probabilities = tf.tidy(() => tf.softmax(logits).dataSync() as Float32Array);
+  // Read outside tf.tidy: tidy walks what it returns looking for tensors, a million-element array index by index.
+  const softmax = tf.softmax(logits);
+  const probabilities = softmax.dataSync() as Float32Array;
+  softmax.dispose();
   const pooled = poolRegions(probabilities, q, guide, width, height, settings);
   // A floor keeps the log finite where a bin got nothing (far below any probability that matters).
   for (let i = 0; i < pooled.length; i++) pooled[i] = Math.log(Math.max(pooled[i]!, 1e-12));
