@@ -11,6 +11,7 @@ import { join } from 'node:path';
 import * as tf from '@tensorflow/tfjs';
 import { lightnessToGrey, resizePlane } from '../colour/index.js';
 import { ModelError } from '../errors.js';
+import { runGraph } from './native-inference.js';
 
 /** The detector's input side: its graph is converted for 416 x 416. */
 export const BACKBONE_SIZE = 416;
@@ -158,7 +159,7 @@ export function backboneFeatures(backbone: Backbone, L: Float32Array, width: num
     }
   }
   const [local8, local16, global] = tf.tidy(() => {
-    const outs = backbone.graph.execute(tf.tensor4d(input, [1, 3, n, n]), [
+    const outs = runGraph(backbone, tf.tensor4d(input, [1, 3, n, n]), [
       NODES.stage8,
       NODES.classes8,
       NODES.stage16,

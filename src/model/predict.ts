@@ -8,6 +8,7 @@ import { type Backbone, type BackboneFeatures, backboneFeatures, borrowedInputs 
 import { type AbBins, abBins } from './bins.js';
 import { annealedMeanTensor, chooseDecoding, DEFAULT_DECODING, leastCiede2000, type Decoding } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
+import { runNetwork } from './native-inference.js';
 import { type PoolingSettings, poolRegions } from './region-pooling.js';
 import { NETWORK_MULTIPLE, OUTPUT_STRIDE, toNetworkInput } from './network.js';
 import type { KinhueModel } from './storage.js';
@@ -110,7 +111,7 @@ export function predict(
   const borrowed = network.inputs.length > 1 ? borrowedFor(L, width, height, pw, ph, options.features, options.backbone ?? own.backbone) : undefined;
   const pooling = options.pooling ?? own.pooling;
   const raw = tf.tidy(() => {
-    const logits = network.predict(networkInputs(input, 1, ph, pw, borrowed)) as tf.Tensor4D;
+    const logits = runNetwork(network, networkInputs(input, 1, ph, pw, borrowed));
     return tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]) as tf.Tensor2D;
   });
   // Pooled distributions stand in for the network's own from here on: as log-probabilities, which
