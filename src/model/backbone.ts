@@ -29,6 +29,9 @@ const NODES = {
   classes32: 'PartitionedCall/onnx_tf_prefix_Sigmoid_176',
 } as const;
 
+/** The nodes read, in the order backboneFeatures takes them (and the ONNX export computes). */
+export const BACKBONE_OUTPUTS = [NODES.stage8, NODES.classes8, NODES.stage16, NODES.stage32, NODES.classes16, NODES.classes32] as const;
+
 /**
  * The detector's activations spread about 0.07 around zero; scaled by this they reach about unit spread,
  * which the colour network's He-initialised layers expect (common practice).
@@ -159,14 +162,7 @@ export function backboneFeatures(backbone: Backbone, L: Float32Array, width: num
     }
   }
   const [local8, local16, global] = tf.tidy(() => {
-    const outs = runGraph(backbone, tf.tensor4d(input, [1, 3, n, n]), [
-      NODES.stage8,
-      NODES.classes8,
-      NODES.stage16,
-      NODES.stage32,
-      NODES.classes16,
-      NODES.classes32,
-    ]) as tf.Tensor4D[];
+    const outs = runGraph(backbone, tf.tensor4d(input, [1, 3, n, n]), BACKBONE_OUTPUTS) as tf.Tensor4D[];
     const [stage8, classes8, stage16, stage32, classes16, classes32] = outs as [tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D];
     const hwc = (t: tf.Tensor4D): tf.Tensor3D => tf.transpose(t, [0, 2, 3, 1]).squeeze([0]) as tf.Tensor3D;
     const l8 = tf.concat([hwc(stage8), hwc(classes8)], 2);
