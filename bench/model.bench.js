@@ -1,5 +1,7 @@
 // Size and speed of the colour model on this machine, with the backend kinhue picks (tfjs-node,
-// else WebAssembly, else plain JavaScript; set KINHUE_BENCH_BACKEND=wasm|cpu|node to prefer one).
+// else ONNX Runtime for the model, else WebAssembly, else plain JavaScript; set
+// KINHUE_BENCH_BACKEND=node|onnxruntime|wasm|cpu to prefer one). The shipped model's inference is
+// printed for ONNX Runtime and WebAssembly both, with what the in-memory ONNX export costs at load.
 // Prints: parameters, GFLOPs per 512 x 384 image, inference milliseconds per 512 x 384 image,
 // training samples per second on 128 x 128 crops in batches of 16 (goal, issue 3: one such step in
 // at most 2 s with WebAssembly), and which backend ran. Wall-clock and, since the machine may be
@@ -7,7 +9,12 @@
 // Imports dist/model/ alone so that nothing else loads. Uses a freshly created network: speed does
 // not depend on the weights.
 import * as tf from '@tensorflow/tfjs';
-import { abBins, createNetwork, createTrainer, initBackend, networkFlops, predict } from '../dist/model/index.js';
+import { existsSync } from 'node:fs';
+import { join } from 'node:path';
+import {
+  abBins, BACKBONE_OUTPUTS, backboneFeatures, createNetwork, createTrainer, DEFAULT_MODEL_DIR, graphModelToOnnx, initBackend, loadModel, networkFlops, networkToOnnx,
+  OnnxSession, onnxRuntimeVersion, predict,
+} from '../dist/model/index.js';
 
 const WIDTH = 512;
 const HEIGHT = 384;
@@ -52,7 +59,7 @@ function planes(n, w, h) {
   return { L, ab };
 }
 
-console.log(`backend                             ${backend.name}${backend.warning ? ` (${backend.warning})` : ''}`);
+console.log(`backend                             ${backend.name}, the model on ${backend.model}${backend.warning ? ` (${backend.warning})` : ''}`);
 console.log(`parameters                          ${network.countParams().toLocaleString('en')} (${((network.countParams() * 4) / 1e6).toFixed(1)} MB of float32 weights)`);
 console.log(`a*b* bins                           ${bins.count}`);
 console.log(`GFLOPs per ${WIDTH} x ${HEIGHT} image          ${(networkFlops(network, WIDTH, HEIGHT) / 1e9).toFixed(2)}`);
@@ -64,6 +71,41 @@ for (const decoding of ['least-ciede2000', 'annealed-mean']) {
   console.log(
     `inference per ${WIDTH} x ${HEIGHT} image     ${decoding}: best ${infer.best.toFixed(0)} ms, median ${infer.median.toFixed(0)} ms wall; ${infer.cpu.toFixed(0)} ms CPU`,
   );
+}
+
+// The shipped model (with its backbone) on each backend that runs a model here, then back to the run's own.
+if (existsSync(join(DEFAULT_MODEL_DIR, 'kinhue-model.json'))) {
+  const shipped = await loadModel(DEFAULT_MODEL_DIR);
+  for (const model of onnxRuntimeVersion() ? ['onnxruntime', 'wasm'] : ['wasm']) {
+    const info = await initBackend({ prefer: model });
+    const run = measure(() => predict(shipped, image.L, WIDTH, HEIGHT), 3);
+    const features = backboneFeatures(shipped.backbone, image.L, WIDTH, HEIGHT);
+    const backbone = measure(() => backboneFeatures(shipped.backbone, image.L, WIDTH, HEIGHT), 3);
+    const rest = measure(() => predict(shipped, image.L, WIDTH, HEIGHT, { features }), 3);
+    const bare = measure(() => predict(shipped, image.L, WIDTH, HEIGHT, { features, pooling: false, decoding: 'annealed-mean' }), 3);
+    console.log(
+      `shipped model per ${WIDTH} x ${HEIGHT} image  ${info.model}: best ${run.best.toFixed(0)} ms, median ${run.median.toFixed(0)} ms wall; ${run.cpu.toFixed(0)} ms CPU, ` +
+        `of which backbone ${backbone.cpu.toFixed(0)}, network (with the cheap annealed mean) ${bare.cpu.toFixed(0)}, region pooling and least-CIEDE2000 decoding ${Math.max(0, rest.cpu - bare.cpu).toFixed(0)}`,
+    );
+  }
+  if (onnxRuntimeVersion()) {
+    // What exporting at load costs (each restore worker does it once), against shipping .onnx files.
+    const c0 = cpuMs();
+    const netBytes = networkToOnnx(shipped.network);
+    const c1 = cpuMs();
+    new OnnxSession(netBytes).dispose();
+    const c2 = cpuMs();
+    const graphBytes = graphModelToOnnx(JSON.parse(Buffer.from(shipped.backbone.topology).toString('utf8')), shipped.backbone.weights, BACKBONE_OUTPUTS);
+    const c3 = cpuMs();
+    new OnnxSession(graphBytes).dispose();
+    const c4 = cpuMs();
+    console.log(
+      `ONNX export at load, ms CPU           network ${(c1 - c0).toFixed(0)} (${(netBytes.length / 1e6).toFixed(1)} MB) + session ${(c2 - c1).toFixed(0)}; ` +
+        `backbone ${(c3 - c2).toFixed(0)} (${(graphBytes.length / 1e6).toFixed(1)} MB) + session ${(c4 - c3).toFixed(0)}`,
+    );
+  }
+  shipped.network.dispose();
+  await initBackend(prefer ? { prefer } : {});
 }
 
 const trainer = createTrainer(network, { learningRate: 1e-3, classWeights: new Float32Array(bins.count).fill(1) });

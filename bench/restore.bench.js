@@ -1,6 +1,8 @@
 // Restore throughput and memory. Prints, for a folder of 6-megapixel 8-bit JPEG scans: images per minute
 // with --jobs 1 and --jobs 2, the time of decode plus encode alone on the same files (the floor) and the
-// ratio to it; then the peak resident memory of restoring a 100-megapixel 16-bit greyscale TIFF.
+// ratio to it, the time per stage and the backend that ran the model (and, where that is ONNX Runtime,
+// the same at --jobs 1 with TensorFlow.js on WebAssembly); then the peak resident memory of restoring a
+// 100-megapixel 16-bit greyscale TIFF.
 // Goal (issue 4): at least 60 images per minute on a 2-core machine. Figures only, no assertions.
 // Uses models/kinhue-base when present, else a freshly created (untrained) network of the default size:
 // colour quality plays no part in speed.
@@ -106,15 +108,20 @@ async function main() {
   const floorPerImage = (performance.now() - f0) / 1000 / files.length;
   console.log(`floor (decode + encode alone, 1 core): ${floorPerImage.toFixed(2)} s per image, ${(60 / floorPerImage).toFixed(1)} images/min`);
 
-  for (const jobs of [1, 2]) {
-    const out = join(tmp, `out-${jobs}`);
+  // The backend kinhue picks, at one and two jobs; then, where that is ONNX Runtime, TensorFlow.js on
+  // WebAssembly alone (KINHUE_BACKEND=wasm) at one job, so that the model stage compares per backend.
+  const runs = [{ jobs: 1 }, { jobs: 2 }];
+  for (let k = 0; k < runs.length; k++) {
+    const { jobs, backend } = runs[k];
+    const out = join(tmp, `out-${k}`);
     const t0 = performance.now();
     const args = [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--jobs', String(jobs), '--json'];
+    const env = backend ? { ...process.env, KINHUE_BACKEND: backend } : process.env;
     // GNU time, where present, adds the CPU seconds used: a figure other load on the machine does not inflate.
     const timed = existsSync('/usr/bin/time');
     const r = timed
-      ? spawnSync('/usr/bin/time', ['-f', 'kinhue-bench-cpu %U %S', process.execPath, ...args], { encoding: 'utf8', maxBuffer: 64 << 20 })
-      : spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 64 << 20 });
+      ? spawnSync('/usr/bin/time', ['-f', 'kinhue-bench-cpu %U %S', process.execPath, ...args], { encoding: 'utf8', maxBuffer: 64 << 20, env })
+      : spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 64 << 20, env });
     const seconds = (performance.now() - t0) / 1000;
     const cpuLine = /kinhue-bench-cpu ([\d.]+) ([\d.]+)/.exec(r.stderr ?? '');
     const cpuSeconds = cpuLine ? Number(cpuLine[1]) + Number(cpuLine[2]) : undefined;
@@ -125,8 +132,9 @@ async function main() {
     const records = files.map((f) => JSON.parse(readFileSync(join(out, f.split('/').pop().replace(/\.jpg$/, '.kinhue.json')), 'utf8')));
     const stage = (k) => mean(records.map((x) => x.timings[k]));
     const perImage = seconds / files.length;
+    const label = `restore --jobs ${jobs}${backend ? ` (KINHUE_BACKEND=${backend})` : ''}`;
     console.log(
-      `restore --jobs ${jobs}: ${(60 / perImage).toFixed(1)} images/min (${seconds.toFixed(1)} s for ${files.length}, start-up included); ` +
+      `${label}: ${(60 / perImage).toFixed(1)} images/min (${seconds.toFixed(1)} s for ${files.length}, start-up included); ` +
         `ratio to the floor ${(perImage / floorPerImage).toFixed(1)}x`,
     );
     if (cpuSeconds !== undefined) {
@@ -139,6 +147,7 @@ async function main() {
       `  per image, ms (mean): decode ${stage('decode')}, working size ${stage('lightness')}, model ${stage('model')}, ` +
         `colour ${stage('colour')}, encode ${stage('encode')}, total ${stage('total')}; backend ${records[0].backend}`,
     );
+    if (k === 0 && records[0].backend === 'onnxruntime') runs.push({ jobs: 1, backend: 'wasm' });
   }
 
   // Peak memory for a 100-megapixel 16-bit greyscale TIFF (10000 x 10000).

@@ -17,7 +17,7 @@ async function start(): Promise<void> {
   let backend: string;
   try {
     const info = await initBackend();
-    backend = info.name;
+    backend = info.model;
     model = await loadModel(init.modelDir);
     post({ type: 'ready', backend, warning: info.warning });
   } catch (error) {

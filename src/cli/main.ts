@@ -24,7 +24,7 @@ export async function main(args: string[]): Promise<void> {
     .scriptName('kinhue')
     .usage('kinhue <command> [options]\n\nColourise black-and-white photographs offline. A colourised photo is an interpretation, not a record.')
     .version(VERSION)
-    .option('verbose', { type: 'boolean', default: false, global: true, describe: 'say more: which compute backend runs (tfjs-node, wasm or cpu)' })
+    .option('verbose', { type: 'boolean', default: false, global: true, describe: 'say more: which compute backend runs the model (tfjs-node, onnxruntime, wasm or cpu)' })
     .help()
     .alias('h', 'help')
     .strict()

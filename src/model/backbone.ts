@@ -11,6 +11,7 @@ import { join } from 'node:path';
 import * as tf from '@tensorflow/tfjs';
 import { lightnessToGrey, resizePlane } from '../colour/index.js';
 import { ModelError } from '../errors.js';
+import { runGraph } from './native-inference.js';
 
 /** The detector's input side: its graph is converted for 416 x 416. */
 export const BACKBONE_SIZE = 416;
@@ -27,6 +28,9 @@ const NODES = {
   classes16: 'PartitionedCall/onnx_tf_prefix_Sigmoid_165',
   classes32: 'PartitionedCall/onnx_tf_prefix_Sigmoid_176',
 } as const;
+
+/** The nodes read, in the order backboneFeatures takes them (and the ONNX export computes). */
+export const BACKBONE_OUTPUTS = [NODES.stage8, NODES.classes8, NODES.stage16, NODES.stage32, NODES.classes16, NODES.classes32] as const;
 
 /**
  * The detector's activations spread about 0.07 around zero; scaled by this they reach about unit spread,
@@ -158,14 +162,7 @@ export function backboneFeatures(backbone: Backbone, L: Float32Array, width: num
     }
   }
   const [local8, local16, global] = tf.tidy(() => {
-    const outs = backbone.graph.execute(tf.tensor4d(input, [1, 3, n, n]), [
-      NODES.stage8,
-      NODES.classes8,
-      NODES.stage16,
-      NODES.stage32,
-      NODES.classes16,
-      NODES.classes32,
-    ]) as tf.Tensor4D[];
+    const outs = runGraph(backbone, tf.tensor4d(input, [1, 3, n, n]), BACKBONE_OUTPUTS) as tf.Tensor4D[];
     const [stage8, classes8, stage16, stage32, classes16, classes32] = outs as [tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D];
     const hwc = (t: tf.Tensor4D): tf.Tensor3D => tf.transpose(t, [0, 2, 3, 1]).squeeze([0]) as tf.Tensor3D;
     const l8 = tf.concat([hwc(stage8), hwc(classes8)], 2);

@@ -1,21 +1,36 @@
 /**
- * Chooses the TensorFlow.js backend: the native one (tfjs-node) when it is installed and loads,
- * else WebAssembly (SIMD, one thread in Node), else the plain JavaScript one with a warning.
+ * Chooses the backends: TensorFlow.js's native one (tfjs-node) when it is installed and loads, for
+ * everything; else ONNX Runtime (onnxruntime-node, every core) for the network and the backbone, with
+ * TensorFlow.js on WebAssembly for training and the rest; else WebAssembly alone (SIMD, one thread in
+ * Node); else the plain JavaScript backend with a warning. KINHUE_BACKEND names one to try first.
  */
 import * as tf from '@tensorflow/tfjs';
+import { UsageError } from '../errors.js';
+import { setOnnxInference } from './native-inference.js';
+import { onnxRuntimeVersion } from './onnx-runtime.js';
 import { registerWasmTrainingKernels } from './wasm-kernels.js';
 
-export type BackendName = 'node' | 'wasm' | 'cpu';
+export type BackendName = 'node' | 'onnxruntime' | 'wasm' | 'cpu';
+
+const BACKEND_NAMES: readonly BackendName[] = ['node', 'onnxruntime', 'wasm', 'cpu'];
+
+/** The environment variable naming the backend to try first. */
+export const BACKEND_ENV = 'KINHUE_BACKEND';
 
 export interface BackendInfo {
   /** The TensorFlow.js backend that runs: 'tensorflow' (tfjs-node), 'wasm' or 'cpu'. */
   name: string;
+  /**
+   * What runs the model (network and backbone), as provenance records name it: 'onnxruntime', or the
+   * TensorFlow.js backend's name.
+   */
+  model: string;
   /** Set when kinhue had to fall back to something slow. */
   warning?: string;
 }
 
 export interface BackendOptions {
-  /** Try this one first; the others follow in the order node, wasm, cpu. */
+  /** Try this one first (default: KINHUE_BACKEND's); the others follow in the order node, onnxruntime, wasm, cpu. */
   prefer?: BackendName;
 }
 
@@ -59,14 +74,21 @@ async function choose(prefer: BackendName | undefined): Promise<BackendInfo> {
   // TensorFlow.js prints its own notices (e.g. on starting the cpu backend in Node); only the CLI
   // prints in kinhue, and it reports the fallback from `warning`.
   tf.env().set('PROD', true);
-  const order: BackendName[] = ['node', 'wasm', 'cpu'];
+  setOnnxInference(false);
+  const order = [...BACKEND_NAMES];
   if (prefer) order.sort((x, y) => (x === prefer ? -1 : y === prefer ? 1 : 0));
   for (const name of order) {
-    if (name === 'node' && (await tryNode())) return { name: tf.getBackend() };
-    if (name === 'wasm' && (await tryWasm())) return { name: tf.getBackend() };
+    if (name === 'node' && (await tryNode())) return { name: tf.getBackend(), model: tf.getBackend() };
+    if (name === 'onnxruntime' && onnxRuntimeVersion()) {
+      // TensorFlow.js still trains, decodes and runs what is not the network: on WebAssembly where it starts.
+      if (!(await tryWasm())) await tf.setBackend('cpu');
+      setOnnxInference(true);
+      return { name: tf.getBackend(), model: 'onnxruntime' };
+    }
+    if (name === 'wasm' && (await tryWasm())) return { name: tf.getBackend(), model: tf.getBackend() };
     if (name === 'cpu') {
       await tf.setBackend('cpu');
-      return prefer === 'cpu' ? { name: 'cpu' } : { name: 'cpu', warning: CPU_WARNING };
+      return prefer === 'cpu' ? { name: 'cpu', model: 'cpu' } : { name: 'cpu', model: 'cpu', warning: CPU_WARNING };
     }
   }
   /* c8 ignore next */
@@ -81,14 +103,25 @@ async function choose(prefer: BackendName | undefined): Promise<BackendInfo> {
  * if (warning) console.error(warning);
  */
 export function initBackend(options: BackendOptions = {}): Promise<BackendInfo> {
-  const key = options.prefer ?? 'auto';
+  const prefer = options.prefer ?? preferredByEnvironment();
+  const key = prefer ?? 'auto';
   if (current && current.key === key) return current.info;
-  const info = choose(options.prefer);
+  const info = choose(prefer);
   current = { key, info };
   return info;
 }
 
-/** The backend now running, as recorded in provenance records. */
+/** KINHUE_BACKEND's backend, if set; a name kinhue does not know is a usage error. */
+function preferredByEnvironment(): BackendName | undefined {
+  const value = process.env[BACKEND_ENV];
+  if (value === undefined || value === '') return undefined;
+  if (!(BACKEND_NAMES as readonly string[]).includes(value)) {
+    throw new UsageError(`${BACKEND_ENV}=${value.slice(0, 40)} names no backend kinhue knows`, `set it to one of ${BACKEND_NAMES.join(', ')}, or unset it`);
+  }
+  return value as BackendName;
+}
+
+/** The TensorFlow.js backend now running. */
 export function backendName(): string {
   return tf.getBackend();
 }

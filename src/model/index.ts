@@ -1,5 +1,5 @@
 // The colour model: backends and kernels, a*b* bins and encodings, the network, training steps,
-// save/load and prediction. Re-exports only.
+// save/load, prediction, and the ONNX exports with the runtime that runs them. Re-exports only.
 export * from './backend.js';
 export * from './wasm-kernels.js';
 export * from './bins.js';
@@ -16,3 +16,6 @@ export * from './backbone.js';
 export * from './region-pooling.js';
 export * from './face-finder.js';
 export { readModelFiles, tidyModelFolder, type ModelFiles } from './folder.js';
+export { networkToOnnx, OnnxExportError } from './onnx-network.js';
+export { graphModelToOnnx, type GraphModelJson } from './onnx-graph.js';
+export { onnxRuntimeVersion, OnnxSession } from './onnx-runtime.js';

@@ -8,6 +8,7 @@ import { type Backbone, type BackboneFeatures, backboneFeatures, borrowedInputs 
 import { type AbBins, abBins } from './bins.js';
 import { annealedMeanTensor, chooseDecoding, DEFAULT_DECODING, leastCiede2000, type Decoding } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
+import { runNetwork } from './native-inference.js';
 import { type PoolingSettings, poolRegions } from './region-pooling.js';
 import { NETWORK_MULTIPLE, OUTPUT_STRIDE, toNetworkInput } from './network.js';
 import type { KinhueModel } from './storage.js';
@@ -110,7 +111,7 @@ export function predict(
   const borrowed = network.inputs.length > 1 ? borrowedFor(L, width, height, pw, ph, options.features, options.backbone ?? own.backbone) : undefined;
   const pooling = options.pooling ?? own.pooling;
   const raw = tf.tidy(() => {
-    const logits = network.predict(networkInputs(input, 1, ph, pw, borrowed)) as tf.Tensor4D;
+    const logits = runNetwork(network, networkInputs(input, 1, ph, pw, borrowed));
     return tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]) as tf.Tensor2D;
   });
   // Pooled distributions stand in for the network's own from here on: as log-probabilities, which
@@ -147,7 +148,10 @@ function borrowedFor(L: Float32Array, width: number, height: number, pw: number,
 
 /** Log of the region-pooled distributions of `logits` ([pixels, q] over a width x height grid). */
 function pooledLogits(logits: tf.Tensor2D, q: number, guide: Float32Array, width: number, height: number, settings: PoolingSettings): tf.Tensor2D {
-  const probabilities = tf.tidy(() => tf.softmax(logits).dataSync() as Float32Array);
+  // Read outside tf.tidy: tidy walks what it returns looking for tensors, a million-element array index by index.
+  const softmax = tf.softmax(logits);
+  const probabilities = softmax.dataSync() as Float32Array;
+  softmax.dispose();
   const pooled = poolRegions(probabilities, q, guide, width, height, settings);
   // A floor keeps the log finite where a bin got nothing (far below any probability that matters).
   for (let i = 0; i < pooled.length; i++) pooled[i] = Math.log(Math.max(pooled[i]!, 1e-12));

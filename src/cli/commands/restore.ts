@@ -154,7 +154,7 @@ export const command: CommandModule<object, RestoreArgs> = {
           runStart = performance.now();
           break;
         case 'backend':
-          if (argv.verbose) progress.log(`backend: ${event.name} (TensorFlow.js)`);
+          if (argv.verbose) progress.log(`backend: ${event.name} (${event.name === 'onnxruntime' ? 'ONNX Runtime runs the model' : 'TensorFlow.js'})`);
           if (event.warning) progress.log(`warning: ${event.warning}`);
           break;
         case 'done':
