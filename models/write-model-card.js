@@ -12,7 +12,7 @@ import sharp from 'sharp';
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), '..');
 const modelDir = resolve(process.argv[2] ?? join(root, 'models', 'kinhue-base'));
-const kinhue = await import(join(root, 'dist', 'index.js'));
+const kinhue = await import('kinhue');
 const rel = relative(root, modelDir) || '.';
 const name = basename(modelDir);
 

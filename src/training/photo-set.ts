@@ -4,13 +4,13 @@
  * evaluation. Bad data stops the run before any model is written.
  */
 import { readdir, stat } from 'node:fs/promises';
-import { basename, extname, join, resolve, sep } from 'node:path';
+import { basename, join, resolve, sep } from 'node:path';
 import pLimit from 'p-limit';
-import { srgbToLab } from '../colour/index.js';
+import { downscaleToFloatRgb, srgbToLab } from '../colour/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
+import { hasImageExtension } from '../files/index.js';
 import { classifyTone, decodeImage } from '../image/index.js';
 import { Random } from './random.js';
-import { downscaleToFloatRgb } from './resample.js';
 
 /** One colour photo, downscaled, as CIELAB planes. */
 export interface Photo {
@@ -57,8 +57,6 @@ export interface PhotoSet {
 
 /** The fewest colour photos a run accepts: two held out, two to learn from. */
 export const MIN_COLOUR_PHOTOS = 4;
-
-const IMAGE_EXTENSIONS = new Set(['.jpg', '.jpeg', '.jpe', '.png', '.tif', '.tiff', '.webp', '.gif', '.avif', '.heic', '.heif', '.jp2', '.jxl']);
 
 /**
  * Reads every photo under `paths` (files or folders, folders searched recursively).
@@ -168,7 +166,7 @@ async function findFiles(paths: string[], exclude?: string): Promise<{ files: Fo
       else if (entry.isFile()) {
         // Every file is tried (a scanner may write photos without an extension); only those named
         // like images count as unreadable when they fail.
-        files.push({ file: full, named: IMAGE_EXTENSIONS.has(extname(entry.name).toLowerCase()) });
+        files.push({ file: full, named: hasImageExtension(entry.name) });
       }
     }
   };
