@@ -100,6 +100,7 @@ describe('fit: resume', () => {
     // Interrupted by its step budget after 3 steps, then resumed to 6.
     const first = await fit({ ...base, out: join(dir, 'split'), steps: 3 });
     expect(first.steps).toBe(3);
+    const halfway = await weightsOf(join(dir, 'split'));
     const resumed = await fit({ ...base, out: join(dir, 'split'), steps: 6, resume: true });
     expect(resumed.steps).toBe(6);
 
@@ -120,8 +121,9 @@ describe('fit: resume', () => {
       b.weights.forEach((w, i) => expect(Buffer.from(w.buffer).equals(Buffer.from(a.weights[i]!.buffer))).toBe(true));
       b.trainer.moments.forEach((m, i) => expect(Buffer.from(m.v.buffer).equals(Buffer.from(a.trainer.moments[i]!.v.buffer))).toBe(true));
     }
-    // The weights did change from the start (so the comparison means something).
-    expect(whole.heldOut.after.ciede2000).not.toBe(whole.heldOut.before.ciede2000);
+    // The weights did change after step 3 (so the comparison means something; a held-out figure may not
+    // move in 6 steps of a tiny network).
+    expect(halfway.weights.some((w, i) => !Buffer.from(w.buffer).equals(Buffer.from(a.weights[i]!.buffer)))).toBe(true);
 
     // The log has one line per evaluation (steps 2, 4, 6), also after a resume (no duplicates).
     const log = await readTrainingLog(join(dir, 'whole'));
