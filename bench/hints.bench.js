@@ -4,9 +4,9 @@
 import { loadavg } from 'node:os';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
-import {
-  decodeImage, greyToLightness, loadReference, parseHints, propagateHints, rasteriseHints, shrinkPlane, transferReference,
-} from '../dist/index.js';
+import { greyToLightness, shrinkPlane } from '../dist/colour/index.js';
+import { loadReference, parseHints, propagateHints, rasteriseHints, transferReference } from '../dist/hints/index.js';
+import { decodeImage } from '../dist/image/index.js';
 
 const root = join(dirname(fileURLToPath(import.meta.url)), '..');
 const scan = await decodeImage(join(root, 'demo-photos/scans/wrenfold-01-hill-pasture.jpg'));

@@ -14,7 +14,12 @@ import { fileURLToPath } from 'node:url';
 
 const here = dirname(fileURLToPath(import.meta.url));
 const root = join(here, '..');
-const kinhue = await import(join(root, 'dist', 'index.js'));
+const kinhue = {
+  ...(await import(join(root, 'dist', 'index.js'))),
+  // Not in the public API: an untrained network for the speed figures, and the image codec.
+  ...(await import(join(root, 'dist', 'model', 'index.js'))),
+  ...(await import(join(root, 'dist', 'image', 'index.js'))),
+};
 const BIN = join(root, 'bin', 'kinhue.js');
 const SCANS = Number(process.env.KINHUE_BENCH_SCANS ?? 8);
 const WIDTH = 3000;

@@ -5,14 +5,14 @@
 // (`score`): on the held-out photos listed in the summary (found in .data/pool, rebuilt by
 // models/gather-photos.sh) and on the demo album's originals. Running it again reproduces the card:
 //   npm run build && node models/write-model-card.js models/kinhue-base
-import { readFile, writeFile, rename, stat } from 'node:fs/promises';
+import { readdir, readFile, writeFile, rename, stat } from 'node:fs/promises';
 import { basename, dirname, join, relative, resolve } from 'node:path';
 import { fileURLToPath } from 'node:url';
 import sharp from 'sharp';
 
 const root = resolve(dirname(fileURLToPath(import.meta.url)), '..');
 const modelDir = resolve(process.argv[2] ?? join(root, 'models', 'kinhue-base'));
-const kinhue = await import(join(root, 'dist', 'index.js'));
+const kinhue = await import('kinhue');
 const rel = relative(root, modelDir) || '.';
 const name = basename(modelDir);
 
@@ -66,7 +66,7 @@ async function hasFace(file) {
   const { data, info } = await sharp(file).rotate().resize(512, 512, { fit: 'inside' }).removeAlpha().raw().toBuffer({ resolveWithObject: true });
   return kinhue.findFaces(faceFinder, kinhue.srgbToLab(new Uint8Array(data), 3).L, info.width, info.height).length > 0;
 }
-const demoFiles = (await kinhue.discoverInputs([demo], join(root, '.data', 'no-output'))).files.map((x) => x.path);
+const demoFiles = (await readdir(demo)).filter((f) => /\.(jpe?g|png|tiff?|webp)$/i.test(f)).sort().map((f) => join(demo, f));
 const people = [];
 for (const file of [...holdout, ...demoFiles]) if (await hasFace(file)) people.push(file);
 const peopleAlone = await scoreOf(people, false);

@@ -4,12 +4,14 @@ import { join } from 'node:path';
 import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import {
-  appendManifest, discoverInputs, loadManifest, planOutputs, readManifest, settingsKey, terminateManifest, type RestoreSettings,
+  appendManifest, loadManifest, planOutputs, readManifest, settingsKey, terminateManifest, type RestoreSettings,
 } from '../src/batch/index.js';
 import { UsageError } from '../src/errors.js';
-import { fitName, hostLabel, NAME_MAX_BYTES, tempPathFor, temporaryOwner } from '../src/files/index.js';
+import { discoverInputs, fitName, hostLabel, NAME_MAX_BYTES, tempPathFor, temporaryOwner } from '../src/files/index.js';
 
 let root: string;
+/** Discovery as restore runs it, writing into `outDir`. */
+const at = (outDir: string) => ({ outDir, example: 'Example usage: kinhue restore scans/ --out restored/' });
 
 beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'kinhue-plan-'));
@@ -27,19 +29,19 @@ afterAll(async () => {
 
 describe('discoverInputs', () => {
   it('finds images in folders recursively, sorted, without the output folder inside an input or non-images', async () => {
-    const d = await discoverInputs([join(root, 'scans')], join(root, 'scans', 'restored'));
+    const d = await discoverInputs([join(root, 'scans')], at(join(root, 'scans', 'restored')));
     expect(d.files.map((f) => f.rel)).toEqual(['a.JPG', 'a.png', 'b.jpg', 'sub/c.tif']);
     expect(d.base).toBe(join(root, 'scans'));
     expect(d.notes.join(' ')).toMatch(/output folder/);
   });
 
   it('mirrors from the common base of several inputs, and takes globs and files', async () => {
-    const d = await discoverInputs([join(root, 'other', 'b.jpg'), `${root}/scans/*.jpg`], join(root, 'out'));
+    const d = await discoverInputs([join(root, 'other', 'b.jpg'), `${root}/scans/*.jpg`], at(join(root, 'out')));
     expect(d.files.map((f) => f.rel)).toEqual(['other/b.jpg', 'scans/a.JPG', 'scans/b.jpg']);
   });
 
   it('lists the same file once when it is named twice', async () => {
-    const d = await discoverInputs([join(root, 'scans', 'b.jpg'), join(root, 'scans')], join(root, 'out'));
+    const d = await discoverInputs([join(root, 'scans', 'b.jpg'), join(root, 'scans')], at(join(root, 'out')));
     expect(d.files.filter((f) => f.rel === 'b.jpg')).toHaveLength(1);
   });
 
@@ -49,8 +51,8 @@ describe('discoverInputs', () => {
     const grey = sharp({ create: { width: 16, height: 16, channels: 3, background: '#777777' } });
     await grey.clone().gif().toFile(join(folder, 'a.gif'));
     await grey.clone().avif().toFile(join(folder, 'b.AVIF'));
-    expect((await discoverInputs([folder], join(root, 'out'))).files.map((f) => f.rel)).toEqual(['a.gif', 'b.AVIF']);
-    expect((await discoverInputs([`${folder}/*`], join(root, 'out'))).files.map((f) => f.rel)).toEqual(['a.gif', 'b.AVIF']);
+    expect((await discoverInputs([folder], at(join(root, 'out')))).files.map((f) => f.rel)).toEqual(['a.gif', 'b.AVIF']);
+    expect((await discoverInputs([`${folder}/*`], at(join(root, 'out')))).files.map((f) => f.rel)).toEqual(['a.gif', 'b.AVIF']);
   });
 
   it('follows links to folders but searches each real folder once, keeping the direct path', async () => {
@@ -61,7 +63,7 @@ describe('discoverInputs', () => {
     await symlink('..', join(top, 'sub', 'back')); // a loop back to the top
     await symlink(join(top, 'sub'), join(top, 'again')); // the same folder twice
     await symlink('a.jpg', join(top, 'a-link.jpg')); // the same file twice
-    const d = await discoverInputs([top], join(root, 'out'));
+    const d = await discoverInputs([top], at(join(root, 'out')));
     expect(d.files.map((f) => f.rel)).toEqual(['a.jpg', 'sub/b.jpg']);
     expect(d.problems).toEqual([]);
   });
@@ -73,14 +75,14 @@ describe('discoverInputs', () => {
     await symlink(join(top, 'gone.jpg'), join(top, 'broken.jpg'));
     await symlink(join(top, 'loop-b.jpg'), join(top, 'loop-a.jpg'));
     await symlink(join(top, 'loop-a.jpg'), join(top, 'loop-b.jpg'));
-    const inFolder = await discoverInputs([top], join(root, 'out'));
+    const inFolder = await discoverInputs([top], at(join(root, 'out')));
     expect(inFolder.files.map((f) => f.rel)).toEqual(['good.jpg']);
     expect(inFolder.problems.map((p) => [p.rel, p.code])).toEqual([
       ['broken.jpg', 'KH_UNREADABLE'], ['loop-a.jpg', 'KH_UNREADABLE'], ['loop-b.jpg', 'KH_UNREADABLE'],
     ]);
     expect(inFolder.problems[0]!.message).toMatch(/does not exist/);
     expect(inFolder.problems[1]!.message).toMatch(/loop/);
-    const named = await discoverInputs([join(top, 'good.jpg'), join(top, 'broken.jpg'), join(top, 'loop-a.jpg')], join(root, 'out'));
+    const named = await discoverInputs([join(top, 'good.jpg'), join(top, 'broken.jpg'), join(top, 'loop-a.jpg')], at(join(root, 'out')));
     expect(named.files.map((f) => f.rel)).toEqual(['good.jpg']);
     expect(named.problems.map((p) => p.rel)).toEqual(['broken.jpg', 'loop-a.jpg']);
     for (const p of named.problems) expect(p.hint).toMatch(/fix or remove the link/);
@@ -91,15 +93,15 @@ describe('discoverInputs', () => {
     await mkdir(scans, { recursive: true });
     await writeFile(join(scans, 'x.jpg'), 'x');
     await symlink(scans, join(root, 'same-link'));
-    await expect(discoverInputs([scans], join(root, 'same-link'))).rejects.toThrow(/is the output folder/);
-    await expect(discoverInputs([join(root, 'same-link', 'x.jpg')], scans)).rejects.toThrow(/lies in the output folder/);
-    await expect(discoverInputs([join(root, 'same-link')], join(scans, '.'))).rejects.toBeInstanceOf(UsageError);
+    await expect(discoverInputs([scans], at(join(root, 'same-link')))).rejects.toThrow(/is the output folder/);
+    await expect(discoverInputs([join(root, 'same-link', 'x.jpg')], at(scans))).rejects.toThrow(/lies in the output folder/);
+    await expect(discoverInputs([join(root, 'same-link')], at(join(scans, '.')))).rejects.toBeInstanceOf(UsageError);
   });
 
   it('refuses an input folder inside the output folder, a missing path, and finding nothing', async () => {
-    await expect(discoverInputs([join(root, 'scans', 'restored')], join(root, 'scans'))).rejects.toBeInstanceOf(UsageError);
-    await expect(discoverInputs([join(root, 'nope')], join(root, 'out'))).rejects.toThrow(/no such file or folder/);
-    await expect(discoverInputs([`${root}/scans/*.gif`], join(root, 'out'))).rejects.toThrow(/no image files found/);
+    await expect(discoverInputs([join(root, 'scans', 'restored')], at(join(root, 'scans')))).rejects.toBeInstanceOf(UsageError);
+    await expect(discoverInputs([join(root, 'nope')], at(join(root, 'out')))).rejects.toThrow(/no such file or folder/);
+    await expect(discoverInputs([`${root}/scans/*.gif`], at(join(root, 'out')))).rejects.toThrow(/no image files found/);
   });
 });
 

@@ -245,7 +245,7 @@ describe('starter hints', () => {
     const dir = await mkdtemp(join(tmpdir(), 'kinhue-hints-'));
     await writeFile(join(dir, 'barn.hints.json'), doc([{ x: 400, y: 1, colour: '#fff' }]));
     const guidance = await prepareGuidance(join(dir, 'barn.jpg'), 300, 200);
-    expect(guidance.refine).toBeUndefined();
+    expect(guidance.guides).toEqual([]);
     expect(guidance.record.hints).toMatchObject({ used: false });
     expect(guidance.record.hints!.ignored).toContain('entry 1');
   });

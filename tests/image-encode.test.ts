@@ -8,9 +8,10 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { greyToLightness, lightnessFromY, srgbToLab, ciede2000 } from '../src/colour/index.js';
 import { ErrorCodes, KinhueError } from '../src/errors.js';
 import { pngWithIcc } from '../src/image/containers.js';
+import { writeAtomic, writeFileAtomic } from '../src/files/index.js';
 import {
   decodeBuffer, decodeImage, encodeBuffer, encodeImage, exifOrientation, extensionFor, formatForPath,
-  provenanceXmp, writeAtomic, writeFileAtomic, writeGreyMap, type OutputFormat, type Pixels,
+  provenanceXmp, writeGreyMap, type OutputFormat, type Pixels,
 } from '../src/image/index.js';
 import { VERSION } from '../src/version.js';
 import { greyGammaProfile } from './image-icc-profile.js';

@@ -6,7 +6,8 @@ import { mkdtemp, readdir, readFile, rm, stat, writeFile } from 'node:fs/promise
 import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
-import { discoverInputs, hostLabel, loadRunFolder, partOf, planOutputs, type RunProgress } from '../src/index.js';
+import { loadRunFolder, partOf, planOutputs, type RunProgress } from '../src/batch/index.js';
+import { discoverInputs, hostLabel } from '../src/files/index.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
 import { slurmMissing, startSlurm, type SingleNodeSlurm } from './helpers/single-node-slurm.js';
 
@@ -85,7 +86,7 @@ afterAll(async () => {
 
 describe.skipIf(Boolean(skipReason))(`the README's Slurm array script on a single-node Slurm${skipReason ? ` (skipped: ${skipReason})` : ''}`, () => {
   it('restores every scan exactly once in 3 tasks; a task cancelled part-way and resubmitted does only what was left', async () => {
-    const discovery = await discoverInputs([SCANS], join(root, 'nowhere'));
+    const discovery = await discoverInputs([SCANS], { example: '' });
     const outputs = planOutputs(discovery.files, 'same').map((o) => o.image);
     expect(outputs).toHaveLength(7);
 

@@ -12,11 +12,8 @@ import {
   CropSampler,
   Random,
   evaluatePhotos,
-  downscaleToFloatRgb,
   loadCheckpoint,
   loadPhotoSet,
-  resizeBilinear,
-  sampleCrop,
   saveCheckpoint,
   splitHoldout,
   type Photo,
@@ -79,54 +76,6 @@ describe('Random (sfc32)', () => {
     const shuffled = new Random(3).shuffle([...items]);
     expect([...shuffled].sort((x, y) => x - y)).toEqual(items);
     expect(shuffled).not.toEqual(items);
-  });
-});
-
-describe('resampling', () => {
-  it('area-averages a 4 x 4 image to 2 x 2 (each output the mean of its 2 x 2 block, by definition)', () => {
-    const data = new Uint8Array(16 * 3);
-    for (let i = 0; i < 16; i++) data.set([i * 10, 255 - i * 10, 100], i * 3);
-    const out = downscaleToFloatRgb({ width: 4, height: 4, channels: 3, depth: 8, data }, 2);
-    expect(out.width).toBe(2);
-    expect(out.height).toBe(2);
-    // Top-left block holds pixels 0, 1, 4, 5: red mean (0 + 10 + 40 + 50) / 4 = 25.
-    expect(out.data[0]).toBeCloseTo(25 / 255, 6);
-    expect(out.data[1]).toBeCloseTo((255 * 4 - 100) / 4 / 255, 6);
-    // Bottom-right block: pixels 10, 11, 14, 15 -> red (100 + 110 + 140 + 150) / 4 = 125.
-    expect(out.data[9]).toBeCloseTo(125 / 255, 6);
-  });
-
-  it('spreads 16-bit grey to three equal channels', () => {
-    const data = new Uint16Array([0, 65535, 65535, 0]);
-    const out = downscaleToFloatRgb({ width: 2, height: 2, channels: 1, depth: 16, data }, 1);
-    expect(Array.from(out.data)).toEqual([0.5, 0.5, 0.5]);
-  });
-
-  it('samples crops exactly on a linear ramp (bilinear interpolation is exact for linear data)', () => {
-    const w = 40;
-    const h = 30;
-    const plane = new Float32Array(w * h);
-    for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) plane[y * w + x] = x + 100 * y;
-    const out = new Float32Array(64);
-    sampleCrop(plane, w, h, { x: 3, y: 5, side: 8, flip: false }, 8, out, 0);
-    expect(out[0]).toBe(3 + 500);
-    expect(out[7 * 8 + 7]).toBe(10 + 1200);
-    sampleCrop(plane, w, h, { x: 3, y: 5, side: 8, flip: true }, 8, out, 0);
-    expect(out[0]).toBe(10 + 500);
-    // Zoomed out by 2: output (ox, oy) samples source (3 + 2 ox + 0.5, 5 + 2 oy + 0.5).
-    sampleCrop(plane, w, h, { x: 3, y: 5, side: 16, flip: false }, 8, out, 0);
-    for (const [ox, oy] of [[0, 0], [5, 2], [7, 7]] as const) {
-      expect(out[oy * 8 + ox]).toBeCloseTo(3 + 2 * ox + 0.5 + 100 * (5 + 2 * oy + 0.5), 3);
-    }
-  });
-
-  it('upsamples bilinearly: constants stay constant, ramps stay ramps away from the border', () => {
-    const flat = resizeBilinear(new Float32Array(12).fill(7), 4, 3, 16, 12);
-    expect(flat.every((v) => v === 7)).toBe(true);
-    const ramp = new Float32Array([0, 4, 8, 12]);
-    const up = resizeBilinear(ramp, 4, 1, 16, 1);
-    // Output centre x maps to source (x + 0.5) / 4 - 0.5; values there are 4 times that.
-    for (let x = 2; x < 14; x++) expect(up[x]).toBeCloseTo(4 * ((x + 0.5) / 4 - 0.5), 5);
   });
 });
 

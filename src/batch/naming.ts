@@ -8,7 +8,7 @@
 import { extname, posix } from 'node:path';
 import { fitName, NAME_MAX_BYTES } from '../files/index.js';
 import { extensionFor, formatForPath, type OutputFormat } from '../image/index.js';
-import type { SourceFile } from './discovery.js';
+import type { SourceFile } from '../files/index.js';
 import type { FormatChoice } from './options.js';
 
 export interface PlannedOutputs {

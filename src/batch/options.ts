@@ -13,6 +13,15 @@ export type FormatChoice = 'same' | OutputFormat;
 
 export const FORMAT_CHOICES: readonly FormatChoice[] = ['same', 'jpeg', 'png', 'tiff', 'webp'];
 
+/** Every default of a restore run that does not depend on the model or the machine, declared once (the CLI shows these). */
+export const RESTORE_DEFAULTS = {
+  format: 'same' as FormatChoice,
+  confidence: true,
+  force: false,
+  dryRun: false,
+  skin: true,
+} as const;
+
 /** The manifest's file name inside the output folder. */
 export const MANIFEST_NAME = 'kinhue-run.jsonl';
 

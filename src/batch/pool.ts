@@ -6,7 +6,7 @@
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
 import { Worker } from 'node:worker_threads';
-import type { FileJob, FileOutcome } from './restore-file.js';
+import type { FileJob, FileOutcome } from './stages/pipeline.js';
 import { reviveError, type FromWorker, type WorkerInit } from './worker-protocol.js';
 
 /** The built worker script. src/batch and dist/batch are both two levels below the package root. */

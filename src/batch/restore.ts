@@ -1,62 +1,23 @@
 /**
- * The restore run: discover the scans, plan their outputs, keep this part's scans when the run is one
- * part of many, read the folder's manifests, then restore every file not already finished on a queue
- * of worker threads, recording each outcome as it lands. One bad file is recorded and the run goes on;
- * a stop request lets files in progress finish and starts no new one.
+ * The restore run: the plan (stages/plan.ts) resolved once, then every file not already finished
+ * restored on a queue of worker threads (each runs stages/pipeline.ts: analyse -> predict -> guide ->
+ * render -> write), each outcome appended to the manifest as it lands. One bad file is recorded and the
+ * run goes on; a stop request lets files in progress finish and starts no new one.
  */
-import { mkdir, stat } from 'node:fs/promises';
-import { basename, dirname, join, resolve } from 'node:path';
+import { mkdir } from 'node:fs/promises';
+import { basename, dirname } from 'node:path';
 import pLimit from 'p-limit';
-import { ErrorCodes, isKinhueError, KinhueError, ModelError, UsageError } from '../errors.js';
-import { hostLabel, identify, InputGuard, isTemporaryOfAny, leftByEndedProcess, removeTemporaryFiles } from '../files/index.js';
-import { resolveMaxPixels } from '../image/index.js';
-import { readModelInfo } from './model-info.js';
-import { discoverInputs, underFolder } from './discovery.js';
+import { ErrorCodes, isKinhueError, UsageError } from '../errors.js';
+import { hostLabel, isTemporaryOfAny, leftByEndedProcess, removeTemporaryFiles, underFolder } from '../files/index.js';
 import { appendManifest, terminateManifest, type ManifestRecord } from './manifest.js';
-import { loadRunFolder, manifestName, splitCounts } from './run-folder.js';
-import { checkedPart, partLabel, partOf, type Part } from './part.js';
-import { planOutputs, type PlannedOutputs } from './naming.js';
-import { DEFAULT_MODEL_DIR, chooseDecoding } from '../model/index.js';
-import { cachedReference, hintsFingerprint } from '../hints/index.js';
-import { defaultJobs, settingsKey, type RestoreOptions, type RestoreSettings } from './options.js';
+import type { RestoreOptions, RestoreSettings } from './options.js';
+import type { Part } from './part.js';
 import { WorkerPool } from './pool.js';
-import type { FileJob, ProvenanceRecord } from './restore-file.js';
+import type { FileJob, FileOutcome } from './stages/pipeline.js';
+import { checkOutputs, planRestore, type FileFailure, type HintsNotUsed, type PlannedFile, type RestorePlan } from './stages/plan.js';
 import { serialiseError, type SerialisedError } from './worker-protocol.js';
-import { fileSha256 } from './hash.js';
 
-/**
- * What happens to one discovered file: `conflict` when the output folder holds another scan's result
- * under this scan's output name, `refuse` when an output would replace an input.
- */
-export type PlanAction = 'run' | 'retry' | 'skip' | 'conflict' | 'refuse';
-
-export interface PlannedFile {
-  source: string;
-  /** Source path relative to the inputs' common base. */
-  rel: string;
-  outputs: PlannedOutputs;
-  /** SHA-256 of the scan's hints file when planned; null when it has none or hints are off. */
-  hintsSha256: string | null;
-  action: PlanAction;
-  /** After the run: what happened ('planned' on a dry run). */
-  status: 'planned' | 'done' | 'failed' | 'skipped' | 'not-run';
-}
-
-export interface FileFailure {
-  source: string;
-  rel: string;
-  code: string;
-  message: string;
-  hint?: string;
-}
-
-/** A hints file (or the --hints folder) that was not used: the scan was restored without its guidance. */
-export interface HintsNotUsed {
-  /** The scan, relative to the inputs' base; absent for the --hints folder itself. */
-  rel?: string;
-  file: string;
-  reason: string;
-}
+export type { FileFailure, HintsNotUsed, PlanAction, PlannedFile, RestorePlan } from './stages/plan.js';
 
 export type RestoreEvent =
   | { type: 'plan'; files: PlannedFile[]; toRun: number; skipped: number; outDir: string; notes: string[]; failures: FileFailure[] }
@@ -106,124 +67,31 @@ export interface RestoreSummary {
  */
 export async function restore(options: RestoreOptions, onEvent: (event: RestoreEvent) => void = () => {}): Promise<RestoreSummary> {
   const started = performance.now();
-  const outDir = resolve(options.out);
-  const modelDir = resolve(options.model ?? DEFAULT_MODEL_DIR);
-  const jobs = options.jobs ?? defaultJobs();
-  if (!Number.isInteger(jobs) || jobs < 1) throw new UsageError(`jobs must be a whole number of 1 or more, got ${jobs}`);
-  const maxPixels = resolveMaxPixels(options.maxPixels);
-  const outInfo = await stat(outDir).catch(() => undefined);
-  if (outInfo && !outInfo.isDirectory()) {
-    throw new UsageError(`--out ${options.out} is a file, not a folder\nExample usage: kinhue restore scans/ --out restored/`);
-  }
-
-  const model = await readModelInfo(modelDir).catch((error: unknown) => {
-    if (options.model === undefined && error instanceof ModelError) {
-      throw new ModelError(`the shipped model is missing or damaged (${error.message})`, {
-        file: modelDir,
-        hint: 'reinstall kinhue, or pass a model folder with --model',
-      });
-    }
-    throw error;
-  });
-  const settings: RestoreSettings = {
-    model: model.name,
-    weightsSha256: model.weightsSha256,
-    workSize: options.workSize ?? model.workingSize,
-    decoding: chooseDecoding(options, model.decoding),
-    temperature: options.temperature ?? model.temperature,
-    format: options.format ?? 'same',
-    quality: options.quality ?? null,
-    confidence: options.confidence ?? true,
-    ...(options.hints !== undefined ? { hints: options.hints === false ? false : resolve(options.hints) } : {}),
-    ...(options.reference ? { reference: resolve(options.reference) } : {}),
-    ...(options.skin === false ? { skin: false as const } : {}),
-  };
-  // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.
-  if (settings.reference) await cachedReference(settings.reference);
-  const key = settingsKey(settings);
-  const hintsNotUsed: HintsNotUsed[] = [];
-  if (typeof settings.hints === 'string') {
-    const folder = await stat(settings.hints).catch(() => undefined);
-    if (!folder?.isDirectory()) {
-      hintsNotUsed.push({
-        file: settings.hints,
-        reason: `${folder ? 'is not a folder' : 'does not exist'}: the --hints folder was not searched (hints files beside the scans were still used)`,
-      });
-    }
-  }
-
-  const part = options.part ? checkedPart(options.part.index, options.part.count, 'part') : null;
-  const discovery = await discoverInputs(options.inputs, outDir);
-  const inPart = (rel: string): boolean => !part || partOf(rel, part.count) === part.index;
-  const notes = [...model.warnings, ...discovery.notes];
-  const problems = discovery.problems.filter((p) => inPart(p.rel));
-  const failures: FileFailure[] = problems.map((p) => ({ source: p.path, rel: p.rel, code: p.code, message: p.message, hint: p.hint }));
-  const guard = await InputGuard.of(discovery.files.map((f) => f.path), {
-    hint: 'choose an --out folder that is not your scans folder and holds no link to it', outsideInputFolders: true,
-  });
-  // Outputs are named over all scans found, so every part names them alike; then each part keeps its own.
-  const allOutputs = planOutputs(discovery.files, settings.format);
-  const mine = discovery.files.flatMap((f, i) => (inPart(allOutputs[i]!.image) ? [{ f, o: allOutputs[i]! }] : []));
-  const host = hostLabel();
-  const ownName = manifestName(part, host);
-  const manifestPath = join(outDir, ownName);
-  await guard.check(manifestPath);
-  const run = await loadRunFolder(outDir, ownName);
-  const splits = splitCounts(run);
-  if (part && splits.some((count) => count !== part.count)) {
-    throw new UsageError(
-      `the output folder ${options.out} holds parts of a run split into ${splits.join(' and ')} parts; ${partLabel(part)} would share outputs with them`,
-      `split this run into ${splits[0]} parts as before (--part K/${splits[0]}, or --part-count ${splits[0]}), or, once no part runs any more, finish it on one machine without --part`,
-    );
-  }
-  notes.push(...run.notes);
-  const previous = run.records;
-  const files: PlannedFile[] = [];
-  for (const { f, o } of mine) {
-    const last = previous.get(o.image);
-    const hintsSha256 = settings.hints === false ? null : await hintsFingerprint(f.path, settings.hints || undefined, f.rel);
-    const file: PlannedFile = { source: f.path, rel: f.rel, outputs: o, hintsSha256, action: last?.status === 'failed' ? 'retry' : 'run', status: 'planned' };
-    const fail = (action: PlanAction, error: KinhueError): void => {
-      file.action = action;
-      file.status = 'failed';
-      failures.push({ source: f.path, rel: f.rel, code: error.code, message: error.message, hint: error.hint });
-    };
-    const refused = await checkOutputs(guard, outDir, o).catch((error: unknown) => error as KinhueError);
-    if (refused) fail('refuse', refused);
-    else if (!options.force && last && (await conflicting(f.path, outDir, o, last))) {
-      fail('conflict', new KinhueError(ErrorCodes.OUTPUT_CONFLICT, `the output folder holds the result of another scan, ${last.source}, under this scan's name ${o.image}`, {
-        file: f.path,
-        hint: 'restore this album into its own --out folder, or add --force to replace the earlier result',
-      }));
-    } else if (
-      !options.force && last?.status === 'done' && last.settings === key && (last.hintsSha256 ?? null) === hintsSha256 &&
-      (await stillFinished(f.path, outDir, o, last))
-    ) {
-      file.action = 'skip';
-      file.status = 'skipped';
-    }
-    files.push(file);
-  }
+  const plan = await planRestore(options);
+  const { outDir, settings, key, files, failures } = plan;
+  const manifestPath = plan.manifest.path;
+  const notes = [...plan.notes];
   const todo = files.filter((f) => f.action === 'run' || f.action === 'retry');
   const skipped = files.filter((f) => f.action === 'skip').length;
   if (!options.dryRun) {
     await mkdir(outDir, { recursive: true }).catch((error: unknown) => {
       throw new UsageError(`the output folder ${options.out} could not be created (${(error as Error).message})`, 'choose a writable --out folder');
     });
-    if (run.manifests.find((m) => m.name === ownName)?.contents.torn) await terminateManifest(manifestPath);
+    if (plan.manifest.torn) await terminateManifest(manifestPath);
     await appendManifest(manifestPath, {
       time: new Date().toISOString(),
-      start: { part, host, pid: process.pid, files: todo.length + skipped, all: discovery.files.length, toRun: todo.length, settings: key },
+      start: { part: plan.part, host: plan.host, pid: process.pid, files: todo.length + skipped, all: plan.found, toRun: todo.length, settings: key },
     });
     notes.push(...(await removeLeftovers(outDir, files, todo)));
   }
   onEvent({ type: 'plan', files, toRun: todo.length, skipped, outDir, notes, failures });
 
   const summary: RestoreSummary = {
-    outDir, manifest: manifestPath, part, found: discovery.files.length, total: files.length + problems.length,
-    done: 0, skipped, failed: failures, hintsNotUsed,
+    outDir, manifest: manifestPath, part: plan.part, found: plan.found, total: files.length + plan.problems,
+    done: 0, skipped, failed: failures, hintsNotUsed: plan.hintsNotUsed,
     notRun: 0, interrupted: false, dryRun: Boolean(options.dryRun), seconds: 0,
-    model: { dir: modelDir, name: model.name, weightsSha256: model.weightsSha256, topologySha256: model.topologySha256 }, settings, files, notes,
+    model: { dir: plan.model.dir, name: plan.model.name, weightsSha256: plan.model.weightsSha256, topologySha256: plan.model.topologySha256 },
+    settings, files, notes,
   };
   if (options.dryRun || todo.length === 0) {
     summary.notRun = options.dryRun ? todo.length : 0;
@@ -231,8 +99,8 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     return summary;
   }
 
-  const pool = new WorkerPool(Math.min(jobs, todo.length), { modelDir });
-  const limit = pLimit(Math.min(jobs, todo.length));
+  const pool = new WorkerPool(Math.min(plan.jobs, todo.length), { modelDir: plan.model.dir });
+  const limit = pLimit(Math.min(plan.jobs, todo.length));
   let stopping = false;
   let hard = false;
   let fatal: Error | undefined;
@@ -255,16 +123,16 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   const runOne = async (file: PlannedFile): Promise<void> => {
     if (stopping || fatal) return;
     onEvent({ type: 'start', rel: file.rel });
-    const job: FileJob = { source: file.source, rel: file.rel, outDir, outputs: file.outputs, settings, maxPixels };
+    const job = jobOf(plan, file);
     try {
       // Again just before writing: links may have changed since the plan.
-      await checkOutputs(guard, outDir, file.outputs);
+      await checkOutputs(plan.guard, outDir, file.outputs);
       const outcome = await pool.run(job);
       if (pool.backend && summary.backend === undefined) {
         summary.backend = pool.backend;
         onEvent({ type: 'backend', name: pool.backend, warning: pool.backendWarning });
       }
-      await appendManifest(manifestPath, doneRecord(file, outcome.record, outcome, key));
+      await appendManifest(manifestPath, doneRecord(file, outcome, key));
       const hints = outcome.record.guidance?.hints;
       if (hints?.ignored) summary.hintsNotUsed.push({ rel: file.rel, file: hints.file, reason: hints.ignored });
       summary.done++;
@@ -299,7 +167,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     await pool.close();
     if (hard) {
       const folders = new Set(todo.map((f) => dirname(underFolder(outDir, f.outputs.image))));
-      for (const folder of folders) await removeTemporaryFiles(folder, (o) => o.pid === process.pid && o.host === host);
+      for (const folder of folders) await removeTemporaryFiles(folder, (o) => o.pid === process.pid && o.host === plan.host);
     }
   }
   if (fatal) throw fatal;
@@ -339,61 +207,24 @@ async function removeLeftovers(outDir: string, files: PlannedFile[], todo: Plann
   return stale ? [`removed ${stale} temporary file${stale === 1 ? '' : 's'} left by an earlier run that was stopped`] : [];
 }
 
-/** Throws OutputOnInputError when one of a scan's outputs would replace an input. */
-async function checkOutputs(guard: InputGuard, outDir: string, outputs: PlannedOutputs): Promise<void> {
-  for (const rel of [outputs.image, outputs.confidence, outputs.record]) await guard.check(underFolder(outDir, rel));
+/** The plan entry as a worker restores it. */
+function jobOf(plan: RestorePlan, file: PlannedFile): FileJob {
+  return {
+    source: file.source, rel: file.rel, outDir: plan.outDir, outputs: file.outputs, settings: plan.settings, hints: file.hints, maxPixels: plan.maxPixels,
+  };
 }
 
-/**
- * True when the output folder holds, under this scan's output name, what an earlier run made from
- * another scan: a different source path that is not the same file (a link) nor the same bytes (a moved
- * album), with some of its result still there.
- */
-async function conflicting(source: string, outDir: string, outputs: PlannedOutputs, last: ManifestRecord): Promise<boolean> {
-  if (last.source === source) return false;
-  const present = await Promise.all([outputs.image, outputs.record, outputs.confidence].map((rel) => stat(underFolder(outDir, rel)).then(() => true, () => false)));
-  if (!present.some(Boolean)) return false;
-  const [now, then] = await Promise.all([identify(source), identify(last.source)]);
-  if (now.id && now.id === then.id) return false;
-  if (last.sha256) {
-    const sha = await fileSha256(source).catch(() => undefined);
-    if (sha === last.sha256) return false;
-  }
-  return true;
-}
-
-/** True when an earlier run's outputs are all present and the source is unchanged (size and time, else hash). */
-async function stillFinished(source: string, outDir: string, outputs: PlannedOutputs, last: ManifestRecord): Promise<boolean> {
-  const wanted = [outputs.image, outputs.record, ...(last.companions ?? [])];
-  for (const rel of wanted) {
-    if (!(await stat(underFolder(outDir, rel)).catch(() => undefined))) return false;
-  }
-  const info = await stat(source).catch(() => undefined);
-  if (!info) return false;
-  if (info.size === last.size && info.mtimeMs === last.mtimeMs) return true;
-  try {
-    return (await fileSha256(source)) === last.sha256;
-  } catch {
-    return false;
-  }
-}
-
-function doneRecord(
-  file: PlannedFile,
-  record: ProvenanceRecord,
-  outcome: { size: number; mtimeMs: number; sha256: string; seconds: number },
-  key: string,
-): ManifestRecord {
+function doneRecord(file: PlannedFile, outcome: FileOutcome, key: string): ManifestRecord {
   return {
     time: new Date().toISOString(),
     status: 'done',
     source: file.source,
     output: file.outputs.image,
-    companions: [file.outputs.record, ...(record.result.confidenceMap ? [file.outputs.confidence] : [])],
+    companions: [file.outputs.record, ...(outcome.record.result.confidenceMap ? [file.outputs.confidence] : [])],
     size: outcome.size,
     mtimeMs: outcome.mtimeMs,
     sha256: outcome.sha256,
-    hintsSha256: file.hintsSha256,
+    hintsSha256: file.hints?.sha256 ?? null,
     settings: key,
     seconds: Number(outcome.seconds.toFixed(3)),
   };

@@ -2,7 +2,7 @@
  * The messages between the run and its worker threads (plain data only).
  */
 import type { SerialisedError } from '../errors.js';
-import type { FileJob, FileOutcome } from './restore-file.js';
+import type { FileJob, FileOutcome } from './stages/pipeline.js';
 
 // How errors cross a thread boundary is shared with training's workers (errors.ts).
 export { reviveError, serialiseError, type SerialisedError } from '../errors.js';

@@ -4,7 +4,7 @@
  */
 import { parentPort, workerData } from 'node:worker_threads';
 import { initBackend, loadFaceFinder, loadModel, type FaceFinder, type KinhueModel } from '../model/index.js';
-import { restoreFile } from './restore-file.js';
+import { restoreFile } from './stages/pipeline.js';
 import { serialiseError, type FromWorker, type ToWorker, type WorkerInit } from './worker-protocol.js';
 
 const port = parentPort;

@@ -5,7 +5,7 @@
  * the Reinhard transfer and the model it started from, with the verdict saying which to use.
  */
 import { basename, join } from 'node:path';
-import { writeFileAtomic } from '../image/index.js';
+import { writeFileAtomic } from '../files/index.js';
 import { BACKBONE_TOPOLOGY_FILE, BACKBONE_WEIGHTS_FILE, METADATA_FILE, TOPOLOGY_FILE, WEIGHTS_FILE } from '../model/index.js';
 import { score, type ScoreReport } from '../report/index.js';
 import { CHECKPOINT_FILE, SUMMARY_FILE, TRAINING_LOG_FILE, type FitResult } from '../training/index.js';

@@ -7,6 +7,7 @@
  * is always a weighted mean of predicted colours, so film grain in L* does not turn into colour noise.
  * The full-resolution stage works row by row, so huge images are processed in strips.
  */
+import { gridPoint } from './resample.js';
 
 export interface BilateralUpsampleOptions {
   /** Grid cell side in low-resolution pixels. Default 1. */
@@ -203,123 +204,6 @@ export function bilateralUpsample(
   const b = new Float32Array(fullWidth * fullHeight);
   sliceRows(grid, fullL, fullWidth, fullHeight, 0, fullHeight, a, b);
   return { a, b };
-}
-
-/**
- * Bilinear resize of one plane, pixel centres aligned (common practice, as libvips and most resizers do).
- * @example
- *   const a512 = resizePlane(a128, 128, 96, 512, 384);
- */
-export function resizePlane(plane: Float32Array, sw: number, sh: number, width: number, height: number): Float32Array {
-  const out = new Float32Array(width * height);
-  resizeRows(plane, sw, sh, width, height, 0, height, out);
-  return out;
-}
-
-/**
- * Rows `y0` to `y0 + rows - 1` of a bilinear resize of a plane to `width` x `height`, written row-major
- * into `out` (which holds just those rows).
- * @example
- *   resizeRows(conf128, 128, 96, 4000, 3000, 256, 64, strip);
- */
-export function resizeRows(
-  plane: Float32Array,
-  sw: number,
-  sh: number,
-  width: number,
-  height: number,
-  y0: number,
-  rows: number,
-  out: Float32Array,
-): void {
-  const c0 = new Int32Array(width);
-  const c1 = new Int32Array(width);
-  const tx = new Float32Array(width);
-  for (let x = 0; x < width; x++) [c0[x], c1[x], tx[x]] = gridPoint(x, width, sw, 1, sw);
-  for (let j = 0; j < rows; j++) {
-    const [r0, r1, ty] = gridPoint(y0 + j, height, sh, 1, sh);
-    const o0 = r0 * sw;
-    const o1 = r1 * sw;
-    const base = j * width;
-    for (let x = 0; x < width; x++) {
-      const p = c0[x]!;
-      const q = c1[x]!;
-      const t = tx[x]!;
-      const top = plane[o0 + p]! + (plane[o0 + q]! - plane[o0 + p]!) * t;
-      const bottom = plane[o1 + p]! + (plane[o1 + q]! - plane[o1 + p]!) * t;
-      out[base + x] = top + (bottom - top) * ty;
-    }
-  }
-}
-
-/**
- * Area-average downscaling of one plane to `width` x `height` (each output pixel the mean of the source
- * pixels its footprint covers, as in the model's training data).
- * @example
- *   const small = shrinkPlane(L, 4000, 3000, 512, 384);
- */
-export function shrinkPlane(plane: Float32Array, sw: number, sh: number, width: number, height: number): Float32Array {
-  const acc = new PlaneShrinker(sw, sh, width, height);
-  acc.addRows(plane, 0, sh);
-  return acc.result();
-}
-
-/**
- * Area-average downscaling fed strip by strip, for sources too large to hold as one float plane.
- * @example
- *   const s = new PlaneShrinker(40000, 2500, 512, 32);
- *   for (const strip of strips) s.addRows(strip.L, strip.y0, strip.rows);
- *   const small = s.result();
- */
-export class PlaneShrinker {
-  private readonly sums: Float64Array;
-  private readonly counts: Float64Array;
-  private readonly colOf: Int32Array;
-
-  constructor(
-    private readonly sw: number,
-    private readonly sh: number,
-    readonly width: number,
-    readonly height: number,
-  ) {
-    this.sums = new Float64Array(width * height);
-    this.counts = new Float64Array(width * height);
-    this.colOf = new Int32Array(sw);
-    for (let x = 0; x < sw; x++) this.colOf[x] = Math.min(width - 1, Math.floor((x * width) / sw));
-  }
-
-  /** Adds `rows` source rows starting at source row `y0` (`plane` holds just those rows). */
-  addRows(plane: Float32Array, y0: number, rows: number): void {
-    const { sw, sh, width, height, sums, counts, colOf } = this;
-    for (let j = 0; j < rows; j++) {
-      const oy = Math.min(height - 1, Math.floor(((y0 + j) * height) / sh));
-      const o = oy * width;
-      const base = j * sw;
-      for (let x = 0; x < sw; x++) {
-        sums[o + colOf[x]!] += plane[base + x]!;
-        counts[o + colOf[x]!]! += 1;
-      }
-    }
-  }
-
-  result(): Float32Array {
-    const out = new Float32Array(this.width * this.height);
-    for (let i = 0; i < out.length; i++) out[i] = this.counts[i]! > 0 ? this.sums[i]! / this.counts[i]! : 0;
-    return out;
-  }
-}
-
-/**
- * Where full-resolution index i (of n) falls on a grid whose cells cover `cell` low-resolution pixels of
- * m in all (g cells): the two neighbouring cells and the weight of the second. Pixel centres aligned.
- */
-function gridPoint(i: number, n: number, m: number, cell: number, g: number): [number, number, number] {
-  let f = (((i + 0.5) * m) / n - 0.5 - (cell - 1) / 2) / cell;
-  if (f < 0) f = 0;
-  if (f > g - 1) f = g - 1;
-  const i0 = Math.floor(f);
-  const i1 = Math.min(g - 1, i0 + 1);
-  return [i0, i1, f - i0];
 }
 
 /**

@@ -11,5 +11,9 @@ export * from './gamut.js';
 export * from './metrics.js';
 export * from './hue-agreement.js';
 export * from './bilateral-upsample.js';
+export {
+  areaMean, downscaleToFloatRgb, fitInside, PlaneShrinker, resizePlane, resizeRows, sampleCrop, shrinkPlane,
+  type CropWindow, type FloatRgb, type Samples,
+} from './resample.js';
 export * from './chroma-limit.js';
 export * from './working-colour.js';

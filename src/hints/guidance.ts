@@ -1,32 +1,20 @@
 /**
- * Hints files and reference photos brought to one scan: finds `<name>.hints.json`, reads the reference
- * (once per process), and returns the refine step that restore applies at the working size, with a record
- * of what was used for the scan's provenance. A bad hints file never stops a restore: the scan is restored
- * without hints and the record says why.
+ * Hints files and reference photos as guides for one scan: finds `<name>.hints.json` (read once, so the
+ * hash restore records is that of the text it uses), reads the reference (once per process), and returns
+ * the guides restore applies at the working size, with the record of what was used for the scan's
+ * provenance. A bad hints file never stops a restore: the scan is restored without hints and the record
+ * says why.
  */
 import { createHash } from 'node:crypto';
 import { readFile } from 'node:fs/promises';
 import { basename, dirname, extname, join, resolve } from 'node:path';
-import { resizePlane, type WorkingColour } from '../colour/index.js';
+import type { Guide, GuideInput } from '../colour/index.js';
 import { ErrorCodes, KinhueError, isKinhueError } from '../errors.js';
 import { parseHints, type Hints } from './hints-file.js';
 import { checkHintsSize, rasteriseHints } from './hint-raster.js';
 import { PREDICTION_EDGE_SCALE, propagateHints } from './propagate.js';
 import { loadReference, transferReference, type ReferenceSet } from './reference.js';
 import type { SkinRecord } from './skin-prior.js';
-
-export interface GuidanceOptions {
-  /** Folder of hints files; searched before the scan's own folder. */
-  hintsDir?: string;
-  /** False: look for no hints file at all. Default true. */
-  useHints?: boolean;
-  /** A reference colour photograph, or a folder of them. */
-  reference?: string;
-  /** The scan's path relative to the run's inputs, to look for `<hintsDir>/<relative folder>/<name>.hints.json`. */
-  relative?: string;
-  /** See PropagationOptions.priorWeight. */
-  priorWeight?: number;
-}
 
 /** What the provenance record says about hints and references. */
 export interface GuidanceRecord {
@@ -55,10 +43,35 @@ export interface GuidanceRecord {
 /** How many colour adjustments a record (and so the run's output) lists one by one; the rest are counted. */
 export const LISTED_ADJUSTMENTS = 20;
 
+/** A scan's hints file as found: its text (null when it could not be read) and the SHA-256 of that text. */
+export interface HintsSource {
+  path: string;
+  text: string | null;
+  sha256: string;
+}
+
+/** Where a scan's hints are looked for. */
+export interface HintsSearch {
+  /** Folder of hints files; searched before the scan's own folder. */
+  hintsDir?: string;
+  /** The scan's path relative to the run's inputs, to look for `<hintsDir>/<relative folder>/<name>.hints.json`. */
+  relative?: string;
+}
+
+/** The hints and reference photos for one scan. */
+export interface GuidanceSources {
+  /** The scan's hints file, or null for none. */
+  hints: HintsSource | null;
+  /** A reference colour photograph, or a folder of them. */
+  reference?: string;
+  /** See PropagationOptions.priorWeight. */
+  priorWeight?: number;
+}
+
 export interface Guidance {
-  /** The step to apply at the working size; absent when there is nothing to apply. */
-  refine?: (work: WorkingColour) => void;
-  /** Filled in as the refine step runs. */
+  /** In the order they apply; empty when there is nothing to apply. */
+  guides: Guide[];
+  /** What is known before they run; each guide's output record is added to its own entry. */
   record: GuidanceRecord;
 }
 
@@ -97,26 +110,26 @@ export async function readHints(path: string): Promise<Hints> {
 }
 
 /**
- * SHA-256 of the hints file restore would use for a scan, or null when there is none, so a re-run
- * redoes a scan whose hints were edited since it was restored.
+ * The hints file restore uses for a scan, read once: null when there is none. A file that exists but
+ * cannot be read is returned with no text (and the SHA-256 of no text), to be reported as not used.
  *
  * @example
- *   await hintsFingerprint('scans/barn.jpg'); // 'a3f1...' or null
+ *   await findHints('scans/barn.jpg'); // { path: 'scans/barn.hints.json', text: '{...}', sha256: 'a3f1...' } or null
  */
-export async function hintsFingerprint(source: string, hintsDir?: string, relative?: string): Promise<string | null> {
-  const found = await findHints(hintsCandidates(source, hintsDir, relative));
-  return found ? createHash('sha256').update(found.text).digest('hex') : null;
-}
-
-async function findHints(candidates: string[]): Promise<{ path: string; text: string } | undefined> {
-  for (const path of candidates) {
+export async function findHints(source: string, search: HintsSearch = {}): Promise<HintsSource | null> {
+  for (const path of hintsCandidates(source, search.hintsDir, search.relative)) {
     try {
-      return { path, text: await readFile(path, 'utf8') };
+      const text = await readFile(path, 'utf8');
+      return { path, text, sha256: sha256(text) };
     } catch (error) {
-      if ((error as NodeJS.ErrnoException).code !== 'ENOENT') return { path, text: '' };
+      if ((error as NodeJS.ErrnoException).code !== 'ENOENT') return { path, text: null, sha256: sha256('') };
     }
   }
-  return undefined;
+  return null;
+}
+
+function sha256(text: string): string {
+  return createHash('sha256').update(text).digest('hex');
 }
 
 const references = new Map<string, Promise<ReferenceSet>>();
@@ -141,21 +154,19 @@ export function cachedReference(path: string): Promise<ReferenceSet> {
 }
 
 /**
- * Everything hints and references will do to one scan of `width` x `height`: the refine step and its record.
- * A missing hints file means no hints; an unusable one is recorded as ignored, with its message.
+ * The guides for one scan of `width` x `height` (reference photos, then hints) and their record. An
+ * unusable hints file is recorded as ignored, with its message.
  *
  * @example
- *   const guidance = await prepareGuidance('scans/barn.jpg', 3000, 2000, { reference: 'colour/' });
- *   await workingColour(L, w, h, model, { refine: guidance.refine });
- *   record.guidance = guidance.record;
+ *   const { guides, record } = await prepareGuides({ hints: await findHints('scans/barn.jpg'), reference: 'colour/' }, 3000, 2000);
  */
-export async function prepareGuidance(source: string, width: number, height: number, options: GuidanceOptions = {}): Promise<Guidance> {
+export async function prepareGuides(sources: GuidanceSources, width: number, height: number): Promise<Guidance> {
   const record: GuidanceRecord = {};
+  const found = sources.hints;
   let hints: Hints | undefined;
-  const found = options.useHints === false ? undefined : await findHints(hintsCandidates(source, options.hintsDir, options.relative));
   if (found) {
     try {
-      hints = found.text ? parseHints(found.text, found.path) : await readHints(found.path);
+      hints = found.text !== null ? parseHints(found.text, found.path) : await readHints(found.path);
       const problem = checkHintsSize(hints, width, height);
       if (problem) {
         throw new KinhueError(ErrorCodes.BAD_HINTS, problem, { file: found.path, hint: 'make the hints file for this scan with `kinhue hints <scan> --force`, or fix its "image" size' });
@@ -168,43 +179,90 @@ export async function prepareGuidance(source: string, width: number, height: num
       hints = undefined;
     }
   }
-  const reference = options.reference ? await cachedReference(options.reference) : undefined;
+  const reference = sources.reference ? await cachedReference(sources.reference) : undefined;
   if (reference) record.reference = { files: reference.files, samples: reference.L.length, ...(reference.notes.length ? { notes: reference.notes } : {}) };
-  if (!hints && !reference) return { record };
+  const guides: Guide[] = [];
+  if (reference) guides.push(referenceGuide(reference));
+  if (hints) guides.push(hintsGuide(hints, width, height, sources.priorWeight));
+  return { guides, record };
+}
 
-  const refine = (work: WorkingColour): void => {
-    const { width: w, height: h } = work;
-    const confidence = work.confidenceWidth === w && work.confidenceHeight === h
-      ? work.confidence
-      : resizePlane(work.confidence, work.confidenceWidth, work.confidenceHeight, w, h);
-    if (reference) {
+/**
+ * Looks for the scan's hints file, then prepares its guides (see prepareGuides).
+ *
+ * @example
+ *   const guidance = await prepareGuidance('scans/barn.jpg', 3000, 2000, { reference: 'colour/' });
+ */
+export async function prepareGuidance(
+  source: string,
+  width: number,
+  height: number,
+  options: HintsSearch & Omit<GuidanceSources, 'hints'> & { useHints?: boolean } = {},
+): Promise<Guidance> {
+  const hints = options.useHints === false ? null : await findHints(source, options);
+  return prepareGuides({ hints, reference: options.reference, priorWeight: options.priorWeight }, width, height);
+}
+
+/** Where the model is sure, its colour stays; where it is not, the reference's colour takes over. */
+function referenceGuide(reference: ReferenceSet): Guide {
+  return {
+    name: 'reference',
+    apply: (colour: GuideInput) => {
       const t = performance.now();
-      const transferred = transferReference(reference, work.L, w, h);
-      // Where the model is sure, its colour stays; where it is not, the reference's colour takes over.
+      const { width: w, height: h, confidence } = colour;
+      const transferred = transferReference(reference, colour.L, w, h);
+      const a = new Float32Array(w * h);
+      const b = new Float32Array(w * h);
       for (let i = 0; i < w * h; i++) {
         const c = Math.min(1, Math.max(0, confidence[i]!));
-        work.a[i] = c * work.a[i]! + (1 - c) * transferred.a[i]!;
-        work.b[i] = c * work.b[i]! + (1 - c) * transferred.b[i]!;
+        a[i] = c * colour.a[i]! + (1 - c) * transferred.a[i]!;
+        b[i] = c * colour.b[i]! + (1 - c) * transferred.b[i]!;
       }
-      record.reference!.milliseconds = Math.round(performance.now() - t);
-    }
-    if (hints) {
-      const t = performance.now();
-      const drawn = rasteriseHints(hints, work.L, w, h, width, height);
-      // The prediction's own colour boundaries bound the hints too (our addition; see withPredictionEdges).
-      const result = propagateHints({ width: w, height: h, L: work.L, a: work.a, b: work.b, confidence }, drawn.constraints,
-        { priorWeight: options.priorWeight, predictionEdges: PREDICTION_EDGE_SCALE });
-      work.a.set(result.a);
-      work.b.set(result.b);
-      Object.assign(record.hints!, {
-        pixels: drawn.pixels,
-        adjustments: drawn.adjustments.slice(0, LISTED_ADJUSTMENTS).map((adj) => adj.message),
-        ...(drawn.adjustments.length > LISTED_ADJUSTMENTS ? { adjustmentsNotListed: drawn.adjustments.length - LISTED_ADJUSTMENTS } : {}),
-        ...(drawn.scaled ? { scaled: drawn.scaled } : {}),
-        iterations: result.iterations,
-        milliseconds: Math.round(performance.now() - t),
-      });
-    }
+      return { a, b, record: { milliseconds: Math.round(performance.now() - t) } };
+    },
   };
-  return { refine, record };
+}
+
+/** The hinted colours spread along L* (Levin et al. 2004) from the model's colour as the prior. */
+function hintsGuide(hints: Hints, scanWidth: number, scanHeight: number, priorWeight?: number): Guide {
+  return {
+    name: 'hints',
+    apply: (colour: GuideInput) => {
+      const t = performance.now();
+      const { width: w, height: h } = colour;
+      const drawn = rasteriseHints(hints, colour.L, w, h, scanWidth, scanHeight);
+      // The prediction's own colour boundaries bound the hints too (our addition; see withPredictionEdges).
+      const result = propagateHints(colour, drawn.constraints, { priorWeight, predictionEdges: PREDICTION_EDGE_SCALE });
+      return {
+        a: result.a,
+        b: result.b,
+        record: {
+          pixels: drawn.pixels,
+          adjustments: drawn.adjustments.slice(0, LISTED_ADJUSTMENTS).map((adj) => adj.message),
+          ...(drawn.adjustments.length > LISTED_ADJUSTMENTS ? { adjustmentsNotListed: drawn.adjustments.length - LISTED_ADJUSTMENTS } : {}),
+          ...(drawn.scaled ? { scaled: drawn.scaled } : {}),
+          iterations: result.iterations,
+          milliseconds: Math.round(performance.now() - t),
+        },
+      };
+    },
+  };
+}
+
+/**
+ * The lines a scan's warnings get from its guidance record: a hints file not used, colours weakened,
+ * reference notes.
+ * @example
+ *   guidanceWarnings({ hints: { file: 'a.hints.json', used: false, ignored: 'bad JSON' } }); // ['hints file not used: bad JSON']
+ */
+export function guidanceWarnings(record: GuidanceRecord): string[] {
+  const warnings: string[] = [];
+  const faces = record.skin?.faces.length ?? 0;
+  if (faces) warnings.push(`skin prior: ${faces} face${faces === 1 ? '' : 's'} given a skin hue; correct with a hints file if wrong`);
+  if (record.hints?.ignored) warnings.push(`hints file not used: ${record.hints.ignored}`);
+  for (const note of record.hints?.adjustments ?? []) warnings.push(`hint ${note}`);
+  const notListed = record.hints?.adjustmentsNotListed;
+  if (notListed) warnings.push(`hints: and ${notListed} more entries whose chroma was reduced (not listed)`);
+  for (const note of record.reference?.notes ?? []) warnings.push(`reference ${note}`);
+  return warnings;
 }

@@ -7,6 +7,7 @@
  * regions they sit in while, away from them, the prediction holds.
  * Solved by conjugate gradients preconditioned with a multigrid V-cycle (`multigrid.ts`).
  */
+import type { GuideInput } from '../colour/index.js';
 import { levinAffinity, withPredictionEdges } from './affinity.js';
 import { MultigridSolver } from './multigrid.js';
 
@@ -17,16 +18,8 @@ export interface HintConstraints {
   b: Float32Array;
 }
 
-/** What to solve: the scan's L* at the working size, and the model's prediction there. */
-export interface PropagationInput {
-  width: number;
-  height: number;
-  L: Float32Array;
-  a: Float32Array;
-  b: Float32Array;
-  /** 0-1 per pixel. */
-  confidence: Float32Array;
-}
+/** What to solve: the scan's L* at the working size, and the model's prediction and confidence there (what a guide reads). */
+export type PropagationInput = GuideInput;
 
 export interface PropagationOptions {
   /**

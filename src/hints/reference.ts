@@ -6,10 +6,11 @@
  * Several references (one for a series) pool their samples, each remapped by its own statistics.
  */
 import { readdir, stat } from 'node:fs/promises';
-import { extname, join } from 'node:path';
+import { join } from 'node:path';
 import { shrinkPlane, srgbToLab, type LabPlanes } from '../colour/index.js';
 import { classifyTone, decodeImage, type Pixels } from '../image/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
+import { hasImageExtension } from '../files/index.js';
 import { smoothColour } from './propagate.js';
 
 /** Pooled samples of one or more reference photographs. */
@@ -39,7 +40,6 @@ const NEAREST = 8;
 export const REFERENCE_SMOOTHING = 0.02;
 /** Long side at which references are read (the working size restore uses by default). */
 const REFERENCE_SIDE = 512;
-const IMAGE_EXTENSIONS = new Set(['.jpg', '.jpeg', '.png', '.tif', '.tiff', '.webp']);
 
 function refuse(file: string, message: string, hint: string): KinhueError {
   return new KinhueError(ErrorCodes.BAD_HINTS, message, { file, hint });
@@ -57,7 +57,7 @@ export async function loadReference(path: string): Promise<ReferenceSet> {
   if (!info) throw refuse(path, 'reference photo not found', 'give the path of a colour photograph, or of a folder of them');
   let files = [path];
   if (info.isDirectory()) {
-    files = (await readdir(path)).filter((f) => IMAGE_EXTENSIONS.has(extname(f).toLowerCase())).sort().map((f) => join(path, f));
+    files = (await readdir(path)).filter(hasImageExtension).sort().map((f) => join(path, f));
     if (files.length === 0) throw refuse(path, 'the reference folder holds no images', 'put colour photographs (JPEG, PNG, TIFF, WebP) in it');
   }
   const perReference = Math.max(16, Math.min(GRID * GRID, Math.floor(MAX_SAMPLES / files.length)));

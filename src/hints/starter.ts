@@ -1,9 +1,9 @@
 /** `kinhue hints <scan>`: a starter hints file beside the scan, ready to edit. */
 import { access } from 'node:fs/promises';
 import { basename } from 'node:path';
-import { decodeImage, writeFileAtomic } from '../image/index.js';
+import { decodeImage } from '../image/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
-import { InputGuard } from '../files/index.js';
+import { InputGuard, writeFileAtomic } from '../files/index.js';
 import { formatHints, starterHints } from './hints-file.js';
 import { hintsCandidates } from './guidance.js';
 

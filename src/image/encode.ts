@@ -13,7 +13,7 @@
  */
 import { extname } from 'node:path';
 import sharp, { type Sharp } from 'sharp';
-import { writeFileAtomic } from './atomic.js';
+import { writeFileAtomic } from '../files/index.js';
 import { jpegWithExif, pngWithExif, pngWithIcc, webpWithExif } from './containers.js';
 import { exifForUprightOutput } from './exif.js';
 import { iccColourSpace, iccFitsChannels, srgbProfile, withProfileFile } from './icc.js';

@@ -3,7 +3,7 @@
  * streams to disk, so even a 100-megapixel map never sits in memory whole. Written atomically.
  */
 import sharp from 'sharp';
-import { writeAtomic } from './atomic.js';
+import { writeAtomic } from '../files/index.js';
 import { sharpLimit } from './limits.js';
 
 /**

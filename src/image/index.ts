@@ -5,7 +5,6 @@ export * from './decode.js';
 export * from './tone.js';
 export * from './encode.js';
 export * from './xmp.js';
-export * from './atomic.js';
 export { exifOrientation, exifForUprightOutput } from './exif.js';
 export { iccColourSpace, iccFitsChannels, srgbProfile } from './icc.js';
 export * from './grey-map.js';

@@ -6,14 +6,13 @@
  */
 import { mkdir, readdir } from 'node:fs/promises';
 import { join, relative } from 'node:path';
-import { tmpdir } from 'node:os';
 import {
   clearlyColouredShare, colourfulness, hueAgreement, labToSrgb, meanAbError, meanCiede2000, psnr, srgbToLab, type LabPlanes,
 } from '../colour/index.js';
-import { colouriseLightness, discoverInputs } from '../batch/index.js';
-import { ErrorCodes, InputError, KinhueError, UsageError } from '../errors.js';
-import { InputGuard } from '../files/index.js';
-import { classifyTone, decodeImage, writeFileAtomic, type Pixels } from '../image/index.js';
+import { colouriseLightness } from '../batch/index.js';
+import { ErrorCodes, InputError, KinhueError } from '../errors.js';
+import { discoverInputs, InputGuard, writeFileAtomic } from '../files/index.js';
+import { classifyTone, decodeImage, type Pixels } from '../image/index.js';
 import { DEFAULT_MODEL_DIR, initBackend, loadFaceFinder, loadModel, type KinhueModel } from '../model/index.js';
 import { VERSION } from '../version.js';
 import { labStatistics, reinhardTransfer, type LabStatistics } from './reinhard.js';
@@ -145,14 +144,7 @@ function modelLabels(models: KinhueModel[]): string[] {
  *   console.log(formatScoreTable(report));
  */
 export async function score(options: ScoreOptions): Promise<ScoreReport> {
-  let discovered;
-  try {
-    discovered = await discoverInputs(options.photos, options.out ?? join(tmpdir(), `kinhue-score-${process.pid}-none`));
-  } catch (error) {
-    // Discovery is shared with restore: give its usage errors score's own example.
-    if (error instanceof UsageError) throw new UsageError(error.message.replace(/Example usage: .*$/m, EXAMPLE), error.hint);
-    throw error;
-  }
+  const discovered = await discoverInputs(options.photos, { outDir: options.out, example: EXAMPLE });
   const files = discovered.files;
   const dirs = options.models?.length ? options.models : [DEFAULT_MODEL_DIR];
   if (options.out) {

@@ -9,15 +9,19 @@
 import { readFile, stat } from 'node:fs/promises';
 import { dirname, extname, isAbsolute, join, relative, resolve, sep } from 'node:path';
 import { pathToFileURL } from 'node:url';
-import { loadRunFolder, MANIFEST_NAME, underFolder, type ManifestRecord, type ProvenanceRecord } from '../batch/index.js';
+import { loadRunFolder, MANIFEST_NAME, type ManifestRecord, type ProvenanceRecord } from '../batch/index.js';
+import { underFolder, writeFileAtomic } from '../files/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
-import { decodeImage, encodeBuffer, writeFileAtomic, type Pixels } from '../image/index.js';
-import { downscaleToFloatRgb } from '../training/index.js';
+import { downscaleToFloatRgb } from '../colour/index.js';
+import { decodeImage, encodeBuffer, type Pixels } from '../image/index.js';
 import { confidenceHistogram } from './histogram.js';
 import { renderSheetHtml, type SheetData, type SheetImage, type SheetPhoto } from './sheet-html.js';
 import { recordDamage } from './sheet-record.js';
 
 /** What to make a sheet of. */
+/** The sheet's defaults, declared once (the command line shows them). */
+export const SHEET_DEFAULTS = { embed: false, previewSize: 1200 } as const;
+
 export interface SheetOptions {
   /** The restore output folder. */
   run: string;
@@ -218,7 +222,7 @@ export async function readRun(run: string, pageDir: string, options: { embed?: b
     });
   }
   const records = [...folder.records.values()];
-  const ctx: Context = { pageDir: resolve(pageDir), embed: options.embed ?? false, previewSize: options.previewSize ?? 1200 };
+  const ctx: Context = { pageDir: resolve(pageDir), embed: options.embed ?? SHEET_DEFAULTS.embed, previewSize: options.previewSize ?? SHEET_DEFAULTS.previewSize };
   const photos: SheetPhoto[] = [];
   for (const record of records) photos.push(await photoFor(run, record, ctx));
   const provenances = photos.filter((p) => p.status === 'done').map((p) => Object.fromEntries(p.details));

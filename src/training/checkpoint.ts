@@ -10,7 +10,7 @@
 import { readFile } from 'node:fs/promises';
 import * as tf from '@tensorflow/tfjs';
 import { ErrorCodes, KinhueError } from '../errors.js';
-import { writeFileAtomic } from '../image/index.js';
+import { writeFileAtomic } from '../files/index.js';
 
 const MAGIC = 'KHCKPT1\n';
 

@@ -6,7 +6,7 @@
 import { type BackboneFeatures, type BorrowedInputs, borrowedInputs, BACKBONE_CHANNELS } from '../model/index.js';
 import type { Photo } from './photo-set.js';
 import type { Random } from './random.js';
-import { sampleCrop, type CropWindow } from './resample.js';
+import { sampleCrop, type CropWindow } from '../colour/index.js';
 
 /** Where the sampler stands in its visiting order: saved in checkpoints. */
 export interface SamplerState {

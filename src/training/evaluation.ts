@@ -5,9 +5,10 @@
  * Suesstrunk 2003), and whether its hues are right (right hue, false colour, left grey: the figures
  * `score` reports, colour/hue-agreement.ts). The grey baseline is the same comparison with a* = b* = 0.
  */
-import { colourfulness, hueAgreement, labToSrgb, meanCiede2000, meanOfPresent, psnr, type LabPlanes } from '../colour/index.js';
+import {
+  colourfulness, hueAgreement, labToSrgb, meanCiede2000, meanOfPresent, psnr, resizePlane as resizeBilinear, type LabPlanes,
+} from '../colour/index.js';
 import type { Photo } from './photo-set.js';
-import { resizeBilinear } from './resample.js';
 
 /** Averages over the held-out photos (each photo's figure counts once). */
 export interface Evaluation {

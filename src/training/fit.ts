@@ -10,7 +10,7 @@ import { basename, join, resolve } from 'node:path';
 import * as tf from '@tensorflow/tfjs';
 import { ErrorCodes, KinhueError, UsageError } from '../errors.js';
 import { checkFolderFiles, InputGuard, inputInside, OutputOnInputError } from '../files/index.js';
-import { writeFileAtomic } from '../image/index.js';
+import { writeFileAtomic } from '../files/index.js';
 import {
   chooseDecoding,
   DEFAULT_DECODING,

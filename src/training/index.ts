@@ -1,6 +1,5 @@
 // Training: photo sets, crops, the fit loop, worker threads, checkpoints and resume. Re-exports only.
 export * from './random.js';
-export * from './resample.js';
 export * from './photo-set.js';
 export * from './crop-sampler.js';
 export * from './evaluation.js';

@@ -4,13 +4,13 @@
  * evaluation. Bad data stops the run before any model is written.
  */
 import { readdir, stat } from 'node:fs/promises';
-import { basename, extname, join, relative, resolve, sep } from 'node:path';
+import { basename, join, relative, resolve, sep } from 'node:path';
 import pLimit from 'p-limit';
-import { srgbToLab } from '../colour/index.js';
+import { downscaleToFloatRgb, srgbToLab } from '../colour/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
+import { hasImageExtension } from '../files/index.js';
 import { classifyTone, decodeImage } from '../image/index.js';
 import { Random } from './random.js';
-import { downscaleToFloatRgb } from './resample.js';
 
 /** One colour photo, downscaled, as CIELAB planes. */
 export interface Photo {
@@ -70,8 +70,6 @@ export const MIN_COLOUR_PHOTOS = 6;
 
 /** The fewest of a run from before the validation split (two held out, two to learn from). */
 const MIN_WITHOUT_VALIDATION = 4;
-
-const IMAGE_EXTENSIONS = new Set(['.jpg', '.jpeg', '.jpe', '.png', '.tif', '.tiff', '.webp', '.gif', '.avif', '.heic', '.heif', '.jp2', '.jxl']);
 
 /**
  * Reads every photo under `paths` (files or folders, folders searched recursively).
@@ -192,7 +190,7 @@ async function findFiles(paths: string[], exclude?: string): Promise<{ files: Fo
       else if (entry.isFile()) {
         // Every file is tried (a scanner may write photos without an extension); only those named
         // like images count as unreadable when they fail.
-        files.push({ file: full, name: join(basename(root), relative(root, full)), named: IMAGE_EXTENSIONS.has(extname(entry.name).toLowerCase()) });
+        files.push({ file: full, name: join(basename(root), relative(root, full)), named: hasImageExtension(entry.name) });
       }
     }
   };

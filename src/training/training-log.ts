@@ -4,7 +4,7 @@
  */
 import { appendFile, readFile } from 'node:fs/promises';
 import { join } from 'node:path';
-import { writeFileAtomic } from '../image/index.js';
+import { writeFileAtomic } from '../files/index.js';
 
 /** The file name of the evaluation log inside a run's output folder. */
 export const TRAINING_LOG_FILE = 'training-log.jsonl';

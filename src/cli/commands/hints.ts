@@ -3,18 +3,26 @@
  * `kinhue restore` gives the colours the family knows.
  */
 import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
-import { writeStarterHints } from '../../hints/index.js';
+import { writeStarterHints, type StarterOptions } from '../../hints/index.js';
 import { UsageError } from '../../errors.js';
 import { ExitCode } from '../exit-codes.js';
+import { addOptions, checkOptions, coreOptions, type CliArgs, type OptionTable } from '../option-table.js';
 
 const EXAMPLE = 'kinhue hints demo-photos/scans/wrenfold-05-billy-goat.jpg';
 
+/** The core options the command line offers. */
+type CoreFlags = Required<Pick<StarterOptions, 'force'>> & Pick<StarterOptions, 'out'>;
+
 /** The `hints` command line as yargs parses it. */
-export interface HintsArgs {
-  scan: string;
-  out?: string;
-  force: boolean;
-}
+export type HintsArgs = { scan: string } & CliArgs<CoreFlags>;
+
+const CORE_FLAGS: OptionTable<CoreFlags> = {
+  out: {
+    type: 'string', describe: 'where to write (default: <name>.hints.json beside the scan)',
+    check: (o) => (typeof o !== 'string' || o.trim() === '' ? '--out needs a file name' : !o.endsWith('.json') ? `--out should name a .json file, got ${o}` : undefined),
+  },
+  force: { type: 'boolean', default: false, describe: 'replace an existing hints file' },
+};
 
 /**
  * Checks a parsed `hints` command line. Pure: throws UsageError with an example.
@@ -22,12 +30,8 @@ export interface HintsArgs {
  *   check({ scan: 'scans/barn.jpg' }); // true
  */
 export function check(argv: Partial<HintsArgs>): true {
-  const fail = (message: string): never => {
-    throw new UsageError(`${message}\nExample usage: ${EXAMPLE}`);
-  };
-  if (typeof argv.scan !== 'string' || argv.scan.trim() === '') fail('name the scan to make a hints file for');
-  if (argv.out !== undefined && (typeof argv.out !== 'string' || argv.out.trim() === '')) fail('--out needs a file name');
-  if (typeof argv.out === 'string' && !argv.out.endsWith('.json')) fail(`--out should name a .json file, got ${argv.out}`);
+  if (typeof argv.scan !== 'string' || argv.scan.trim() === '') throw new UsageError(`name the scan to make a hints file for\nExample usage: ${EXAMPLE}`);
+  checkOptions(argv, CORE_FLAGS, EXAMPLE);
   return true;
 }
 
@@ -35,10 +39,8 @@ export const command: CommandModule<object, HintsArgs> = {
   command: 'hints <scan>',
   describe: 'write a starter hints file (<name>.hints.json) for a scan: colours you know, for restore to keep',
   builder: (yargs: Argv) =>
-    (yargs
+    (addOptions(yargs, CORE_FLAGS)
       .positional('scan', { type: 'string', describe: 'the scan the hints are for' })
-      .option('out', { type: 'string', describe: 'where to write (default: <name>.hints.json beside the scan)' })
-      .option('force', { type: 'boolean', default: false, describe: 'replace an existing hints file' })
       .example(EXAMPLE, 'writes demo-photos/scans/wrenfold-05-billy-goat.hints.json to edit')
       .epilog('Edit the entries: points {"x", "y", "colour", "radius"} and strokes {"points": [[x, y], ...], "colour", "radius"}, ' +
         'in pixels of the scan; colours as "#rrggbb", "#rgb" or "rgb(r, g, b)". An entry with an empty colour is ignored. ' +
@@ -46,7 +48,7 @@ export const command: CommandModule<object, HintsArgs> = {
         'the scan keeps its own lightness.') as unknown as Argv<HintsArgs>)
       .check((argv) => check(argv as Partial<HintsArgs>)),
   handler: async (argv: ArgumentsCamelCase<HintsArgs>) => {
-    const result = await writeStarterHints(argv.scan, { out: argv.out, force: argv.force });
+    const result = await writeStarterHints(argv.scan, coreOptions(argv, CORE_FLAGS));
     console.log(`wrote ${result.path} (${result.entries} example entries for a ${result.width} x ${result.height} scan); edit it, then run kinhue restore`);
     process.exitCode = ExitCode.OK;
   },

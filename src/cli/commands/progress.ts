@@ -7,15 +7,22 @@ import { loadRunFolder, MANIFEST_NAME, runProgress, type PartProgress, type RunP
 import { ErrorCodes, KinhueError, UsageError } from '../../errors.js';
 import { renderTable } from '../../report/index.js';
 import { ExitCode } from '../exit-codes.js';
+import { addOptions, type CliArgs, type OptionTable } from '../option-table.js';
 import { formatDuration } from '../progress.js';
 
 const EXAMPLE = 'kinhue progress /archive/restored';
 
-/** The `progress` command line as yargs parses it. */
-export interface ProgressArgs {
-  run: string;
+/** Options of the command line only (the core reads a run folder and takes no options). */
+interface CommandFlags {
   json: boolean;
 }
+
+/** The `progress` command line as yargs parses it. */
+export type ProgressArgs = { run: string } & CliArgs<CommandFlags>;
+
+const COMMAND_FLAGS: OptionTable<CommandFlags> = {
+  json: { type: 'boolean', default: false, describe: 'print the figures as JSON' },
+};
 
 /**
  * Checks a parsed `progress` command line. Pure: throws UsageError with an example.
@@ -64,9 +71,8 @@ export const command: CommandModule<object, ProgressArgs> = {
   command: 'progress <run>',
   describe: 'say how far a restore run has got: done, failed and pending scans per part and in all, the rate and the time left',
   builder: (yargs: Argv) =>
-    (yargs
+    (addOptions(yargs, COMMAND_FLAGS)
       .positional('run', { type: 'string', describe: 'the output folder of a restore run (--out), split into parts or not' })
-      .option('json', { type: 'boolean', default: false, describe: 'print the figures as JSON' })
       .example(EXAMPLE, 'while a Slurm array or Kubernetes Job restores into /archive/restored')
       .epilog('Reads only: run it as often as you like while parts are at work. Per minute counts scans finished since a part last ' +
         'started; time left is pending scans at that rate.') as unknown as Argv<ProgressArgs>)

@@ -3,40 +3,83 @@
  */
 import type { ArgumentsCamelCase, Argv, CommandModule } from 'yargs';
 import {
-  FORMAT_CHOICES, MAX_PARTS, parsePart, partFromScheduler, partLabel, restore, SCHEDULERS, type FormatChoice, type Part, type RestoreEvent, type Scheduler,
+  FORMAT_CHOICES, MAX_PARTS, parsePart, partFromScheduler, partLabel, restore, RESTORE_DEFAULTS, SCHEDULERS,
+  type Part, type RestoreEvent, type RestoreOptions, type Scheduler,
 } from '../../batch/index.js';
 import { UsageError } from '../../errors.js';
-import { DECODINGS, type Decoding } from '../../model/index.js';
+import { DECODINGS } from '../../model/index.js';
 import { ExitCode } from '../exit-codes.js';
+import { addOptions, checkOptions, checks, coreOptions, type CliArgs, type OptionTable } from '../option-table.js';
 import { Progress } from '../progress.js';
 import { onStopSignals } from '../stop-signals.js';
 import { formatPlan, formatSummary, progressText, summaryToJson } from '../restore-report.js';
 
 const EXAMPLE = 'kinhue restore demo-photos/scans --out demo-restored';
 
-/** The `restore` command line as yargs parses it. */
-export interface RestoreArgs {
-  inputs: string[];
-  out: string;
-  model?: string;
-  jobs?: number;
-  'work-size'?: number;
-  decoding?: Decoding;
-  temperature?: number;
-  format: FormatChoice;
-  quality?: number;
-  confidence: boolean;
-  force: boolean;
-  'dry-run': boolean;
+/** The core options the command line offers (the rest are for callers of restore()). */
+type CoreFlags = Omit<RestoreOptions, 'inputs' | 'part' | 'maxPixels' | 'signal' | 'hardSignal'>;
+
+/** Options of the command line only: output, and the part as written or as the scheduler gives it. */
+interface CommandFlags {
   json: boolean;
-  hints?: string | false;
-  reference?: string;
-  skin: boolean;
   part?: string;
-  'part-from'?: Scheduler;
-  'part-count'?: number;
-  verbose?: boolean;
+  partFrom?: Scheduler;
+  partCount?: number;
 }
+
+/** The `restore` command line as yargs parses it. */
+export type RestoreArgs = { inputs: string[]; verbose?: boolean } & CliArgs<CoreFlags & CommandFlags>;
+
+const CORE_FLAGS: OptionTable<CoreFlags> = {
+  out: { type: 'string', describe: 'folder for results, confidence maps, records and the run manifest', check: checks.folder('out', 'the folder to write results into') },
+  model: { type: 'string', describe: 'model folder (default: the shipped model, models/kinhue-base)', check: checks.folder('model', 'a model folder') },
+  jobs: { type: 'number', describe: 'files restored at once, each on its own core (default: the number of cores)', check: checks.wholeNumber('jobs', 1, 256) },
+  workSize: { type: 'number', describe: 'long side in pixels at which the model runs (default 512)', check: checks.wholeNumber('work-size', 64, 4096) },
+  temperature: {
+    type: 'number', describe: 'annealed-mean temperature, above 0 to 1; lower is more vivid (given alone, selects --decoding annealed-mean)',
+    check: (t) => (Number.isFinite(t) && t > 0 && t <= 1 ? undefined : `--temperature must be above 0 and at most 1 (lower is more vivid), got ${t}`),
+  },
+  decoding: {
+    type: 'string', choices: DECODINGS, check: checks.oneOf('decoding', DECODINGS),
+    describe: 'how colour is chosen from the model\'s prediction: least-ciede2000, the colour with the least expected error (muted where unsure), or annealed-mean, more vivid and more often wrong (default: the model\'s)',
+  },
+  quality: { type: 'number', describe: 'JPEG and WebP quality 1-100', check: checks.wholeNumber('quality', 1, 100) },
+  format: {
+    type: 'string', choices: FORMAT_CHOICES, default: RESTORE_DEFAULTS.format, check: checks.oneOf('format', FORMAT_CHOICES),
+    describe: 'output format; same keeps each scan\'s own',
+  },
+  confidence: { type: 'boolean', default: RESTORE_DEFAULTS.confidence, describe: 'write <name>.confidence.png (white = confident); --no-confidence to skip' },
+  force: { type: 'boolean', default: RESTORE_DEFAULTS.force, describe: 'redo files an earlier run finished' },
+  dryRun: { type: 'boolean', default: RESTORE_DEFAULTS.dryRun, describe: 'list what would run; write nothing' },
+  hints: {
+    type: 'string', describe: 'folder of <name>.hints.json colour hints (they are also found beside each scan; --no-hints to use none); make one with kinhue hints <scan>',
+    check: (v) => (v === false ? undefined : checks.folder('hints', 'the folder holding <name>.hints.json files')(v)),
+  },
+  reference: {
+    type: 'string', describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from',
+    check: checks.folder('reference', 'a colour photograph or a folder of them'),
+  },
+  skin: {
+    type: 'boolean', default: RESTORE_DEFAULTS.skin,
+    describe: 'give the faces found a skin hue at the scan\'s own lightness (a guess: check it, correct it with hints); --no-skin to leave faces to the model',
+  },
+};
+
+const COMMAND_FLAGS: OptionTable<CommandFlags> = {
+  json: { type: 'boolean', default: false, describe: 'print a machine-readable summary on stdout' },
+  part: {
+    type: 'string', describe: 'restore part K of N (K/N) of the scans, a share picked by a hash of each output name; the N parts, on as many machines, share one --out folder',
+    check: (v) => (typeof v === 'string' ? undefined : '--part must be K/N, part K of N (e.g. 2/3)'),
+  },
+  partFrom: {
+    type: 'string', choices: SCHEDULERS, check: checks.oneOf('part-from', SCHEDULERS),
+    describe: 'take the part from the scheduler: slurm (array task id K of the array\'s task count, the array numbered from 1) or kubernetes (Indexed Job completion index + 1, with --part-count)',
+  },
+  partCount: {
+    type: 'number', check: checks.wholeNumber('part-count', 1, MAX_PARTS),
+    describe: 'the number of parts with --part-from: the Job\'s completions (kubernetes), or the array\'s size for a Slurm task resubmitted alone',
+  },
+};
 
 /**
  * Checks a parsed `restore` command line. Pure: throws UsageError with an example.
@@ -49,33 +92,15 @@ export function check(argv: Partial<RestoreArgs>): true {
   };
   const inputs = argv.inputs ?? [];
   if (inputs.length === 0 || inputs.some((p) => typeof p !== 'string' || p.trim() === '')) fail('name at least one scan, folder or glob pattern');
-  if (typeof argv.out !== 'string' || argv.out.trim() === '') fail('--out needs the folder to write results into');
-  if (argv.model !== undefined && (typeof argv.model !== 'string' || argv.model.trim() === '')) fail('--model needs a model folder');
-  const { jobs, temperature, quality, format } = argv;
-  const size = argv['work-size'];
-  if (jobs !== undefined && !(Number.isInteger(jobs) && jobs >= 1 && jobs <= 256)) fail(`--jobs must be a whole number from 1 to 256, got ${jobs}`);
-  if (size !== undefined && !(Number.isInteger(size) && size >= 64 && size <= 4096)) fail(`--work-size must be a whole number from 64 to 4096, got ${size}`);
-  if (temperature !== undefined && !(Number.isFinite(temperature) && temperature > 0 && temperature <= 1)) {
-    fail(`--temperature must be above 0 and at most 1 (lower is more vivid), got ${temperature}`);
-  }
-  if (argv.decoding !== undefined && !DECODINGS.includes(argv.decoding)) fail(`--decoding must be one of ${DECODINGS.join(', ')}, got ${argv.decoding}`);
-  if (argv.decoding === 'least-ciede2000' && temperature !== undefined) fail('--temperature applies to --decoding annealed-mean only');
-  if (quality !== undefined && !(Number.isInteger(quality) && quality >= 1 && quality <= 100)) fail(`--quality must be a whole number from 1 to 100, got ${quality}`);
-  if (format !== undefined && !FORMAT_CHOICES.includes(format)) fail(`--format must be one of ${FORMAT_CHOICES.join(', ')}, got ${format}`);
-  if (argv.hints !== undefined && argv.hints !== false && (typeof argv.hints !== 'string' || argv.hints.trim() === '')) fail('--hints needs the folder holding <name>.hints.json files');
-  if (argv.reference !== undefined && (typeof argv.reference !== 'string' || argv.reference.trim() === '')) fail('--reference needs a colour photograph or a folder of them');
+  if (argv.out === undefined) fail('--out needs the folder to write results into');
+  checkOptions(argv, CORE_FLAGS, EXAMPLE);
+  if (argv.decoding === 'least-ciede2000' && argv.temperature !== undefined) fail('--temperature applies to --decoding annealed-mean only');
+  checkOptions(argv, COMMAND_FLAGS, EXAMPLE);
   if (argv.part !== undefined) {
-    if (typeof argv.part !== 'string') fail('--part must be K/N, part K of N (e.g. 2/3)');
     if (argv['part-from'] !== undefined) fail('give --part or --part-from, not both');
-    parsePart(argv.part as string);
+    parsePart(argv.part);
   }
-  const from = argv['part-from'];
-  if (from !== undefined && !SCHEDULERS.includes(from)) fail(`--part-from must be one of ${SCHEDULERS.join(', ')}, got ${from}`);
-  const count = argv['part-count'];
-  if (count !== undefined) {
-    if (from === undefined) fail('--part-count goes with --part-from (with --part, write K/N)');
-    if (!(Number.isInteger(count) && count >= 1 && count <= MAX_PARTS)) fail(`--part-count must be a whole number from 1 to ${MAX_PARTS}, got ${count}`);
-  }
+  if (argv['part-count'] !== undefined && argv['part-from'] === undefined) fail('--part-count goes with --part-from (with --part, write K/N)');
   return true;
 }
 
@@ -94,32 +119,9 @@ export const command: CommandModule<object, RestoreArgs> = {
   command: 'restore <inputs...>',
   describe: 'colourise scans in batches: results keep each scan\'s lightness, size and bit depth',
   builder: (yargs: Argv) =>
-    (yargs
+    (addOptions(addOptions(yargs, CORE_FLAGS), COMMAND_FLAGS)
       .positional('inputs', { type: 'string', array: true, describe: 'scans: files, folders (searched recursively) and glob patterns' })
-      .option('out', { type: 'string', demandOption: true, describe: 'folder for results, confidence maps, records and the run manifest' })
-      .option('model', { type: 'string', describe: 'model folder (default: the shipped model, models/kinhue-base)' })
-      .option('jobs', { type: 'number', describe: 'files restored at once, each on its own core (default: the number of cores)' })
-      .option('work-size', { type: 'number', describe: 'long side in pixels at which the model runs (default 512)' })
-      .option('decoding', {
-        type: 'string', choices: DECODINGS as string[],
-        describe: 'how colour is chosen from the model\'s prediction: least-ciede2000, the colour with the least expected error (muted where unsure), or annealed-mean, more vivid and more often wrong (default: the model\'s)',
-      })
-      .option('temperature', { type: 'number', describe: 'annealed-mean temperature, above 0 to 1; lower is more vivid (given alone, selects --decoding annealed-mean)' })
-      .option('format', { type: 'string', choices: FORMAT_CHOICES as string[], default: 'same', describe: 'output format; same keeps each scan\'s own' })
-      .option('quality', { type: 'number', describe: 'JPEG and WebP quality 1-100' })
-      .option('confidence', { type: 'boolean', default: true, describe: 'write <name>.confidence.png (white = confident); --no-confidence to skip' })
-      .option('force', { type: 'boolean', default: false, describe: 'redo files an earlier run finished' })
-      .option('dry-run', { type: 'boolean', default: false, describe: 'list what would run; write nothing' })
-      .option('json', { type: 'boolean', default: false, describe: 'print a machine-readable summary on stdout' })
-      .option('hints', { type: 'string', describe: 'folder of <name>.hints.json colour hints (they are also found beside each scan; --no-hints to use none); make one with kinhue hints <scan>' })
-      .option('reference', { type: 'string', describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from' })
-      .option('skin', { type: 'boolean', default: true, describe: 'give the faces found a skin hue at the scan\'s own lightness (a guess: check it, correct it with hints); --no-skin to leave faces to the model' })
-      .option('part', { type: 'string', describe: 'restore part K of N (K/N) of the scans, a share picked by a hash of each output name; the N parts, on as many machines, share one --out folder' })
-      .option('part-from', {
-        type: 'string', choices: SCHEDULERS as unknown as string[],
-        describe: 'take the part from the scheduler: slurm (array task id K of the array\'s task count, the array numbered from 1) or kubernetes (Indexed Job completion index + 1, with --part-count)',
-      })
-      .option('part-count', { type: 'number', describe: 'the number of parts with --part-from: the Job\'s completions (kubernetes), or the array\'s size for a Slurm task resubmitted alone' })
+      .demandOption('out')
       .example(EXAMPLE, 'restore the demo album with the shipped model')
       .example('kinhue restore "archive/**/*.tif" --out restored --format png --jobs 2', 'TIFF scans found by a glob, written as PNG on two cores')
       .example('kinhue restore demo-photos/scans --out demo-restored --reference demo-photos/originals/wrenfold-05-billy-goat.jpg', 'colours taken from a reference photograph')
@@ -175,29 +177,7 @@ export const command: CommandModule<object, RestoreArgs> = {
     const release = onStopSignals(onStop);
     let summary;
     try {
-      summary = await restore(
-        {
-          inputs: argv.inputs,
-          out: argv.out,
-          model: argv.model,
-          jobs: argv.jobs,
-          workSize: argv['work-size'],
-          decoding: argv.decoding,
-          temperature: argv.temperature,
-          format: argv.format,
-          quality: argv.quality,
-          confidence: argv.confidence,
-          force: argv.force,
-          dryRun: argv['dry-run'],
-          hints: argv.hints,
-          reference: argv.reference,
-          skin: argv.skin,
-          part,
-          signal: soft.signal,
-          hardSignal: hard.signal,
-        },
-        onEvent,
-      );
+      summary = await restore({ ...coreOptions(argv, CORE_FLAGS), inputs: argv.inputs, out: argv.out, part, signal: soft.signal, hardSignal: hard.signal }, onEvent);
     } finally {
       release();
       progress.done();

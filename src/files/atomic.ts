@@ -7,9 +7,7 @@
  */
 import { open, rename, rm, writeFile } from 'node:fs/promises';
 import { ErrorCodes, KinhueError } from '../errors.js';
-import { tempPathFor } from '../files/index.js';
-
-export { tempPathFor };
+import { tempPathFor } from './temp-name.js';
 
 /**
  * Runs `write(tempPath)`, then renames the temporary file to `path`. On any failure the temporary

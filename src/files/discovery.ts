@@ -1,6 +1,7 @@
 /**
- * Finding the scans to restore: named files, folders searched recursively, and glob patterns, in a
- * deterministic order (sorted by path), with the output folder kept out of the search. Paths are
+ * Finding images, for every command that reads them (restore's scans, score's originals, training
+ * photos, reference photos): one list of extensions; named files, folders searched recursively, and glob
+ * patterns, in a deterministic order (sorted by path), with the output folder kept out of the search. Paths are
  * compared by where they really lead (links, bind mounts), so each scan is found once, and an
  * output folder that is an input folder under another name is refused.
  */
@@ -8,7 +9,8 @@ import { lstat, stat } from 'node:fs/promises';
 import { dirname, extname, join, relative, resolve, sep } from 'node:path';
 import { glob, isDynamicPattern } from 'tinyglobby';
 import { ErrorCodes, UsageError } from '../errors.js';
-import { identify, isInside, isWithin, statId, walkFolder, type WalkProblem } from '../files/index.js';
+import { identify, isInside, isWithin, statId } from './identity.js';
+import { walkFolder, type WalkProblem } from './folder-walk.js';
 
 /** Extensions searched for in folders and globs (case-insensitive): the formats kinhue reads. A file named directly is always tried. */
 export const IMAGE_EXTENSIONS: readonly string[] = ['.jpg', '.jpeg', '.jpe', '.png', '.tif', '.tiff', '.webp', '.gif', '.avif'];
@@ -40,7 +42,20 @@ export interface Discovery {
   problems: InputProblem[];
 }
 
-function hasImageExtension(path: string): boolean {
+/** Where discovery looks and how its usage errors end. */
+export interface DiscoveryOptions {
+  /** The output folder, kept out of the search and refused as an input; none for commands that write no folder. */
+  outDir?: string;
+  /** The example closing a usage error, e.g. 'Example usage: kinhue restore scans/ --out restored/'. */
+  example: string;
+}
+
+/**
+ * True for a path named like an image kinhue reads.
+ * @example
+ *   hasImageExtension('scans/barn.TIF'); // true
+ */
+export function hasImageExtension(path: string): boolean {
   return IMAGE_EXTENSIONS.includes(extname(path).toLowerCase());
 }
 
@@ -91,15 +106,17 @@ function describeProblem(problem: WalkProblem): { message: string; hint: string 
  * @example
  *   const { files } = await discoverInputs(['scans/', 'loose/*.tif'], 'restored');
  */
-export async function discoverInputs(inputs: string[], outDir: string): Promise<Discovery> {
-  const out = await identify(outDir);
+export async function discoverInputs(inputs: string[], options: DiscoveryOptions): Promise<Discovery> {
+  const outDir = options.outDir;
+  const out = outDir === undefined ? undefined : await identify(outDir);
+  const inOut = async (path: string): Promise<boolean> => (out ? isWithin(path, out) : false);
   const roots: string[] = [];
   const found = new Map<string, string>(); // device:inode -> the first path that led there
   const notes: string[] = [];
   const walkProblems: WalkProblem[] = [];
   const seenFolders = new Set<string>();
   let outSkipped = false;
-  const example = 'Example usage: kinhue restore scans/ --out restored/';
+  const example = options.example;
   const add = (path: string, id: string): void => {
     if (!found.has(id)) found.set(id, path);
   };
@@ -108,16 +125,16 @@ export async function discoverInputs(inputs: string[], outDir: string): Promise<
     const abs = resolve(input);
     const info = await stat(abs).catch((error: NodeJS.ErrnoException) => error);
     if (!(info instanceof Error) && info.isDirectory()) {
-      if (await isWithin(abs, out)) {
+      if (await inOut(abs)) {
         throw new UsageError(`the input folder ${input} is the output folder ${outDir} (or inside it), perhaps through a link\n${example}`, 'choose an --out folder outside your scans');
       }
       roots.push(abs);
-      if (await isWithin(out, await identify(abs))) outSkipped = true;
-      const walked = await walkFolder(abs, { wanted: hasImageExtension, skip: new Set(out.id ? [out.id] : []) }, seenFolders);
+      if (out && (await isWithin(out, await identify(abs)))) outSkipped = true;
+      const walked = await walkFolder(abs, { wanted: hasImageExtension, skip: new Set(out?.id ? [out.id] : []) }, seenFolders);
       for (const f of walked.files) add(f.path, f.id);
       walkProblems.push(...walked.problems);
     } else if (!(info instanceof Error)) {
-      if (await isWithin(abs, out)) {
+      if (await inOut(abs)) {
         throw new UsageError(`the scan ${input} lies in the output folder ${outDir}, perhaps through a link; its result would replace it\n${example}`, 'choose an --out folder outside your scans');
       }
       roots.push(dirname(abs));
@@ -132,7 +149,7 @@ export async function discoverInputs(inputs: string[], outDir: string): Promise<
       for (const m of images) {
         const target = await stat(m).catch(() => undefined);
         if (!target) continue;
-        if (await isWithin(m, out)) outSkipped = true;
+        if (await inOut(m)) outSkipped = true;
         else add(m, statId(target));
       }
     } else {
