@@ -48,7 +48,7 @@ export function planOutputs(files: SourceFile[], choice: FormatChoice): PlannedO
     stem = fitStem(stem, Math.max(Buffer.byteLength(ext), Buffer.byteLength(CONFIDENCE_SUFFIX)));
     let candidate = stem;
     for (let n = 2; ; n++) {
-      const names = [`${candidate}${ext}`, `${candidate}${CONFIDENCE_SUFFIX}`, `${candidate}.kinhue.json`];
+      const names = [`${candidate}${ext}`, `${candidate}${CONFIDENCE_SUFFIX}`, `${candidate}${RECORD_SUFFIX}`];
       if (names.every((name) => !used.has(name.toLowerCase()))) {
         for (const name of names) used.add(name.toLowerCase());
         return { image: names[0]!, confidence: names[1]!, record: names[2]!, format };
@@ -67,6 +67,14 @@ function fitStem(stem: string, suffixBytes: number): string {
   if (Buffer.byteLength(name) + suffixBytes <= NAME_MAX_BYTES) return stem;
   return stem.slice(0, cut) + fitName(name, NAME_MAX_BYTES - suffixBytes - 4);
 }
+
+/** The repair outputs beside a result: the mask `<name>.repair.png` and the repaired scan `<name>.repaired.<ext>`. */
+export function repairOutputs(outputs: PlannedOutputs): { mask: string; scan: string } {
+  const stem = outputs.record.slice(0, -RECORD_SUFFIX.length);
+  return { mask: `${stem}.repair.png`, scan: `${stem}.repaired${extname(outputs.image)}` };
+}
+
+const RECORD_SUFFIX = '.kinhue.json';
 
 /** The folder part of a planned relative path ('' at the top). */
 export function relativeFolder(rel: string): string {

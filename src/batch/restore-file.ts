@@ -18,7 +18,8 @@ import { VERSION } from '../version.js';
 import { fullSizeGrid, mean, workingColour, workingSize, type RefineStep } from './colourise.js';
 import { underFolder } from './discovery.js';
 import { fileSha256 } from './hash.js';
-import type { PlannedOutputs } from './naming.js';
+import { repairOutputs, type PlannedOutputs } from './naming.js';
+import { REPAIR_METHOD, repairScan } from '../repair/index.js';
 import type { RestoreSettings } from './options.js';
 import { workingLab } from './working-lab.js';
 
@@ -65,10 +66,23 @@ export interface ProvenanceRecord {
   /** Mean model confidence over the image, 0-1. */
   meanConfidence: number;
   /** Milliseconds per stage. */
-  timings: { hash: number; decode: number; lightness: number; model: number; colour: number; encode: number; total: number };
+  timings: { hash: number; decode: number; repair?: number; lightness: number; model: number; colour: number; encode: number; total: number };
   warnings: string[];
   /** Hints and reference photos: what was used, or why a hints file was ignored. Absent when neither applied. */
   guidance?: GuidanceRecord;
+  /** Dust, hairs and scratches taken out before colouring (--repair): how, how much, and the files showing it. */
+  repair?: RepairRecord;
+}
+
+export interface RepairRecord {
+  method: string;
+  /** Pixels replaced, and their share of the scan. */
+  pixels: number;
+  share: number;
+  /** `<name>.repair.png`: white where a pixel was replaced. */
+  mask: string;
+  /** `<name>.repaired.<ext>`, the repaired scan without colour, when asked for. */
+  scan: string | null;
 }
 
 export interface FileOutcome {
@@ -119,6 +133,16 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
   const sourceDepth = px.depth;
   const { width: W, height: H, channels } = px;
   const tDecode = clock();
+
+  // Repair comes first, so the model, the tone report and the result all see the repaired scan.
+  let repaired = settings.repair ? repairScan(px) : undefined;
+  const repair = repaired && { mask: repaired.mask, repaired: repaired.repaired };
+  if (repaired) px = repaired.pixels;
+  // Kept for writing only when asked for; otherwise the repaired samples go when the colour pass is done.
+  let repairedScan: Pixels | undefined = settings.repairedScan ? repaired?.pixels : undefined;
+  repaired = undefined;
+  const repairNames = repair ? repairOutputs(outputs) : undefined;
+  const tRepair = repair ? clock() : undefined;
 
   // The scan at the working size: the model's input and the tone report.
   const ws = workingSize(W, H, settings.workSize);
@@ -190,6 +214,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
       ...(settings.confidence ? { confidenceMap: baseName(outputs.confidence) } : {}),
       record: baseName(outputs.record),
       ...(skin?.faces.length ? { skinPriorFaces: skin.faces.length } : {}),
+      ...(repair && repairNames ? { repaired: 'yes', repairedPixels: repair.repaired, repairMask: baseName(repairNames.mask) } : {}),
     },
   });
   // A result is its image, confidence map and record together: when one cannot be written, the
@@ -211,6 +236,28 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
     const confidencePath = underFolder(job.outDir, outputs.confidence);
     await writeGreyMap(conf, work.confidenceWidth, work.confidenceHeight, W, H, confidencePath, job.maxPixels).catch(undo);
     written.push(confidencePath);
+  }
+  if (repair && repairNames) {
+    const maskPath = underFolder(job.outDir, repairNames.mask);
+    const white = Uint8Array.from(repair.mask, (m) => (m ? 255 : 0));
+    await encodeImage({ width: W, height: H, channels: 1, depth: 8, data: white }, maskPath, { format: 'png', maxPixels: job.maxPixels }).catch(undo);
+    written.push(maskPath);
+    if (repairedScan) {
+      const scanPath = underFolder(job.outDir, repairNames.scan);
+      const scanXmp = provenanceXmp({
+        sourceFile: sourceFromOutput,
+        derivedFromHash: sha256,
+        description: `Repaired scan of ${baseName(job.rel)}, made by kinhue: dust, hairs and scratches replaced in ${repair.repaired} pixels ` +
+          `(white in ${baseName(repairNames.mask)}); every other pixel is the scan's own. No colour was added.`,
+        extra: { repaired: 'yes', repairedPixels: repair.repaired, repairMask: baseName(repairNames.mask), record: baseName(outputs.record) },
+      });
+      const repairedEncoded = await encodeImage(repairedScan, scanPath, {
+        format: outputs.format, quality: settings.quality ?? undefined, exif: decoded.exif, icc: decoded.icc, xmp: scanXmp, maxPixels: job.maxPixels,
+      }).catch(undo);
+      written.push(scanPath);
+      warnings.push(...repairedEncoded.warnings.map((w) => `repaired scan: ${w}`));
+      repairedScan = undefined;
+    }
   }
   const tEncode = clock();
 
@@ -245,12 +292,23 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
     backend: options.backend,
     meanConfidence: Number(meanConfidence.toFixed(4)),
     timings: {
-      hash: tHash, decode: tDecode, lightness: tLightness, model: tModel, colour: tColour, encode: tEncode,
+      hash: tHash, decode: tDecode, ...(tRepair !== undefined ? { repair: tRepair } : {}), lightness: tLightness, model: tModel, colour: tColour, encode: tEncode,
       total: 0,
     },
     warnings,
     ...(guidance.record.hints || guidance.record.reference || skin?.faces.length
       ? { guidance: { ...guidance.record, ...(skin?.faces.length ? { skin } : {}) } }
+      : {}),
+    ...(repair && repairNames
+      ? {
+        repair: {
+          method: REPAIR_METHOD,
+          pixels: repair.repaired,
+          share: Number((repair.repaired / (W * H)).toFixed(6)),
+          mask: baseName(repairNames.mask),
+          scan: settings.repairedScan ? baseName(repairNames.scan) : null,
+        },
+      }
       : {}),
   };
   record.timings.total = Math.round(performance.now() - t0);

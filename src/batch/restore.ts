@@ -15,7 +15,7 @@ import { discoverInputs, underFolder } from './discovery.js';
 import { appendManifest, terminateManifest, type ManifestRecord } from './manifest.js';
 import { loadRunFolder, manifestName, splitCounts } from './run-folder.js';
 import { checkedPart, partLabel, partOf, type Part } from './part.js';
-import { planOutputs, type PlannedOutputs } from './naming.js';
+import { planOutputs, repairOutputs, type PlannedOutputs } from './naming.js';
 import { DEFAULT_MODEL_DIR, chooseDecoding } from '../model/index.js';
 import { cachedReference, hintsFingerprint } from '../hints/index.js';
 import { defaultJobs, settingsKey, type RestoreOptions, type RestoreSettings } from './options.js';
@@ -137,6 +137,8 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     ...(options.hints !== undefined ? { hints: options.hints === false ? false : resolve(options.hints) } : {}),
     ...(options.reference ? { reference: resolve(options.reference) } : {}),
     ...(options.skin === false ? { skin: false as const } : {}),
+    ...(options.repair || options.repairedScan ? { repair: true as const } : {}),
+    ...(options.repairedScan ? { repairedScan: true as const } : {}),
   };
   // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.
   if (settings.reference) await cachedReference(settings.reference);
@@ -320,7 +322,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
 async function removeLeftovers(outDir: string, files: PlannedFile[], todo: PlannedFile[]): Promise<string[]> {
   const own = new Map<string, Set<string>>();
   for (const file of files) {
-    for (const rel of [file.outputs.image, file.outputs.confidence, file.outputs.record]) {
+    for (const rel of allOutputs(file.outputs)) {
       const path = underFolder(outDir, rel);
       const names = own.get(dirname(path)) ?? new Set<string>();
       names.add(basename(path));
@@ -341,7 +343,20 @@ async function removeLeftovers(outDir: string, files: PlannedFile[], todo: Plann
 
 /** Throws OutputOnInputError when one of a scan's outputs would replace an input. */
 async function checkOutputs(guard: InputGuard, outDir: string, outputs: PlannedOutputs): Promise<void> {
-  for (const rel of [outputs.image, outputs.confidence, outputs.record]) await guard.check(underFolder(outDir, rel));
+  for (const rel of allOutputs(outputs)) await guard.check(underFolder(outDir, rel));
+}
+
+/** Every file a scan's result may have, repair outputs included. */
+function allOutputs(outputs: PlannedOutputs): string[] {
+  const repair = repairOutputs(outputs);
+  return [outputs.image, outputs.confidence, outputs.record, repair.mask, repair.scan];
+}
+
+/** The repair outputs a finished result has (none when it was not repaired). */
+function repairCompanions(outputs: PlannedOutputs, record: ProvenanceRecord): string[] {
+  if (!record.repair) return [];
+  const names = repairOutputs(outputs);
+  return [names.mask, ...(record.repair.scan ? [names.scan] : [])];
 }
 
 /**
@@ -389,7 +404,7 @@ function doneRecord(
     status: 'done',
     source: file.source,
     output: file.outputs.image,
-    companions: [file.outputs.record, ...(record.result.confidenceMap ? [file.outputs.confidence] : [])],
+    companions: [file.outputs.record, ...(record.result.confidenceMap ? [file.outputs.confidence] : []), ...repairCompanions(file.outputs, record)],
     size: outcome.size,
     mtimeMs: outcome.mtimeMs,
     sha256: outcome.sha256,

@@ -32,6 +32,8 @@ export interface RestoreArgs {
   hints?: string | false;
   reference?: string;
   skin: boolean;
+  repair: boolean;
+  'repaired-scan': boolean;
   part?: string;
   'part-from'?: Scheduler;
   'part-count'?: number;
@@ -114,6 +116,8 @@ export const command: CommandModule<object, RestoreArgs> = {
       .option('hints', { type: 'string', describe: 'folder of <name>.hints.json colour hints (they are also found beside each scan; --no-hints to use none); make one with kinhue hints <scan>' })
       .option('reference', { type: 'string', describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from' })
       .option('skin', { type: 'boolean', default: true, describe: 'give the faces found a skin hue at the scan\'s own lightness (a guess: check it, correct it with hints); --no-skin to leave faces to the model' })
+      .option('repair', { type: 'boolean', default: false, describe: 'take out dust, hairs and scratches before colouring; writes <name>.repair.png, white where a pixel was replaced' })
+      .option('repaired-scan', { type: 'boolean', default: false, describe: 'also write the repaired scan without colour, <name>.repaired.<ext>, in the scan\'s own depth (implies --repair)' })
       .option('part', { type: 'string', describe: 'restore part K of N (K/N) of the scans, a share picked by a hash of each output name; the N parts, on as many machines, share one --out folder' })
       .option('part-from', {
         type: 'string', choices: SCHEDULERS as unknown as string[],
@@ -192,6 +196,8 @@ export const command: CommandModule<object, RestoreArgs> = {
           hints: argv.hints,
           reference: argv.reference,
           skin: argv.skin,
+          repair: argv.repair,
+          repairedScan: argv['repaired-scan'],
           part,
           signal: soft.signal,
           hardSignal: hard.signal,
