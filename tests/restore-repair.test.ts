@@ -6,6 +6,7 @@ import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { readManifest, restore } from '../src/batch/index.js';
 import { greyToLightness } from '../src/colour/index.js';
+import { makeSheet } from '../src/report/index.js';
 import { detectionFigures, drawDamage } from '../src/repair/index.js';
 import { Random } from '../src/training/index.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
@@ -61,7 +62,8 @@ describe('restore --repair', () => {
     expect(summary.done).toBe(2);
     for (const [name, ext, depth] of [['dusty', '.png', 8], ['dusty16', '.tif', 16]] as const) {
       const record = JSON.parse(await readFile(join(out, `${name}.kinhue.json`), 'utf8'));
-      expect(record.settings.repair).toBe(true);
+      expect(record.settings.repair).toEqual({ model: 'kinhue-repair', weightsSha256: expect.stringMatching(/^[0-9a-f]{64}$/), fill: expect.stringMatching(/^(network|median)$/) });
+      expect(record.repair.method).toContain('kinhue-repair network');
       expect(record.repair.mask).toBe(`${name}.repair.png`);
       expect(record.repair.scan).toBe(`${name}.repaired${ext}`);
       const maskFile = await raw(join(out, `${name}.repair.png`));
@@ -98,6 +100,12 @@ describe('restore --repair', () => {
     }
     const manifest = await readManifest(join(out, 'kinhue-run.jsonl'));
     expect(manifest.get('dusty.png')?.companions).toEqual(expect.arrayContaining(['dusty.repair.png', 'dusty.repaired.png']));
+    // The review sheet shows the mask beside the confidence map, and a second before/after view: scan against repaired scan.
+    const html = await readFile((await makeSheet({ run: out })).output, 'utf8');
+    expect(html).toContain('src="dusty.repair.png"');
+    expect(html).toContain('repaired (white = replaced)');
+    expect(html).toContain('<span class="tag right">repaired</span>');
+    expect(html).toMatch(/<tr><th>repair<\/th><td>\d+ pixels/);
   }, 300_000);
 
   it('without --repair writes no repair outputs and leaves the settings key as before; the CLI takes --repair', async () => {

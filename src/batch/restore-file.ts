@@ -19,7 +19,7 @@ import { fullSizeGrid, mean, workingColour, workingSize, type RefineStep } from 
 import { underFolder } from './discovery.js';
 import { fileSha256 } from './hash.js';
 import { repairOutputs, type PlannedOutputs } from './naming.js';
-import { REPAIR_METHOD, repairScan } from '../repair/index.js';
+import { repairMethod, repairScan, sharedRepairModel } from '../repair/index.js';
 import type { RestoreSettings } from './options.js';
 import { workingLab } from './working-lab.js';
 
@@ -135,7 +135,8 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
   const tDecode = clock();
 
   // Repair comes first, so the model, the tone report and the result all see the repaired scan.
-  let repaired = settings.repair ? repairScan(px) : undefined;
+  const repairOptions = settings.repair ? { model: await sharedRepairModel(), fill: settings.repair.fill } : undefined;
+  let repaired = repairOptions ? repairScan(px, repairOptions) : undefined;
   const repair = repaired && { mask: repaired.mask, repaired: repaired.repaired };
   if (repaired) px = repaired.pixels;
   // Kept for writing only when asked for; otherwise the repaired samples go when the colour pass is done.
@@ -302,7 +303,7 @@ export async function restoreFile(job: FileJob, model: KinhueModel, options: Res
     ...(repair && repairNames
       ? {
         repair: {
-          method: REPAIR_METHOD,
+          method: repairMethod(repairOptions),
           pixels: repair.repaired,
           share: Number((repair.repaired / (W * H)).toFixed(6)),
           mask: baseName(repairNames.mask),

@@ -23,6 +23,7 @@ import { WorkerPool } from './pool.js';
 import type { FileJob, ProvenanceRecord } from './restore-file.js';
 import { serialiseError, type SerialisedError } from './worker-protocol.js';
 import { fileSha256 } from './hash.js';
+import { sharedRepairModel } from '../repair/index.js';
 
 /**
  * What happens to one discovered file: `conflict` when the output folder holds another scan's result
@@ -137,7 +138,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     ...(options.hints !== undefined ? { hints: options.hints === false ? false : resolve(options.hints) } : {}),
     ...(options.reference ? { reference: resolve(options.reference) } : {}),
     ...(options.skin === false ? { skin: false as const } : {}),
-    ...(options.repair || options.repairedScan ? { repair: true as const } : {}),
+    ...(options.repair || options.repairedScan ? { repair: await repairSettings() } : {}),
     ...(options.repairedScan ? { repairedScan: true as const } : {}),
   };
   // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.
@@ -344,6 +345,12 @@ async function removeLeftovers(outDir: string, files: PlannedFile[], todo: Plann
 /** Throws OutputOnInputError when one of a scan's outputs would replace an input. */
 async function checkOutputs(guard: InputGuard, outDir: string, outputs: PlannedOutputs): Promise<void> {
   for (const rel of allOutputs(outputs)) await guard.check(underFolder(outDir, rel));
+}
+
+/** The shipped repair model's identity, read (and its files checked) before any scan starts. */
+async function repairSettings(): Promise<NonNullable<RestoreSettings['repair']>> {
+  const { meta } = await sharedRepairModel();
+  return { model: meta.name, weightsSha256: meta.weightsSha256, fill: meta.fill };
 }
 
 /** Every file a scan's result may have, repair outputs included. */

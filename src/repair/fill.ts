@@ -27,39 +27,50 @@ export function keepUnmasked<T extends Float32Array | Uint8Array | Uint16Array>(
  */
 export function medianFill(L: Float32Array, w: number, h: number, mask: Uint8Array, radius = 2): Float32Array {
   const out = Float32Array.from(L);
-  const known = Uint8Array.from(mask, (m) => (m ? 0 : 1));
-  let todo: number[] = [];
-  for (let i = 0; i < mask.length; i++) if (mask[i]) todo.push(i);
-  const values: number[] = [];
+  const known = new Uint8Array(mask.length);
+  let count = 0;
+  for (let i = 0; i < mask.length; i++) {
+    if (mask[i]) count++;
+    else known[i] = 1;
+  }
+  let todo = new Int32Array(count);
+  for (let i = 0, k = 0; i < mask.length; i++) if (mask[i]) todo[k++] = i;
+  const values = new Float64Array((2 * radius + 1) ** 2);
+  const layerAt = new Int32Array(count);
+  const layerValue = new Float32Array(count);
   while (todo.length) {
-    const layer: Array<[number, number]> = [];
-    const rest: number[] = [];
-    for (const p of todo) {
+    let layer = 0;
+    let rest = 0;
+    for (let t = 0; t < todo.length; t++) {
+      const p = todo[t]!;
       const x = p % w;
       const y = (p - x) / w;
-      values.length = 0;
+      let n = 0;
       for (let yy = Math.max(0, y - radius); yy <= Math.min(h - 1, y + radius); yy++) {
-        for (let xx = Math.max(0, x - radius); xx <= Math.min(w - 1, x + radius); xx++) {
-          const q = yy * w + xx;
-          if (known[q]) values.push(out[q]!);
+        for (let xx = Math.max(0, x - radius), q = yy * w + xx; xx <= Math.min(w - 1, x + radius); xx++, q++) {
+          if (!known[q]) continue;
+          // Insertion into the sorted run so far: at most 25 values.
+          const v = out[q]!;
+          let j = n++;
+          while (j > 0 && values[j - 1]! > v) {
+            values[j] = values[j - 1]!;
+            j--;
+          }
+          values[j] = v;
         }
       }
-      if (values.length) layer.push([p, median(values)]);
-      else rest.push(p);
+      if (n) {
+        layerAt[layer] = p;
+        layerValue[layer++] = n % 2 ? values[n >> 1]! : 0.5 * (values[(n >> 1) - 1]! + values[n >> 1]!);
+      } else todo[rest++] = p;
     }
     // A mask that covers everything has nothing to fill from: leave it as it is.
-    if (!layer.length) break;
-    for (const [p, v] of layer) {
-      out[p] = v;
-      known[p] = 1;
+    if (!layer) break;
+    for (let k = 0; k < layer; k++) {
+      out[layerAt[k]!] = layerValue[k]!;
+      known[layerAt[k]!] = 1;
     }
-    todo = rest;
+    todo = todo.subarray(0, rest);
   }
   return out;
-}
-
-function median(values: number[]): number {
-  values.sort((a, b) => a - b);
-  const m = values.length >> 1;
-  return values.length % 2 ? values[m]! : 0.5 * (values[m - 1]! + values[m]!);
 }

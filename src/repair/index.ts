@@ -5,3 +5,7 @@ export * from './detector.js';
 export * from './fill.js';
 export * from './measures.js';
 export * from './scan-repair.js';
+export * from './network.js';
+export * from './repair-model.js';
+export * from './repair-training.js';
+export * from './network-repair.js';

@@ -7,11 +7,24 @@
  */
 import { greyToLightness, lightnessToGrey } from '../colour/index.js';
 import type { Pixels } from '../image/index.js';
-import { DETECTOR_SETTINGS, detectDamage, type DetectorSettings } from './detector.js';
+import { detectDamage } from './detector.js';
 import { medianFill } from './fill.js';
+import { networkRepair } from './network-repair.js';
+import type { RepairModel } from './repair-model.js';
 
-/** How repair is done, as records name it. */
-export const REPAIR_METHOD = 'top-hat detection, median fill';
+export interface ScanRepairOptions {
+  /** The repair network; without it, the classical detector finds the damage. */
+  model?: RepairModel;
+  /** What goes into the masked pixels: the network's L* or the median of their surroundings. Default: the network's when there is one. */
+  fill?: 'network' | 'median';
+}
+
+/** How a repair with these options is done, as records name it. */
+export function repairMethod(options: ScanRepairOptions = {}): string {
+  if (!options.model) return 'top-hat detection, median fill';
+  const found = options.model.meta.detection === 'confirmed' ? 'top-hat detection confirmed by the' : 'top-hat candidates decided by the';
+  return `${found} ${options.model.meta.name} network, ${options.fill === 'median' ? 'median' : 'network'} fill`;
+}
 
 export interface ScanRepair {
   /** The repaired scan: a copy of the input's samples with the masked pixels replaced. */
@@ -30,7 +43,7 @@ const MARGIN_ROWS = 48;
  * @example
  *   const { pixels, mask, repaired } = repairScan(decoded.pixels);
  */
-export function repairScan(px: Pixels, settings: DetectorSettings = DETECTOR_SETTINGS): ScanRepair {
+export function repairScan(px: Pixels, options: ScanRepairOptions = {}): ScanRepair {
   const { width: w, height: h, channels } = px;
   const data = px.data.slice();
   const mask = new Uint8Array(w * h);
@@ -43,8 +56,16 @@ export function repairScan(px: Pixels, settings: DetectorSettings = DETECTOR_SET
     const bottom = Math.min(h, y1 + MARGIN_ROWS);
     const rows = bottom - top;
     const L = greyToLightness(px.data.subarray(top * per, bottom * per), channels);
-    const found = detectDamage(L, w, rows, settings).mask;
-    const filled = medianFill(L, w, rows, found);
+    let found: Uint8Array;
+    let filled: Float32Array;
+    if (options.model) {
+      const net = networkRepair(L, w, rows, options.model);
+      found = net.mask;
+      filled = options.fill === 'median' ? medianFill(L, w, rows, found) : net.filled;
+    } else {
+      found = detectDamage(L, w, rows).mask;
+      filled = medianFill(L, w, rows, found);
+    }
     const coreStart = (y0 - top) * w;
     const coreEnd = (y1 - top) * w;
     const values: number[] = [];
