@@ -31,18 +31,6 @@ if (existsSync(pool)) {
 }
 const photos = await repair.readRepairPhotos(files, MAX_SIDE);
 
-/** The soft scene of tests/repair.test.ts: broad gradients and a blurred disc. */
-function softScene(w, h) {
-  const L = new Float32Array(w * h);
-  for (let y = 0; y < h; y++) {
-    for (let x = 0; x < w; x++) {
-      const disc = 1 / (1 + Math.exp((Math.hypot(x - w * 0.35, y - h * 0.5) - h * 0.3) / 3));
-      L[y * w + x] = 35 + 30 * (x / w) + 15 * Math.sin(y / 23) + 20 * disc;
-    }
-  }
-  return L;
-}
-
 const modelDir = process.env.KINHUE_BENCH_REPAIR_MODEL ?? join(root, 'models', 'kinhue-repair');
 let model;
 if (existsSync(join(modelDir, 'repair-model.json'))) {
@@ -106,7 +94,7 @@ console.log(`Scan repair: the classical detector (top-hat, median fill) and ${mo
   ? `the network in ${modelDir} as restore uses it (detection ${model.meta.detection}, threshold ${model.meta.threshold}, ${model.meta.fill} fill)`
   : 'no network (none found)'}`);
 measure(`Photos: ${source}`, photos, 15);
-measure('Soft synthetic scenes: 6 of 768 x 512', [1, 2, 3, 4, 5, 6].map(() => ({ width: 768, height: 512, L: softScene(768, 512) })), 16);
+measure('Soft synthetic scenes: 6 of 768 x 512', [1, 2, 3, 4, 5, 6].map(() => ({ width: 768, height: 512, L: repair.softScene(768, 512) })), 16);
 
 // Cost: CPU time of restoring one 6 MP 8-bit grey JPEG with light damage (one worker thread, the models
 // loaded by each run), without and with --repair (the shipped repair model). process.cpuUsage covers the worker threads, which share the process.

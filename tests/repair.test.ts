@@ -2,21 +2,9 @@ import { describe, expect, it } from 'vitest';
 import type { Pixels } from '../src/image/index.js';
 import {
   addGrain, changeFigures, detectDamage, detectionFigures, drawDamage, keepUnmasked, MASK_DELTA, maskedSquaredError, medianFill, psnrOf,
-  repairScan, squareFilter,
+  repairScan, softScene, squareFilter,
 } from '../src/repair/index.js';
 import { Random } from '../src/training/index.js';
-
-/** A soft scene: broad gradients and blurred shapes, as a print's sky, walls and faces are. */
-function softScene(w: number, h: number): Float32Array {
-  const L = new Float32Array(w * h);
-  for (let y = 0; y < h; y++) {
-    for (let x = 0; x < w; x++) {
-      const disc = 1 / (1 + Math.exp((Math.hypot(x - w * 0.35, y - h * 0.5) - h * 0.3) / 3));
-      L[y * w + x] = 35 + 30 * (x / w) + 15 * Math.sin(y / 23) + 20 * disc;
-    }
-  }
-  return L;
-}
 
 describe('damage generator', () => {
   it('draws the same damage from the same seed, and other damage from another', () => {

@@ -84,8 +84,8 @@ export interface RestoreSettings {
   reference?: string;
   /** False when the skin prior is off (absent when on, the default). */
   skin?: false;
-  /** The repair model and its fill when scans are repaired before colouring (absent when off, the default). */
-  repair?: { model: string; weightsSha256: string; fill: 'network' | 'median' };
+  /** The repair model and how it is used, when scans are repaired before colouring (absent when off, the default). */
+  repair?: { model: string; weightsSha256: string; detection: 'network' | 'confirmed'; threshold: number; fill: 'network' | 'median' };
   /** True when the repaired scan is written too. */
   repairedScan?: true;
 }

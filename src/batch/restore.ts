@@ -350,7 +350,7 @@ async function checkOutputs(guard: InputGuard, outDir: string, outputs: PlannedO
 /** The shipped repair model's identity, read (and its files checked) before any scan starts. */
 async function repairSettings(): Promise<NonNullable<RestoreSettings['repair']>> {
   const { meta } = await sharedRepairModel();
-  return { model: meta.name, weightsSha256: meta.weightsSha256, fill: meta.fill };
+  return { model: meta.name, weightsSha256: meta.weightsSha256, detection: meta.detection, threshold: meta.threshold, fill: meta.fill };
 }
 
 /** Every file a scan's result may have, repair outputs included. */

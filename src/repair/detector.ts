@@ -31,7 +31,7 @@ export interface DetectorSettings {
 }
 
 /**
- * Settings chosen on seeded synthetic damage over soft, grainy scenes (those of tests/repair.test.ts):
+ * Settings chosen on seeded synthetic damage over soft, grainy scenes (`softScene` in measures.ts):
  * the detection goals met while undamaged scenes stay under 0.1% changed. On detailed photographs
  * (foliage, crowds, lettering) the detector takes fine detail for damage: `npm run bench -- repair`.
  */

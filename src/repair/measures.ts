@@ -83,3 +83,18 @@ export function changeFigures(before: Float32Array, after: Float32Array): Change
   }
   return { changedShare: changed / before.length, meanAbsDelta: sum / before.length };
 }
+
+/**
+ * A soft scene of L* (w x h): broad gradients and a blurred disc, as a print's sky, walls and faces are
+ * (kinhue's own), on which the tests and the benchmark draw damage.
+ */
+export function softScene(w: number, h: number): Float32Array {
+  const L = new Float32Array(w * h);
+  for (let y = 0; y < h; y++) {
+    for (let x = 0; x < w; x++) {
+      const disc = 1 / (1 + Math.exp((Math.hypot(x - w * 0.35, y - h * 0.5) - h * 0.3) / 3));
+      L[y * w + x] = 35 + 30 * (x / w) + 15 * Math.sin(y / 23) + 20 * disc;
+    }
+  }
+  return L;
+}

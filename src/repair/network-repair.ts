@@ -30,7 +30,9 @@ export interface NetworkRepair {
 
 /**
  * Finds and fills damage in an L* plane with the repair network. `network` detection: the network decides
- * near permissive candidates; `confirmed`: the classical detector's mask, kept where the network agrees.
+ * near permissive candidates. `confirmed`: the classical detector's mask, kept where the network agrees
+ * (on the pool's photos, trusting the detector as it is in plain neighbourhoods changed twice as many
+ * pixels of undamaged photos, for less than half the time).
  * @example
  *   const { mask, filled } = networkRepair(L, width, height, await loadRepairModel());
  */

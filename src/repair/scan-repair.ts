@@ -47,7 +47,7 @@ export function repairScan(px: Pixels, options: ScanRepairOptions = {}): ScanRep
   const { width: w, height: h, channels } = px;
   const data = px.data.slice();
   const mask = new Uint8Array(w * h);
-  const bandRows = Math.max(64, Math.floor((1 << 20) / w));
+  const bandRows = Math.max(64, Math.floor((1 << 21) / w));
   const per = w * channels;
   let repaired = 0;
   for (let y0 = 0; y0 < h; y0 += bandRows) {
