@@ -11,7 +11,8 @@
 // Each scan: grey luminance (CIE Y of linear sRGB, re-encoded with the sRGB curve), a small blur
 // (a print seen through a flatbed scanner), faded tones (lifted blacks, dulled whites, lower contrast),
 // seeded grain stronger in the mid-tones, a mild vignette, then a print tone (none, sepia, selenium,
-// cyanotype). A data-making script, so it uses sharp directly.
+// cyanotype); for the damaged prints, dust, hairs and scratches before the tone. A data-making script, so
+// it uses sharp directly.
 import { mkdirSync, readdirSync, renameSync, existsSync } from 'node:fs';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -48,6 +49,12 @@ const ALBUM = [
     tone: 'warm', black: 0.06, white: 0.94, gamma: 1.0, grain: 0.02, blur: 0.4, vignette: 0, seed: 808, out: 'jpeg' },
   { id: 'wrenfold-09-cousin-ada', source: 'fotoxx-common--denoise.jpg', extract: { left: 432, top: 306, width: 229, height: 263 },
     tone: 'none', black: 0.07, white: 0.92, gamma: 1.0, grain: 0.025, blur: 0.4, vignette: 0.1, seed: 909, out: 'jpeg' },
+  // Damaged prints for `restore --repair`: the same photographs as 03 and 01, made again with dust, hairs
+  // and scratches drawn by kinhue's own damage generator (src/repair/damage.ts; needs dist/, built by npm ci).
+  { id: 'wrenfold-10-new-calf-dusty', original: 'wrenfold-03-new-calf', damage: { seed: 1010, perMegapixel: 45 },
+    tone: 'none', black: 0.06, white: 0.93, gamma: 1.0, grain: 0.03, blur: 0.8, vignette: 0.15, seed: 1001, out: 'jpeg' },
+  { id: 'wrenfold-11-hill-pasture-scratched', original: 'wrenfold-01-hill-pasture', damage: { seed: 1111, perMegapixel: 30 },
+    tone: 'sepia', black: 0.1, white: 0.9, gamma: 1.05, grain: 0.035, blur: 1.0, vignette: 0.25, seed: 1101, out: 'jpeg' },
 ];
 
 /**
@@ -122,7 +129,7 @@ async function makeOriginal(entry, fromDir) {
 }
 
 async function makeScan(entry) {
-  const orig = join(ORIGINALS, `${entry.id}.jpg`);
+  const orig = join(ORIGINALS, `${entry.original ?? entry.id}.jpg`);
   const meta = await sharp(orig).metadata();
   const long = entry.longSide ?? Math.max(meta.width, meta.height);
   const { data, info } = await sharp(orig).resize(long, long, { fit: 'inside' }).removeAlpha()
@@ -171,6 +178,14 @@ async function makeScan(entry) {
       v[i] = Math.min(1, Math.max(0, t));
     }
   }
+  // 5. damage: on the print's grey (scaled to 0-100, as the generator's L* plane), before the print tone.
+  if (entry.damage) {
+    const { drawDamage } = await import('../dist/repair/index.js');
+    const { Random } = await import('../dist/training/index.js');
+    const plane = Float32Array.from(v, (t) => 100 * t);
+    const damaged = drawDamage(plane, w, h, new Random(entry.damage.seed), { perMegapixel: entry.damage.perMegapixel, grain: 0 }).L;
+    for (let i = 0; i < n; i++) v[i] = Math.min(1, Math.max(0, damaged[i] / 100));
+  }
 
   mkdirSync(SCANS, { recursive: true });
   if (entry.out === 'tiff16') {
@@ -216,7 +231,7 @@ async function main() {
   if (at >= 0 && !fromDir) throw new Error('--from needs a folder (the one given to gather-photos.sh --demo)');
   mkdirSync(ORIGINALS, { recursive: true });
   for (const entry of ALBUM) {
-    if (fromDir) await makeOriginal(entry, fromDir);
+    if (fromDir && !entry.original) await makeOriginal(entry, fromDir);
     await makeScan(entry);
     console.log(`${entry.id}: ${entry.tone}${entry.out === 'tiff16' ? ', 16-bit TIFF' : ''}`);
   }

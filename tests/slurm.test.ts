@@ -88,7 +88,9 @@ describe.skipIf(Boolean(skipReason))(`the README's Slurm array script on a singl
   it('restores every scan exactly once in 3 tasks; a task cancelled part-way and resubmitted does only what was left', async () => {
     const discovery = await discoverInputs([SCANS], { example: '' });
     const outputs = planOutputs(discovery.files, 'same').map((o) => o.image);
-    expect(outputs).toHaveLength(9);
+    // Every scan of the demo album (its images; the hints file is not one).
+    expect(outputs).toHaveLength((await readdir(SCANS)).filter((f) => /\.(jpe?g|tiff?)$/i.test(f)).length);
+    const album = outputs.length;
 
     // First run: 3 tasks, one part each, into one folder.
     const out = join(root, 'restored');
@@ -107,10 +109,10 @@ describe.skipIf(Boolean(skipReason))(`the README's Slurm array script on a singl
     expect(progress.status, progress.stderr).toBe(0);
     const figures = JSON.parse(progress.stdout) as RunProgress;
     expect(figures.split).toBe(PARTS);
-    expect(figures.total).toMatchObject({ files: 9, done: 9, failed: 0, pending: 0 });
+    expect(figures.total).toMatchObject({ files: album, done: album, failed: 0, pending: 0 });
     const sheet = kinhue(['sheet', out]);
     expect(sheet.status, sheet.stderr).toBe(0);
-    expect(sheet.stdout).toMatch(/\(9 restored\)/);
+    expect(sheet.stdout).toContain(`(${album} restored)`);
 
     // Second run: cancel the part with the most scans once it has finished one.
     const sizes = [1, 2, 3].map((k) => outputs.filter((o) => partOf(o, PARTS) === k).length);
@@ -145,7 +147,7 @@ describe.skipIf(Boolean(skipReason))(`the README's Slurm array script on a singl
     expect(starts.map((s) => s.start.toRun)).toEqual([sizes[k - 1], left]);
     expect(Object.fromEntries(await doneLines(again))).toEqual(Object.fromEntries(outputs.map((o) => [o, 1])));
     const finalFigures = JSON.parse(kinhue(['progress', again, '--json']).stdout) as RunProgress;
-    expect(finalFigures.total).toMatchObject({ files: 9, done: 9, failed: 0, pending: 0 });
-    expect(kinhue(['sheet', again]).stdout).toMatch(/\(9 restored\)/);
+    expect(finalFigures.total).toMatchObject({ files: album, done: album, failed: 0, pending: 0 });
+    expect(kinhue(['sheet', again]).stdout).toContain(`(${album} restored)`);
   }, 420_000); // the tasks share the cores with other suites in `npm test`
 });

@@ -48,7 +48,7 @@ export function planOutputs(files: SourceFile[], choice: FormatChoice): PlannedO
     stem = fitStem(stem, Math.max(Buffer.byteLength(ext), Buffer.byteLength(CONFIDENCE_SUFFIX)));
     let candidate = stem;
     for (let n = 2; ; n++) {
-      const names = [`${candidate}${ext}`, `${candidate}${CONFIDENCE_SUFFIX}`, `${candidate}.kinhue.json`];
+      const names = [`${candidate}${ext}`, `${candidate}${CONFIDENCE_SUFFIX}`, `${candidate}${RECORD_SUFFIX}`];
       if (names.every((name) => !used.has(name.toLowerCase()))) {
         for (const name of names) used.add(name.toLowerCase());
         return { image: names[0]!, confidence: names[1]!, record: names[2]!, format };
@@ -66,6 +66,31 @@ function fitStem(stem: string, suffixBytes: number): string {
   const name = stem.slice(cut);
   if (Buffer.byteLength(name) + suffixBytes <= NAME_MAX_BYTES) return stem;
   return stem.slice(0, cut) + fitName(name, NAME_MAX_BYTES - suffixBytes - 4);
+}
+
+/** The repair outputs beside a result: the mask `<name>.repair.png` and the repaired scan `<name>.repaired.<ext>`. */
+export function repairOutputs(outputs: PlannedOutputs): { mask: string; scan: string } {
+  const stem = outputs.record.slice(0, -RECORD_SUFFIX.length);
+  return { mask: `${stem}.repair.png`, scan: `${stem}.repaired${extname(outputs.image)}` };
+}
+
+const RECORD_SUFFIX = '.kinhue.json';
+
+/**
+ * Every file a scan's result may have, repair outputs included.
+ * @example
+ *   allOutputs(outputs); // ['barn.jpg', 'barn.confidence.png', 'barn.kinhue.json', 'barn.repair.png', 'barn.repaired.jpg']
+ */
+export function allOutputs(outputs: PlannedOutputs): string[] {
+  const repair = repairOutputs(outputs);
+  return [outputs.image, outputs.confidence, outputs.record, repair.mask, repair.scan];
+}
+
+/** The repair outputs a finished result has (none when it was not repaired). */
+export function repairCompanions(outputs: PlannedOutputs, repair: { scan: string | null } | undefined): string[] {
+  if (!repair) return [];
+  const names = repairOutputs(outputs);
+  return [names.mask, ...(repair.scan ? [names.scan] : [])];
 }
 
 /** The folder part of a planned relative path ('' at the top). */

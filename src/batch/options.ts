@@ -20,6 +20,8 @@ export const RESTORE_DEFAULTS = {
   force: false,
   dryRun: false,
   skin: true,
+  repair: false,
+  repairedScan: false,
 } as const;
 
 /** The manifest's file name inside the output folder. */
@@ -54,6 +56,10 @@ export interface RestoreOptions {
   reference?: string;
   /** Give the faces found a skin hue (the skin prior). Default true. */
   skin?: boolean;
+  /** Take out dust, hairs and scratches before colouring, and write `<name>.repair.png`. Default false. */
+  repair?: boolean;
+  /** Also write the repaired scan without colour, `<name>.repaired.<ext>` (implies repair). Default false. */
+  repairedScan?: boolean;
   /**
    * Restore only this part of the scans (see part.ts): parts of one run, started alike on many
    * machines, share the output folder and never write the same file.
@@ -89,6 +95,10 @@ export interface RestoreSettings {
   reference?: string;
   /** False when the skin prior is off (absent when on, the default). */
   skin?: false;
+  /** The repair model and how it is used, when scans are repaired before colouring (absent when off, the default). */
+  repair?: { model: string; weightsSha256: string; detection: 'network' | 'confirmed'; threshold: number; fill: 'network' | 'median' };
+  /** True when the repaired scan is written too. */
+  repairedScan?: true;
 }
 
 /**

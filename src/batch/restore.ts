@@ -10,6 +10,7 @@ import pLimit from 'p-limit';
 import { ErrorCodes, isKinhueError, UsageError } from '../errors.js';
 import { hostLabel, isTemporaryOfAny, leftByEndedProcess, removeTemporaryFiles, underFolder } from '../files/index.js';
 import { appendManifest, terminateManifest, type ManifestRecord } from './manifest.js';
+import { allOutputs, repairCompanions } from './naming.js';
 import type { RestoreOptions, RestoreSettings } from './options.js';
 import type { Part } from './part.js';
 import { WorkerPool } from './pool.js';
@@ -188,7 +189,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
 async function removeLeftovers(outDir: string, files: PlannedFile[], todo: PlannedFile[]): Promise<string[]> {
   const own = new Map<string, Set<string>>();
   for (const file of files) {
-    for (const rel of [file.outputs.image, file.outputs.confidence, file.outputs.record]) {
+    for (const rel of allOutputs(file.outputs)) {
       const path = underFolder(outDir, rel);
       const names = own.get(dirname(path)) ?? new Set<string>();
       names.add(basename(path));
@@ -220,7 +221,11 @@ function doneRecord(file: PlannedFile, outcome: FileOutcome, key: string): Manif
     status: 'done',
     source: file.source,
     output: file.outputs.image,
-    companions: [file.outputs.record, ...(outcome.record.result.confidenceMap ? [file.outputs.confidence] : [])],
+    companions: [
+      file.outputs.record,
+      ...(outcome.record.result.confidenceMap ? [file.outputs.confidence] : []),
+      ...repairCompanions(file.outputs, outcome.record.repair),
+    ],
     size: outcome.size,
     mtimeMs: outcome.mtimeMs,
     sha256: outcome.sha256,

@@ -43,6 +43,8 @@ h2 { margin: 0; font-size: 1.02rem; font-weight: 600; font-family: ui-monospace,
   padding: 3px 6px; border-radius: 3px; pointer-events: none; }
 .tag.left { left: 8px; } .tag.right { right: 8px; }
 .trio { display: grid; grid-template-columns: repeat(3, 1fr); gap: 8px; }
+.trio.four { grid-template-columns: repeat(4, 1fr); }
+.viewers { display: grid; gap: 8px; align-content: start; }
 figure { margin: 0; }
 .thumb { display: block; width: 100%; height: 110px; object-fit: contain; background: #eeece7; border-radius: 3px; }
 figcaption { font-size: .78rem; color: var(--muted); margin-top: 3px; }

@@ -20,6 +20,10 @@ export interface SheetPhoto {
   scan?: SheetImage;
   result?: SheetImage;
   confidence?: SheetImage;
+  /** The repair mask (white where a pixel was replaced), when the scan was repaired. */
+  repairMask?: SheetImage;
+  /** The repaired scan without colour, when it was written. */
+  repaired?: SheetImage;
   /** Mean confidence 0-1 (done photos with a confidence map). */
   meanConfidence?: number;
   /** Fractions of pixels per confidence bin, low to high. */
@@ -77,23 +81,34 @@ function keyFacts(rows: [string, string][] | undefined): string {
 function doneCard(p: SheetPhoto, index: number): string {
   const name = escapeHtml(p.name);
   const compare = p.scan && p.result
-    ? `<div class="viewer"><div class="compare" data-compare>` +
-      `${img(p.result, `colourised ${p.name}`, 'after')}` +
-      `<div class="before-clip">${img(p.scan, `scan ${p.name}`, 'before')}</div>` +
-      `<div class="divider"></div>` +
-      `<input type="range" min="0" max="100" value="50" aria-label="move the divider between scan and result">` +
-      `<span class="tag left">scan</span><span class="tag right">result</span></div></div>`
+    ? p.repaired
+      // Two views stacked in the first column: scan against the result, and against the repaired scan.
+      ? `<div class="viewers">${compareView(p.scan, p.result, `scan ${p.name}`, `colourised ${p.name}`, 'result')}` +
+        `${compareView(p.scan, p.repaired, `scan ${p.name}`, `repaired ${p.name}`, 'repaired')}</div>`
+      : compareView(p.scan, p.result, `scan ${p.name}`, `colourised ${p.name}`, 'result')
     : '<div class="viewer missing">no comparison: the scan or the result is not there</div>';
   return `<article class="photo" data-status="done" data-name="${name}" data-order="${index}" ` +
     `data-confidence="${p.meanConfidence ?? ''}">` +
     `<header><h2>${name}</h2>${confidenceBadge(p.meanConfidence)}</header>` +
     `<div class="body">${compare}<div class="side">` +
-    `<div class="trio"><figure>${img(p.scan, `scan ${p.name}`, 'thumb')}<figcaption>scan</figcaption></figure>` +
+    `<div class="trio${p.repairMask ? ' four' : ''}"><figure>${img(p.scan, `scan ${p.name}`, 'thumb')}<figcaption>scan</figcaption></figure>` +
     `<figure>${img(p.result, `colourised ${p.name}`, 'thumb')}<figcaption>result</figcaption></figure>` +
-    `<figure>${img(p.confidence, `confidence map of ${p.name}`, 'thumb')}<figcaption>confidence (white = sure)</figcaption></figure></div>` +
+    `<figure>${img(p.confidence, `confidence map of ${p.name}`, 'thumb')}<figcaption>confidence (white = sure)</figcaption></figure>` +
+    (p.repairMask ? `<figure>${img(p.repairMask, `repair mask of ${p.name}`, 'thumb')}<figcaption>repaired (white = replaced)</figcaption></figure>` : '') +
+    `</div>` +
     `<div class="chart">${p.histogram ? `<div><div class="label">pixels by confidence</div>${histogramSvg(p.histogram)}</div>` : ''}` +
     `${keyFacts(p.facts)}</div>` +
     detailsTable(p.details, 'provenance record') + `</div></div></article>`;
+}
+
+/** A before/after view with a divider to drag: the scan on the left of it, `after` on the right. */
+function compareView(scan: SheetImage, after: SheetImage, scanAlt: string, afterAlt: string, afterTag: string): string {
+  return `<div class="viewer"><div class="compare" data-compare>` +
+    `${img(after, afterAlt, 'after')}` +
+    `<div class="before-clip">${img(scan, scanAlt, 'before')}</div>` +
+    `<div class="divider"></div>` +
+    `<input type="range" min="0" max="100" value="50" aria-label="move the divider between scan and ${afterTag}">` +
+    `<span class="tag left">scan</span><span class="tag right">${afterTag}</span></div></div>`;
 }
 
 function failedCard(p: SheetPhoto, index: number): string {

@@ -115,6 +115,7 @@ function provenanceRows(p: ProvenanceRecord): [string, string][] {
     ['made', `${p.created} by kinhue ${p.kinhue}`],
     ['statement', p.statement],
   ];
+  if (p.repair) rows.push(['repair', `${p.repair.pixels} pixels (${(100 * p.repair.share).toFixed(3)}%) replaced: ${p.repair.method}; mask ${p.repair.mask}`]);
   const skin = skinFact(p);
   if (skin) rows.push(['skin prior', `${skin}; faces at ${p.guidance!.skin!.faces.map(faceWhere).join(', ')}`]);
   if (p.warnings.length) rows.push(['warnings', p.warnings.join('; ')]);
@@ -194,6 +195,10 @@ async function photoFor(run: string, record: ManifestRecord, ctx: Context): Prom
     scan: await imageFor(provenance.source.path ?? record.source, ctx, size),
     result: await imageFor(resultPath, ctx, size),
     confidence: await imageFor(confidencePath, ctx, size),
+    ...(provenance.repair ? {
+      repairMask: await imageFor(join(dirname(resultPath), provenance.repair.mask), ctx, size),
+      ...(provenance.repair.scan ? { repaired: await imageFor(join(dirname(resultPath), provenance.repair.scan), ctx, size) } : {}),
+    } : {}),
     meanConfidence: provenance.meanConfidence,
     histogram,
     facts: keyFactsOf(provenance),

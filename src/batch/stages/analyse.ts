@@ -4,6 +4,7 @@
  */
 import { stat } from 'node:fs/promises';
 import { classifyTone, decodeImage, type DecodedImage, type ToneReport } from '../../image/index.js';
+import { repairMethod, repairScan, type ScanRepairOptions } from '../../repair/index.js';
 import { fileSha256 } from '../hash.js';
 import { workingLab } from '../working-lab.js';
 import { workingSize } from '../colourise.js';
@@ -18,8 +19,10 @@ export interface Analysis {
   working: { width: number; height: number; L: Float32Array };
   tone: ToneReport;
   warnings: string[];
-  /** Milliseconds spent hashing, decoding, and making the working-size L*. */
-  timings: { hash: number; decode: number; lightness: number };
+  /** When repair was asked for: the mask (1 = replaced), the pixels replaced, and how (the decoded scan is the repaired one). */
+  repair?: { mask: Uint8Array; repaired: number; method: string };
+  /** Milliseconds spent hashing, decoding, repairing (when asked for), and making the working-size L*. */
+  timings: { hash: number; decode: number; repair?: number; lightness: number };
 }
 
 /**
@@ -27,7 +30,11 @@ export interface Analysis {
  * @example
  *   const analysis = await analyse('scans/barn.jpg', 512, { maxPixels: 1e8 });
  */
-export async function analyse(source: string, workSize: number, options: { maxPixels?: number } = {}): Promise<Analysis> {
+export async function analyse(
+  source: string,
+  workSize: number,
+  options: { maxPixels?: number; /** Repair dust, hairs and scratches first: the model, the tone report and the result then see the repaired scan. */ repair?: ScanRepairOptions } = {},
+): Promise<Analysis> {
   let t = performance.now();
   const lap = (): number => {
     const now = performance.now();
@@ -40,6 +47,10 @@ export async function analyse(source: string, workSize: number, options: { maxPi
   const hash = lap();
   const decoded = await decodeImage(source, { maxPixels: options.maxPixels });
   const decode = lap();
+  const fixed = options.repair ? repairScan(decoded.pixels, options.repair) : undefined;
+  if (fixed) decoded.pixels = fixed.pixels;
+  const repair = fixed && options.repair ? { mask: fixed.mask, repaired: fixed.repaired, method: repairMethod(options.repair) } : undefined;
+  const repairMs = fixed ? lap() : undefined;
   const px = decoded.pixels;
   const ws = workingSize(px.width, px.height, workSize);
   const small = workingLab(px, ws.width, ws.height);
@@ -49,6 +60,7 @@ export async function analyse(source: string, workSize: number, options: { maxPi
   return {
     decoded, sha256, bytes: info?.size ?? 0, mtimeMs: info?.mtimeMs ?? 0,
     working: { width: ws.width, height: ws.height, L: small.L }, tone, warnings,
-    timings: { hash, decode, lightness: lap() },
+    ...(repair ? { repair } : {}),
+    timings: { hash, decode, ...(repairMs !== undefined ? { repair: repairMs } : {}), lightness: lap() },
   };
 }

@@ -7,13 +7,14 @@ import { guidanceWarnings, prepareGuides, type HintsSource } from '../../hints/i
 import type { FaceFinder, KinhueModel } from '../../model/index.js';
 import { VERSION } from '../../version.js';
 import { mean } from '../colourise.js';
-import type { PlannedOutputs } from '../naming.js';
+import { repairOutputs, type PlannedOutputs } from '../naming.js';
+import { sharedRepairModel } from '../../repair/index.js';
 import type { RestoreSettings } from '../options.js';
 import { analyse } from './analyse.js';
 import { applyGuides, skinGuide } from './guide.js';
 import { predictColour } from './predict.js';
 import { confidenceGrey, render } from './render.js';
-import { baseName, writeResult, type ProvenanceRecord } from './write.js';
+import { baseName, writeResult, type ProvenanceRecord, type RepairRecord } from './write.js';
 
 /** One plan entry as the run hands it to a worker (plain data: it crosses a thread boundary). */
 export interface FileJob {
@@ -50,7 +51,8 @@ export async function restoreFile(
 ): Promise<FileOutcome> {
   const t0 = performance.now();
   const { settings, outputs } = job;
-  const scan = await analyse(job.source, settings.workSize, { maxPixels: job.maxPixels });
+  const repairWith = settings.repair ? { model: await sharedRepairModel(), fill: settings.repair.fill } : undefined;
+  const scan = await analyse(job.source, settings.workSize, { maxPixels: job.maxPixels, repair: repairWith });
   const { decoded, working } = scan;
   const { width: W, height: H, channels } = decoded.pixels;
   let t = performance.now();
@@ -70,6 +72,8 @@ export async function restoreFile(
   t = performance.now();
 
   const depth: BitDepth = decoded.pixels.depth === 16 && supports16Bit(outputs.format) ? 16 : 8;
+  // The repaired scan, when it is to be written too, outlives render's release of the samples.
+  const repairedScan = scan.repair && settings.repairedScan ? decoded.pixels : undefined;
   const image = render(decoded.pixels, colour, depth);
   // The source samples are done with: let them go before the encoder needs its own memory (huge scans).
   (decoded as { pixels?: Pixels }).pixels = undefined;
@@ -81,6 +85,7 @@ export async function restoreFile(
     {
       outDir: job.outDir, outputs, source: job.source, sha256: scan.sha256, settings, meanConfidence, maxPixels: job.maxPixels,
       skinFaces: guidance.record.skin?.faces.length ?? 0,
+      ...(scan.repair ? { repair: { mask: scan.repair.mask, repaired: scan.repair.repaired, scan: repairedScan } } : {}),
     },
     image,
     { exif: decoded.exif, icc: decoded.icc },
@@ -122,10 +127,23 @@ export async function restoreFile(
     timings: { ...scan.timings, model: tModel, colour: tColour, encode: tEncode, total: 0 },
     warnings,
     ...(Object.keys(guidance.record).length ? { guidance: guidance.record } : {}),
+    ...(scan.repair ? { repair: repairRecord(scan.repair, outputs, W * H, settings.repairedScan === true) } : {}),
   };
   record.timings.total = Math.round(performance.now() - t0);
   await written.finish(record);
   return { record, size: scan.bytes, mtimeMs: scan.mtimeMs, sha256: scan.sha256, seconds: (performance.now() - t0) / 1000 };
+}
+
+/** The record of a scan's repair: how, how much, and the files that show it. */
+function repairRecord(repair: { repaired: number; method: string }, outputs: PlannedOutputs, pixels: number, scanWritten: boolean): RepairRecord {
+  const names = repairOutputs(outputs);
+  return {
+    method: repair.method,
+    pixels: repair.repaired,
+    share: Number((repair.repaired / pixels).toFixed(6)),
+    mask: baseName(names.mask),
+    scan: scanWritten ? baseName(names.scan) : null,
+  };
 }
 
 function round2(v: number): number {

@@ -15,7 +15,8 @@ import { chooseDecoding, DEFAULT_MODEL_DIR } from '../../model/index.js';
 import { fileSha256 } from '../hash.js';
 import type { ManifestRecord } from '../manifest.js';
 import { readModelInfo, type ModelInfo } from '../model-info.js';
-import { planOutputs, type PlannedOutputs } from '../naming.js';
+import { allOutputs, planOutputs, type PlannedOutputs } from '../naming.js';
+import { sharedRepairModel } from '../../repair/index.js';
 import { defaultJobs, RESTORE_DEFAULTS, settingsKey, type RestoreOptions, type RestoreSettings } from '../options.js';
 import { checkedPart, partLabel, partOf, type Part } from '../part.js';
 import { loadRunFolder, manifestName, splitCounts } from '../run-folder.js';
@@ -119,6 +120,8 @@ export async function planRestore(options: RestoreOptions): Promise<RestorePlan>
     ...(options.hints !== undefined ? { hints: options.hints === false ? false : resolve(options.hints) } : {}),
     ...(options.reference ? { reference: resolve(options.reference) } : {}),
     ...(options.skin === false ? { skin: false as const } : {}),
+    ...(options.repair || options.repairedScan ? { repair: await repairSettings() } : {}),
+    ...(options.repairedScan ? { repairedScan: true as const } : {}),
   };
   // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.
   if (settings.reference) await cachedReference(settings.reference);
@@ -196,7 +199,7 @@ export async function planRestore(options: RestoreOptions): Promise<RestorePlan>
 
 /** Throws OutputOnInputError when one of a scan's outputs would replace an input. */
 export async function checkOutputs(guard: InputGuard, outDir: string, outputs: PlannedOutputs): Promise<void> {
-  for (const rel of [outputs.image, outputs.confidence, outputs.record]) await guard.check(underFolder(outDir, rel));
+  for (const rel of allOutputs(outputs)) await guard.check(underFolder(outDir, rel));
 }
 
 /**
@@ -231,4 +234,10 @@ async function stillFinished(source: string, outDir: string, outputs: PlannedOut
   } catch {
     return false;
   }
+}
+
+/** The shipped repair model's identity, read (and its files checked) before any scan starts. */
+async function repairSettings(): Promise<NonNullable<RestoreSettings['repair']>> {
+  const { meta } = await sharedRepairModel();
+  return { model: meta.name, weightsSha256: meta.weightsSha256, detection: meta.detection, threshold: meta.threshold, fill: meta.fill };
 }

@@ -10,7 +10,7 @@ import { encodeImage, provenanceXmp, writeGreyMap, type BitDepth, type Pixels, t
 import type { BackboneRecord } from '../../model/index.js';
 import type { GuidanceRecord } from '../../hints/index.js';
 import { underFolder, writeFileAtomic } from '../../files/index.js';
-import type { PlannedOutputs } from '../naming.js';
+import { repairOutputs, type PlannedOutputs } from '../naming.js';
 import type { RestoreSettings } from '../options.js';
 
 /** The `<name>.kinhue.json` provenance record. Field names are a stable contract (the review sheet reads them). */
@@ -43,10 +43,30 @@ export interface ProvenanceRecord {
   /** Mean model confidence over the image, 0-1. */
   meanConfidence: number;
   /** Milliseconds per stage. */
-  timings: { hash: number; decode: number; lightness: number; model: number; colour: number; encode: number; total: number };
+  timings: { hash: number; decode: number; repair?: number; lightness: number; model: number; colour: number; encode: number; total: number };
   warnings: string[];
   /** Hints and reference photos: what was used, or why a hints file was ignored. Absent when neither applied. */
   guidance?: GuidanceRecord;
+  /** Dust, hairs and scratches taken out before colouring (--repair): how, how much, and the files showing it. */
+  repair?: RepairRecord;
+}
+
+export interface RepairRecord {
+  method: string;
+  /** Pixels replaced, and their share of the scan. */
+  pixels: number;
+  share: number;
+  /** `<name>.repair.png`: white where a pixel was replaced. */
+  mask: string;
+  /** `<name>.repaired.<ext>`, the repaired scan without colour, when asked for. */
+  scan: string | null;
+}
+
+/** What repair did to a scan, for its outputs: the mask (1 = replaced), the count, and the repaired scan when it is to be written. */
+export interface RepairOutputs {
+  mask: Uint8Array;
+  repaired: number;
+  scan?: Pixels;
 }
 
 /** Where a result goes and what its image carries. */
@@ -61,6 +81,8 @@ export interface ResultTarget {
   maxPixels?: number;
   /** Faces the skin prior gave a skin hue (named in the XMP when any). */
   skinFaces?: number;
+  /** The scan's repair, when it was repaired: its mask and, when asked for, the repaired scan are written too. */
+  repair?: RepairOutputs;
 }
 
 /** What the image file carries from the scan besides pixels. */
@@ -86,8 +108,10 @@ export async function writeResult(
   const { outDir, outputs, settings } = target;
   const imagePath = underFolder(outDir, outputs.image);
   await mkdir(dirname(imagePath), { recursive: true });
+  const repairNames = target.repair ? repairOutputs(outputs) : undefined;
+  const sourceFile = relative(dirname(imagePath), target.source).split(sep).join('/');
   const xmp = provenanceXmp({
-    sourceFile: relative(dirname(imagePath), target.source).split(sep).join('/'),
+    sourceFile,
     derivedFromHash: target.sha256,
     extra: {
       model: settings.model,
@@ -95,6 +119,7 @@ export async function writeResult(
       ...(settings.confidence ? { confidenceMap: baseName(outputs.confidence) } : {}),
       record: baseName(outputs.record),
       ...(target.skinFaces ? { skinPriorFaces: target.skinFaces } : {}),
+      ...(repairNames ? { repaired: 'yes', repairedPixels: target.repair!.repaired, repairMask: baseName(repairNames.mask) } : {}),
     },
   });
   const written: string[] = [];
@@ -111,9 +136,32 @@ export async function writeResult(
     await writeGreyMap(confidence.grey, confidence.width, confidence.height, image.width, image.height, confidencePath, target.maxPixels).catch(undo);
     written.push(confidencePath);
   }
+  const warnings = [...encoded.warnings];
+  if (target.repair && repairNames) {
+    const { mask, repaired, scan } = target.repair;
+    const maskPath = underFolder(outDir, repairNames.mask);
+    const white = Uint8Array.from(mask, (m) => (m ? 255 : 0));
+    await encodeImage({ width: image.width, height: image.height, channels: 1, depth: 8, data: white }, maskPath, { format: 'png', maxPixels: target.maxPixels }).catch(undo);
+    written.push(maskPath);
+    if (scan) {
+      const scanPath = underFolder(outDir, repairNames.scan);
+      const scanXmp = provenanceXmp({
+        sourceFile,
+        derivedFromHash: target.sha256,
+        description: `Repaired scan of ${baseName(sourceFile)}, made by kinhue: dust, hairs and scratches replaced in ${repaired} pixels ` +
+          `(white in ${baseName(repairNames.mask)}); every other pixel is the scan's own. No colour was added.`,
+        extra: { repaired: 'yes', repairedPixels: repaired, repairMask: baseName(repairNames.mask), record: baseName(outputs.record) },
+      });
+      const scanEncoded = await encodeImage(scan, scanPath, {
+        format: outputs.format, quality: settings.quality ?? undefined, exif: extras.exif, icc: extras.icc, xmp: scanXmp, maxPixels: target.maxPixels,
+      }).catch(undo);
+      written.push(scanPath);
+      warnings.push(...scanEncoded.warnings.map((w) => `repaired scan: ${w}`));
+    }
+  }
   return {
     depth: encoded.depth,
-    warnings: encoded.warnings,
+    warnings,
     finish: async (record) => {
       await writeFileAtomic(underFolder(outDir, outputs.record), `${JSON.stringify(record, null, 2)}\n`).catch(undo);
     },

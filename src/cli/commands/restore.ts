@@ -59,6 +59,14 @@ const CORE_FLAGS: OptionTable<CoreFlags> = {
     type: 'string', describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from',
     check: checks.folder('reference', 'a colour photograph or a folder of them'),
   },
+  repair: {
+    type: 'boolean', default: RESTORE_DEFAULTS.repair,
+    describe: 'take out dust, hairs and scratches before colouring; writes <name>.repair.png, white where a pixel was replaced',
+  },
+  repairedScan: {
+    type: 'boolean', default: RESTORE_DEFAULTS.repairedScan,
+    describe: 'also write the repaired scan without colour, <name>.repaired.<ext>, in the scan\'s own depth (implies --repair)',
+  },
   skin: {
     type: 'boolean', default: RESTORE_DEFAULTS.skin,
     describe: 'give the faces found a skin hue at the scan\'s own lightness (a guess: check it, correct it with hints); --no-skin to leave faces to the model',
