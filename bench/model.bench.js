@@ -12,8 +12,20 @@ import * as tf from '@tensorflow/tfjs';
 import { existsSync } from 'node:fs';
 import { join } from 'node:path';
 import {
-  abBins, BACKBONE_OUTPUTS, backboneFeatures, createNetwork, createTrainer, DEFAULT_MODEL_DIR, graphModelToOnnx, initBackend, loadModel, networkFlops, networkToOnnx,
-  OnnxSession, onnxRuntimeVersion, predict,
+  abBins,
+  BACKBONE_OUTPUTS,
+  backboneFeatures,
+  createNetwork,
+  createTrainer,
+  DEFAULT_MODEL_DIR,
+  graphModelToOnnx,
+  initBackend,
+  loadModel,
+  networkFlops,
+  networkToOnnx,
+  OnnxSession,
+  onnxRuntimeVersion,
+  predict,
 } from '../dist/model/index.js';
 
 const WIDTH = 512;
@@ -51,7 +63,11 @@ function measure(fn, repeats) {
 function planes(n, w, h) {
   let s = 2463534242;
   const next = () => {
-    s ^= s << 13; s >>>= 0; s ^= s >>> 17; s ^= s << 5; s >>>= 0;
+    s ^= s << 13;
+    s >>>= 0;
+    s ^= s >>> 17;
+    s ^= s << 5;
+    s >>>= 0;
     return s / 4294967296;
   };
   const L = new Float32Array(n * w * h).map((_, i) => 50 + 30 * Math.sin(i / 37) + 10 * next());
@@ -59,8 +75,12 @@ function planes(n, w, h) {
   return { L, ab };
 }
 
-console.log(`backend                             ${backend.name}, the model on ${backend.model}${backend.warning ? ` (${backend.warning})` : ''}`);
-console.log(`parameters                          ${network.countParams().toLocaleString('en')} (${((network.countParams() * 4) / 1e6).toFixed(1)} MB of float32 weights)`);
+console.log(
+  `backend                             ${backend.name}, the model on ${backend.model}${backend.warning ? ` (${backend.warning})` : ''}`,
+);
+console.log(
+  `parameters                          ${network.countParams().toLocaleString('en')} (${((network.countParams() * 4) / 1e6).toFixed(1)} MB of float32 weights)`,
+);
 console.log(`a*b* bins                           ${bins.count}`);
 console.log(`GFLOPs per ${WIDTH} x ${HEIGHT} image          ${(networkFlops(network, WIDTH, HEIGHT) / 1e9).toFixed(2)}`);
 
@@ -95,7 +115,11 @@ if (existsSync(join(DEFAULT_MODEL_DIR, 'kinhue-model.json'))) {
     const c1 = cpuMs();
     new OnnxSession(netBytes).dispose();
     const c2 = cpuMs();
-    const graphBytes = graphModelToOnnx(JSON.parse(Buffer.from(shipped.backbone.topology).toString('utf8')), shipped.backbone.weights, BACKBONE_OUTPUTS);
+    const graphBytes = graphModelToOnnx(
+      JSON.parse(Buffer.from(shipped.backbone.topology).toString('utf8')),
+      shipped.backbone.weights,
+      BACKBONE_OUTPUTS,
+    );
     const c3 = cpuMs();
     new OnnxSession(graphBytes).dispose();
     const c4 = cpuMs();

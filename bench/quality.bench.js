@@ -14,7 +14,11 @@ const modelDir = process.env.KINHUE_MODEL ?? kinhue.DEFAULT_MODEL_DIR;
 await kinhue.initBackend();
 
 const summary = JSON.parse(await readFile(join(modelDir, 'training-summary.json'), 'utf8').catch(() => '{}'));
-const exists = (file) => stat(file).then(() => true, () => false);
+const exists = (file) =>
+  stat(file).then(
+    () => true,
+    () => false,
+  );
 const heldOut = [];
 for (const file of summary.holdoutFiles ?? []) {
   const local = join(root, '.data', 'pool', basename(file));
@@ -29,16 +33,23 @@ async function report(label, photos) {
   }
   const started = Date.now();
   const r = await kinhue.score({ photos, models: [modelDir] });
-  console.log(`${label}: ${r.average.photos} photos (right hue and left grey over ${r.average.colouredPhotos}), originals' colourfulness ${f(r.average.originalColourfulness, 1)}, ${f((Date.now() - started) / 1000, 0)} s`);
+  console.log(
+    `${label}: ${r.average.photos} photos (right hue and left grey over ${r.average.colouredPhotos}), originals' colourfulness ${f(r.average.originalColourfulness, 1)}, ${f((Date.now() - started) / 1000, 0)} s`,
+  );
   console.log('  method            CIEDE2000  PSNR dB  colourful  right hue  false colour  left grey');
   for (const m of r.methods) {
     const g = r.average.figures[m.id];
-    console.log(`  ${m.label.slice(0, 16).padEnd(16)} ${f(g.ciede2000).padStart(10)} ${f(g.psnr).padStart(8)} ${f(g.colourfulness, 1).padStart(10)} ${f(g.rightHue, 1).padStart(9)}% ${f(g.falseColour, 1).padStart(11)}% ${f(g.leftGrey, 1).padStart(9)}%`);
+    console.log(
+      `  ${m.label.slice(0, 16).padEnd(16)} ${f(g.ciede2000).padStart(10)} ${f(g.psnr).padStart(8)} ${f(g.colourfulness, 1).padStart(10)} ${f(g.rightHue, 1).padStart(9)}% ${f(g.falseColour, 1).padStart(11)}% ${f(g.leftGrey, 1).padStart(9)}%`,
+    );
   }
   const model = r.average.figures[r.methods.find((m) => m.kind === 'model').id];
   const grey = r.average.figures[r.methods.find((m) => m.kind === 'grey').id];
   const goal = (text, met) => console.log(`  goal ${met ? 'met    ' : 'not met'} ${text}`);
-  goal(`right hue >= 55% and false colour <= 4% (${f(model.rightHue, 1)}%, ${f(model.falseColour, 1)}%)`, model.rightHue >= 55 && model.falseColour <= 4);
+  goal(
+    `right hue >= 55% and false colour <= 4% (${f(model.rightHue, 1)}%, ${f(model.falseColour, 1)}%)`,
+    model.rightHue >= 55 && model.falseColour <= 4,
+  );
   goal(`PSNR >= grey + 2.5 dB (grey ${model.psnr >= grey.psnr ? '+' : ''}${f(model.psnr - grey.psnr)} dB)`, model.psnr - grey.psnr >= 2.5);
   goal(`colourfulness >= 35 (${f(model.colourfulness, 1)})`, model.colourfulness >= 35);
   goal(`mean CIEDE2000 not above grey (${f(model.ciede2000)} against ${f(grey.ciede2000)})`, model.ciede2000 <= grey.ciede2000);
@@ -82,10 +93,14 @@ const rgbOf = (px) => {
 };
 console.log('hints and reference photographs on the demo originals');
 console.log('  photo                              PSNR alone  with hints   a*b* error alone  with reference');
-for (const name of readdirSync(originals).filter((f) => f.endsWith('.jpg')).sort()) {
+for (const name of readdirSync(originals)
+  .filter((f) => f.endsWith('.jpg'))
+  .sort()) {
   const file = join(originals, name);
   const { pixels } = await internals.decodeImage(file);
-  const W = pixels.width, H = pixels.height, n = W * H;
+  const W = pixels.width,
+    H = pixels.height,
+    n = W * H;
   const original = rgbOf(pixels);
   const { L } = internals.srgbToLab(original, 3);
   const { width: w, height: h } = internals.workingSize(W, H, workSize);
@@ -93,10 +108,14 @@ for (const name of readdirSync(originals).filter((f) => f.endsWith('.jpg')).sort
   const entries = [];
   for (let gy = 0; gy < 2; gy++) {
     for (let gx = 0; gx < 5; gx++) {
-      const x = Math.floor(((gx + rnd()) * w) / 5), y = Math.floor(((gy + rnd()) * h) / 2), i = y * w + x;
+      const x = Math.floor(((gx + rnd()) * w) / 5),
+        y = Math.floor(((gy + rnd()) * h) / 2),
+        i = y * w + x;
       entries.push({
-        x: Math.floor(((x + 0.5) * W) / w), y: Math.floor(((y + 0.5) * H) / h),
-        colour: internals.formatHex([small[i * 3], small[i * 3 + 1], small[i * 3 + 2]]), radius: Math.round(Math.max(W, H) / 100),
+        x: Math.floor(((x + 0.5) * W) / w),
+        y: Math.floor(((y + 0.5) * H) / h),
+        colour: internals.formatHex([small[i * 3], small[i * 3 + 1], small[i * 3 + 2]]),
+        radius: Math.round(Math.max(W, H) / 100),
       });
     }
   }
@@ -110,8 +129,13 @@ for (const name of readdirSync(originals).filter((f) => f.endsWith('.jpg')).sort
 
   const refPath = join(dir, 'reference.png');
   const top = Math.round(H * 0.15);
-  await sharp(file).extract({ left: 0, top, width: Math.round(W * 0.7), height: H - top }).png().toFile(refPath);
-  const left = Math.round(W * 0.3), sh = Math.round(H * 0.85), sw = W - left;
+  await sharp(file)
+    .extract({ left: 0, top, width: Math.round(W * 0.7), height: H - top })
+    .png()
+    .toFile(refPath);
+  const left = Math.round(W * 0.3),
+    sh = Math.round(H * 0.85),
+    sw = W - left;
   const scan = new Uint8Array(sw * sh * 3);
   for (let y = 0; y < sh; y++) scan.set(original.subarray((y * W + left) * 3, (y * W + W) * 3), y * sw * 3);
   const truth = internals.srgbToLab(scan, 3);
@@ -119,6 +143,8 @@ for (const name of readdirSync(originals).filter((f) => f.endsWith('.jpg')).sort
   const plain = await kinhue.colouriseLightness(truth.L, sw, sh, model, { workSize });
   const guided = await kinhue.colouriseLightness(truth.L, sw, sh, model, { workSize, guides: reference.guides });
   const error = (c) => internals.meanAbError({ L: truth.L, a: c.a, b: c.b }, truth);
-  console.log(`  ${name.slice(0, 32).padEnd(32)} ${f(internals.psnr(rgb(alone.a, alone.b), original)).padStart(11)} ${f(internals.psnr(rgb(hinted.a, hinted.b), original)).padStart(11)} ${f(error(plain)).padStart(18)} ${f(error(guided)).padStart(15)}`);
+  console.log(
+    `  ${name.slice(0, 32).padEnd(32)} ${f(internals.psnr(rgb(alone.a, alone.b), original)).padStart(11)} ${f(internals.psnr(rgb(hinted.a, hinted.b), original)).padStart(11)} ${f(error(plain)).padStart(18)} ${f(error(guided)).padStart(15)}`,
+  );
 }
 model.network.dispose();

@@ -96,8 +96,14 @@ async function main() {
       .toFile(join(scans, `scan-${String(k + 1).padStart(2, '0')}.jpg`));
   }
   const files = readdirSync(scans).map((f) => join(scans, f));
-  console.log(`load average before: ${loadavg().map((v) => v.toFixed(1)).join(' ')} (other work on the machine slows every figure but CPU time)`);
-  console.log(`${files.length} scans of ${WIDTH} x ${HEIGHT} (${((WIDTH * HEIGHT) / 1e6).toFixed(0)} MP), 8-bit JPEG; ${availableParallelism()} cores`);
+  console.log(
+    `load average before: ${loadavg()
+      .map((v) => v.toFixed(1))
+      .join(' ')} (other work on the machine slows every figure but CPU time)`,
+  );
+  console.log(
+    `${files.length} scans of ${WIDTH} x ${HEIGHT} (${((WIDTH * HEIGHT) / 1e6).toFixed(0)} MP), 8-bit JPEG; ${availableParallelism()} cores`,
+  );
 
   // The floor: decode plus encode alone, one file after another on one core (kinhue's own image module).
   const floorOut = join(tmp, 'floor');
@@ -111,7 +117,9 @@ async function main() {
     await kinhue.encodeImage(rgb, join(floorOut, `${img.path.split('/').pop()}`), { format: 'jpeg', exif: img.exif, icc: img.icc });
   }
   const floorPerImage = (performance.now() - f0) / 1000 / files.length;
-  console.log(`floor (decode + encode alone, 1 core): ${floorPerImage.toFixed(2)} s per image, ${(60 / floorPerImage).toFixed(1)} images/min`);
+  console.log(
+    `floor (decode + encode alone, 1 core): ${floorPerImage.toFixed(2)} s per image, ${(60 / floorPerImage).toFixed(1)} images/min`,
+  );
 
   // The backend kinhue picks, at one and two jobs; then, where that is ONNX Runtime, TensorFlow.js on
   // WebAssembly alone (KINHUE_BACKEND=wasm) at one job, so that the model stage compares per backend.
@@ -125,7 +133,11 @@ async function main() {
     // GNU time, where present, adds the CPU seconds used: a figure other load on the machine does not inflate.
     const timed = existsSync('/usr/bin/time');
     const r = timed
-      ? spawnSync('/usr/bin/time', ['-f', 'kinhue-bench-cpu %U %S', process.execPath, ...args], { encoding: 'utf8', maxBuffer: 64 << 20, env })
+      ? spawnSync('/usr/bin/time', ['-f', 'kinhue-bench-cpu %U %S', process.execPath, ...args], {
+          encoding: 'utf8',
+          maxBuffer: 64 << 20,
+          env,
+        })
       : spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 64 << 20, env });
     const seconds = (performance.now() - t0) / 1000;
     const cpuLine = /kinhue-bench-cpu ([\d.]+) ([\d.]+)/.exec(r.stderr ?? '');
@@ -134,7 +146,20 @@ async function main() {
       console.log(`restore --jobs ${jobs} failed (exit ${r.status}): ${r.stderr.slice(-500)}`);
       continue;
     }
-    const records = files.map((f) => JSON.parse(readFileSync(join(out, f.split('/').pop().replace(/\.jpg$/, '.kinhue.json')), 'utf8')));
+    const records = files.map((f) =>
+      JSON.parse(
+        readFileSync(
+          join(
+            out,
+            f
+              .split('/')
+              .pop()
+              .replace(/\.jpg$/, '.kinhue.json'),
+          ),
+          'utf8',
+        ),
+      ),
+    );
     const stage = (k) => mean(records.map((x) => x.timings[k]));
     const perImage = seconds / files.length;
     const label = `restore --jobs ${jobs}${backend ? ` (KINHUE_BACKEND=${backend})` : ''}`;

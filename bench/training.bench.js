@@ -29,7 +29,11 @@ function cpuMs() {
 function photos(count) {
   let s = 2463534242;
   const next = () => {
-    s ^= s << 13; s >>>= 0; s ^= s >>> 17; s ^= s << 5; s >>>= 0;
+    s ^= s << 13;
+    s >>>= 0;
+    s ^= s >>> 17;
+    s ^= s << 5;
+    s >>>= 0;
     return s / 4294967296;
   };
   const w = BACKBONE_PHOTO_SIZE;
@@ -53,10 +57,14 @@ function photos(count) {
 }
 
 const pool = photos(40);
-const load = loadavg().map((x) => x.toFixed(2)).join(', ');
+const load = loadavg()
+  .map((x) => x.toFixed(2))
+  .join(', ');
 console.log(`backend                          ${backend.name}${backend.warning ? ` (${backend.warning})` : ''}`);
 console.log(`cores                            ${availableParallelism()}; load average (1, 5, 15 min) before: ${load}`);
-console.log(`network                          train's default (backbone features beside L*), ${BATCH} crops of ${CROP} x ${CROP} a step, ${STEPS} timed steps each`);
+console.log(
+  `network                          train's default (backbone features beside L*), ${BATCH} crops of ${CROP} x ${CROP} a step, ${STEPS} timed steps each`,
+);
 
 const counts = [...new Set([1, 2, availableParallelism()])].filter((k) => k <= BATCH);
 /** One run per count of workers, each with its own network, sampler and figures. */

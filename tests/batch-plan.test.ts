@@ -4,7 +4,13 @@ import { join } from 'node:path';
 import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import {
-  appendManifest, loadManifest, planOutputs, readManifest, settingsKey, terminateManifest, type RestoreSettings,
+  appendManifest,
+  loadManifest,
+  planOutputs,
+  readManifest,
+  settingsKey,
+  terminateManifest,
+  type RestoreSettings,
 } from '../src/batch/index.js';
 import { UsageError } from '../src/errors.js';
 import { discoverInputs, fitName, hostLabel, NAME_MAX_BYTES, tempPathFor, temporaryOwner } from '../src/files/index.js';
@@ -15,8 +21,16 @@ const at = (outDir: string) => ({ outDir, example: 'Example usage: kinhue restor
 
 beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'kinhue-plan-'));
-  const files = ['scans/b.jpg', 'scans/a.JPG', 'scans/a.png', 'scans/sub/c.tif', 'scans/notes.txt', 'scans/.hidden.jpg',
-    'scans/restored/old.png', 'other/b.jpg'];
+  const files = [
+    'scans/b.jpg',
+    'scans/a.JPG',
+    'scans/a.png',
+    'scans/sub/c.tif',
+    'scans/notes.txt',
+    'scans/.hidden.jpg',
+    'scans/restored/old.png',
+    'other/b.jpg',
+  ];
   for (const f of files) {
     await mkdir(join(root, f, '..'), { recursive: true });
     await writeFile(join(root, f), 'x');
@@ -78,7 +92,9 @@ describe('discoverInputs', () => {
     const inFolder = await discoverInputs([top], at(join(root, 'out')));
     expect(inFolder.files.map((f) => f.rel)).toEqual(['good.jpg']);
     expect(inFolder.problems.map((p) => [p.rel, p.code])).toEqual([
-      ['broken.jpg', 'KH_UNREADABLE'], ['loop-a.jpg', 'KH_UNREADABLE'], ['loop-b.jpg', 'KH_UNREADABLE'],
+      ['broken.jpg', 'KH_UNREADABLE'],
+      ['loop-a.jpg', 'KH_UNREADABLE'],
+      ['loop-b.jpg', 'KH_UNREADABLE'],
     ]);
     expect(inFolder.problems[0]!.message).toMatch(/does not exist/);
     expect(inFolder.problems[1]!.message).toMatch(/loop/);
@@ -134,7 +150,11 @@ describe('planOutputs', () => {
 
   it('never gives two sources one output name, whatever the format', () => {
     for (const format of ['png', 'jpeg', 'tiff', 'webp'] as const) {
-      const names = planOutputs([...files, { path: '/s/a_jpg.png', rel: 'a_jpg.png' }], format).flatMap((o) => [o.image, o.confidence, o.record]);
+      const names = planOutputs([...files, { path: '/s/a_jpg.png', rel: 'a_jpg.png' }], format).flatMap((o) => [
+        o.image,
+        o.confidence,
+        o.record,
+      ]);
       expect(new Set(names.map((n) => n.toLowerCase())).size).toBe(names.length);
     }
   });
@@ -142,7 +162,14 @@ describe('planOutputs', () => {
 
 describe('manifest', () => {
   const settings: RestoreSettings = {
-    model: 'm', weightsSha256: 'abc', workSize: 512, decoding: 'least-ciede2000', temperature: 0.38, format: 'same', quality: null, confidence: true,
+    model: 'm',
+    weightsSha256: 'abc',
+    workSize: 512,
+    decoding: 'least-ciede2000',
+    temperature: 0.38,
+    format: 'same',
+    quality: null,
+    confidence: true,
   };
 
   it('keys settings stably and differently when a setting changes', () => {
@@ -169,7 +196,10 @@ describe('manifest', () => {
     await writeFile(glued, `{"time":"t","status":"do${JSON.stringify({ ...base, output: 'c.png', status: 'done' })}\nnot json\n`);
     const read = await loadManifest(glued);
     expect(read.records.get('c.png')?.status).toBe('done');
-    expect(read.notes).toEqual([expect.stringMatching(/line 1 starts with a record cut short/), expect.stringMatching(/line 2 is not a record/)]);
+    expect(read.notes).toEqual([
+      expect.stringMatching(/line 1 starts with a record cut short/),
+      expect.stringMatching(/line 2 is not a record/),
+    ]);
     expect((await readFile(glued, 'utf8')).endsWith('\n')).toBe(true);
   });
 

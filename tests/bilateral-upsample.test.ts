@@ -1,7 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import {
-  bilateralGrid, bilateralUpsample, resizePlane, shrinkPlane, sliceRows, PlaneShrinker,
-} from '../src/colour/index.js';
+import { bilateralGrid, bilateralUpsample, resizePlane, shrinkPlane, sliceRows, PlaneShrinker } from '../src/colour/index.js';
 
 /** Park-Miller minimal standard generator (Park & Miller 1988), for reproducible grain. */
 function random(seed: number): () => number {
@@ -14,8 +12,12 @@ function random(seed: number): () => number {
  * colour per region; the model's colour is simulated as the true colour averaged over quarter-size cells.
  */
 function twoRegions(shape: 'line' | 'circle') {
-  const W = 512, H = 384;
-  const L = new Float32Array(W * H), A = new Float32Array(W * H), B = new Float32Array(W * H), dist = new Float32Array(W * H);
+  const W = 512,
+    H = 384;
+  const L = new Float32Array(W * H),
+    A = new Float32Array(W * H),
+    B = new Float32Array(W * H),
+    dist = new Float32Array(W * H);
   const rnd = random(7);
   for (let y = 0; y < H; y++) {
     for (let x = 0; x < W; x++) {
@@ -34,7 +36,8 @@ function twoRegions(shape: 'line' | 'circle') {
 /** The pipeline's two stages: quarter-size colour -> working size (1/4) -> full size (grid cells of 2). */
 function twoStage(s: ReturnType<typeof twoRegions>) {
   const { W, H, L } = s;
-  const q = 16, f = 4;
+  const q = 16,
+    f = 4;
   const Lw = shrinkPlane(L, W, H, W / f, H / f);
   const Lq = shrinkPlane(L, W, H, W / q, H / q);
   const Aq = shrinkPlane(s.A, W, H, W / q, H / q);
@@ -47,7 +50,9 @@ function twoStage(s: ReturnType<typeof twoRegions>) {
 
 /** Largest and mean colour error (CIELAB a*b* distance) among pixels farther than `d` pixels from the edge. */
 function errorBeyond(s: ReturnType<typeof twoRegions>, a: Float32Array, b: Float32Array, d: number) {
-  let worst = 0, sum = 0, n = 0;
+  let worst = 0,
+    sum = 0,
+    n = 0;
   for (let i = 0; i < a.length; i++) {
     if (s.dist[i]! <= d) continue;
     const e = Math.hypot(a[i]! - s.A[i]!, b[i]! - s.B[i]!);
@@ -75,7 +80,10 @@ describe('edge-aware upsampling (joint bilateral upsampling, Kopf et al. 2007, o
   }
 
   it('returns a flat colour unchanged whatever the lightness (the result is a weighted mean of predictions)', () => {
-    const w = 16, h = 12, W = 64, H = 48;
+    const w = 16,
+      h = 12,
+      W = 64,
+      H = 48;
     const lowL = new Float32Array(w * h).map((_, i) => (i * 7) % 100);
     const fullL = new Float32Array(W * H).map((_, i) => (i * 13) % 100);
     const { a, b } = bilateralUpsample(lowL, new Float32Array(w * h).fill(12.5), new Float32Array(w * h).fill(-30), w, h, fullL, W, H);
@@ -87,7 +95,8 @@ describe('edge-aware upsampling (joint bilateral upsampling, Kopf et al. 2007, o
 
   it('gives the same result strip by strip as all at once', () => {
     const s = twoRegions('circle');
-    const lw = 128, lh = 96;
+    const lw = 128,
+      lh = 96;
     const Lw = shrinkPlane(s.L, s.W, s.H, lw, lh);
     const grid = bilateralGrid(Lw, shrinkPlane(s.A, s.W, s.H, lw, lh), shrinkPlane(s.B, s.W, s.H, lw, lh), lw, lh, { cell: 2 });
     const whole = { a: new Float32Array(s.W * s.H), b: new Float32Array(s.W * s.H) };
@@ -95,7 +104,8 @@ describe('edge-aware upsampling (joint bilateral upsampling, Kopf et al. 2007, o
     const rows = 37;
     for (let y = 0; y < s.H; y += rows) {
       const n = Math.min(rows, s.H - y);
-      const a = new Float32Array(n * s.W), b = new Float32Array(n * s.W);
+      const a = new Float32Array(n * s.W),
+        b = new Float32Array(n * s.W);
       sliceRows(grid, s.L.subarray(y * s.W, (y + n) * s.W), s.W, s.H, y, n, a, b);
       let differ = 0;
       for (let i = 0; i < n * s.W; i++) if (a[i] !== whole.a[y * s.W + i] || b[i] !== whole.b[y * s.W + i]) differ++;

@@ -1,6 +1,13 @@
 import { describe, expect, it } from 'vitest';
 import {
-  CLEARLY_COLOURED_CHROMA, FALSE_HUE_DEGREES, NEAR_NEUTRAL_CHROMA, RIGHT_HUE_DEGREES, clearlyColouredShare, hueAgreement, hueDifference, meanOfPresent,
+  CLEARLY_COLOURED_CHROMA,
+  FALSE_HUE_DEGREES,
+  NEAR_NEUTRAL_CHROMA,
+  RIGHT_HUE_DEGREES,
+  clearlyColouredShare,
+  hueAgreement,
+  hueDifference,
+  meanOfPresent,
   type LabPlanes,
 } from '../src/colour/index.js';
 
@@ -23,7 +30,7 @@ function polar(c: number, h: number): [number, number] {
 }
 
 describe('hue thresholds', () => {
-  it('are the issue\'s values', () => {
+  it("are the issue's values", () => {
     // kinhue issue 17, "Figures": C*ab >= 15 clearly coloured, < 8 near-neutral, within 30 degrees right, beyond 60 false.
     expect([CLEARLY_COLOURED_CHROMA, NEAR_NEUTRAL_CHROMA, RIGHT_HUE_DEGREES, FALSE_HUE_DEGREES]).toEqual([15, 8, 30, 60]);
   });
@@ -56,8 +63,20 @@ describe('hueAgreement', () => {
   it('takes C*ab 15 as clearly coloured and 8 as coloured enough, as >= says', () => {
     // Originals of C* exactly 15 ((9, 12): a 3-4-5 triangle; (15, 0); (0, 15)) are clearly coloured; 14.99 is not.
     // A result of C* exactly 8 counts as coloured (right, as its hue agrees); 7.99 is left grey.
-    const original = image([[9, 12], [15, 0], [15, 0], [14.99, 0], [0, 15]]);
-    const result = image([[9, 12], [8, 0], [7.99, 0], [15, 0], [0, 0]]);
+    const original = image([
+      [9, 12],
+      [15, 0],
+      [15, 0],
+      [14.99, 0],
+      [0, 15],
+    ]);
+    const result = image([
+      [9, 12],
+      [8, 0],
+      [7.99, 0],
+      [15, 0],
+      [0, 0],
+    ]);
     // Right: pixels 1 and 2; left grey: pixels 3 and 5; pixel 4 is not clearly coloured, and its result
     // (C* 15, same hue) is no false colour.
     const f = hueAgreement(result, original);
@@ -72,13 +91,25 @@ describe('hueAgreement', () => {
       [0, 0], // neutral, result C* 15: false
       [7.99, 0], // near-neutral (C* < 8), result C* 15: false
       [8, 0], // C* 8 is not near-neutral, result at the same hue: not false
-      [20, 0], [20, 0], // result 59.9 degrees off: not false; 60.1 off: false
+      [20, 0],
+      [20, 0], // result 59.9 degrees off: not false; 60.1 off: false
       [0, 0], // neutral, result C* 14.99 (below 15): not false
-      polar(20, 170), polar(20, 170), // result at -130.1 (229.9, 59.9 off across 180): not false; at -129.9 (60.1 off): false
-      [0, 0], [0, 0],
+      polar(20, 170),
+      polar(20, 170), // result at -130.1 (229.9, 59.9 off across 180): not false; at -129.9 (60.1 off): false
+      [0, 0],
+      [0, 0],
     ]);
     const result = image([
-      [15, 0], [0, 15], [15, 0], polar(30, 59.9), polar(30, 60.1), [14.99, 0], polar(30, -130.1), polar(30, -129.9), [0, 0], [0, 0],
+      [15, 0],
+      [0, 15],
+      [15, 0],
+      polar(30, 59.9),
+      polar(30, 60.1),
+      [14.99, 0],
+      polar(30, -130.1),
+      polar(30, -129.9),
+      [0, 0],
+      [0, 0],
     ]);
     const f = hueAgreement(result, original);
     // False: pixels 1, 2, 5 and 8 of 10.
@@ -92,7 +123,12 @@ describe('hueAgreement', () => {
 
   it('gives grey a right hue of 0 and left grey of 100% by construction', () => {
     const original = image([polar(40, 10), polar(25, 200), [3, 4], polar(60, 300)]);
-    const grey = image([[0, 0], [0, 0], [0, 0], [0, 0]]);
+    const grey = image([
+      [0, 0],
+      [0, 0],
+      [0, 0],
+      [0, 0],
+    ]);
     const f = hueAgreement(grey, original);
     expect(f).toEqual({ rightHue: 0, falseColour: 0, leftGrey: 100, colouredPixels: 3, pixels: 4 });
     // And the original against itself: every clearly coloured pixel right, nothing false.
@@ -100,8 +136,19 @@ describe('hueAgreement', () => {
   });
 
   it('reports no right hue or left grey for an image with no clearly coloured pixel', () => {
-    const original = image([[0, 0], [5, 5], [10, 0]]);
-    const f = hueAgreement(image([[0, 20], [0, 0], [10, 0]]), original);
+    const original = image([
+      [0, 0],
+      [5, 5],
+      [10, 0],
+    ]);
+    const f = hueAgreement(
+      image([
+        [0, 20],
+        [0, 0],
+        [10, 0],
+      ]),
+      original,
+    );
     expect(f.rightHue).toBeNull();
     expect(f.leftGrey).toBeNull();
     expect(f.colouredPixels).toBe(0);
@@ -110,11 +157,28 @@ describe('hueAgreement', () => {
 
   it('gives the share of clearly coloured pixels, 15 included', () => {
     // (9, 12) and (0, -15) have C* 15; (14.99, 0) and (0, 0) do not: 2 of 4.
-    expect(clearlyColouredShare(image([[9, 12], [0, -15], [14.99, 0], [0, 0]]))).toBe(50);
+    expect(
+      clearlyColouredShare(
+        image([
+          [9, 12],
+          [0, -15],
+          [14.99, 0],
+          [0, 0],
+        ]),
+      ),
+    ).toBe(50);
   });
 
   it('refuses images of different sizes', () => {
-    expect(() => hueAgreement(image([[0, 0]]), image([[0, 0], [1, 1]]))).toThrow(RangeError);
+    expect(() =>
+      hueAgreement(
+        image([[0, 0]]),
+        image([
+          [0, 0],
+          [1, 1],
+        ]),
+      ),
+    ).toThrow(RangeError);
   });
 });
 

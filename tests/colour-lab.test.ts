@@ -1,10 +1,24 @@
 import { describe, expect, it } from 'vitest';
 import {
-  D65_WHITE, LAB_EPSILON, LAB_KAPPA, greyToLightness, labF, labToSrgb, labToSrgbColour, labToXyz, lightnessToGrey,
-  linearSrgbToXyz, linearToSrgb, linearToSrgb16, linearToSrgb8, srgbColourToLab, srgbToLab, srgbToLinear, xyzToLab,
+  D65_WHITE,
+  LAB_EPSILON,
+  LAB_KAPPA,
+  greyToLightness,
+  labF,
+  labToSrgb,
+  labToSrgbColour,
+  labToXyz,
+  lightnessToGrey,
+  linearSrgbToXyz,
+  linearToSrgb,
+  linearToSrgb16,
+  linearToSrgb8,
+  srgbColourToLab,
+  srgbToLab,
+  srgbToLinear,
+  xyzToLab,
 } from '../src/colour/index.js';
 import { random } from './helpers/random.js';
-
 
 /** L* of a relative luminance, written out from CIE 15:2004 for the tests (independent of the source). */
 function cieLightness(y: number): number {
@@ -80,7 +94,12 @@ describe('XYZ and CIELAB constants', () => {
 
   it('inverts CIELAB back to XYZ', () => {
     // CIE 15:2004 gives the inverse; check it undoes the forward transform over a grid.
-    for (const [x, y, z] of [[0.1, 0.2, 0.3], [0.001, 0.002, 0.0005], [0.9, 0.95, 1.0], [0.4, 0.3, 0.02]]) {
+    for (const [x, y, z] of [
+      [0.1, 0.2, 0.3],
+      [0.001, 0.002, 0.0005],
+      [0.9, 0.95, 1.0],
+      [0.4, 0.3, 0.02],
+    ]) {
       const [L, a, b] = xyzToLab(x, y, z);
       const back = labToXyz(L, a, b);
       expect(back[0]).toBeCloseTo(x, 12);
@@ -151,8 +170,14 @@ describe('bulk round trips', () => {
     const n = 10_000;
     const u8 = new Uint8Array(n * 3).map(() => Math.floor(rnd() * 256));
     const a = srgbToLab(u8, 3);
-    const b = srgbToLab(Uint16Array.from(u8, (v) => v * 257), 3);
-    const c = srgbToLab(Float32Array.from(u8, (v) => v / 255), 3);
+    const b = srgbToLab(
+      Uint16Array.from(u8, (v) => v * 257),
+      3,
+    );
+    const c = srgbToLab(
+      Float32Array.from(u8, (v) => v / 255),
+      3,
+    );
     let worst = 0;
     for (let i = 0; i < n; i++) {
       const ref = srgbColourToLab(u8[3 * i] / 255, u8[3 * i + 1] / 255, u8[3 * i + 2] / 255);
@@ -169,7 +194,8 @@ describe('bulk round trips', () => {
     const rgba = new Float32Array(n * 4).map((_, j) => (j % 4 === 3 ? 0.25 : rnd()));
     const lab = srgbToLab(rgba, 4);
     const back = labToSrgb(lab, new Float32Array(n * 4), 4);
-    let worst = 0, alphaWrong = 0;
+    let worst = 0,
+      alphaWrong = 0;
     for (let j = 0; j < rgba.length; j++) {
       if (j % 4 === 3) alphaWrong += back[j] === 1 ? 0 : 1;
       else worst = Math.max(worst, Math.abs(back[j] - rgba[j]));
@@ -205,11 +231,26 @@ describe('grey data and lightness', () => {
     // CIE 15:2004: a neutral (X/Xn = Y/Yn = Z/Zn) has a* = b* = 0.
     const rnd = random(5);
     const inputs = [
-      srgbToLab(new Uint8Array(1000).map(() => rnd() * 256), 1),
-      srgbToLab(new Uint16Array(2000).map(() => rnd() * 65536), 2),
-      srgbToLab(new Float32Array(1000).map(() => rnd()), 1),
-      srgbToLab(Uint8Array.from({ length: 3000 }, (_, j) => Math.floor(j / 3) % 256), 3),
-      srgbToLab(Uint16Array.from({ length: 4000 }, (_, j) => Math.floor(j / 4) * 61), 4),
+      srgbToLab(
+        new Uint8Array(1000).map(() => rnd() * 256),
+        1,
+      ),
+      srgbToLab(
+        new Uint16Array(2000).map(() => rnd() * 65536),
+        2,
+      ),
+      srgbToLab(
+        new Float32Array(1000).map(() => rnd()),
+        1,
+      ),
+      srgbToLab(
+        Uint8Array.from({ length: 3000 }, (_, j) => Math.floor(j / 3) % 256),
+        3,
+      ),
+      srgbToLab(
+        Uint16Array.from({ length: 4000 }, (_, j) => Math.floor(j / 4) * 61),
+        4,
+      ),
     ];
     for (const lab of inputs) {
       expect(lab.a.every((v) => v === 0)).toBe(true);
@@ -229,8 +270,11 @@ describe('grey data and lightness', () => {
 
   it('greyToLightness of RGB data equals the L* plane of srgbToLab', () => {
     const rnd = random(6);
-    for (const data of [new Uint8Array(30_000).map(() => rnd() * 256), new Uint16Array(30_000).map(() => rnd() * 65536),
-      new Float32Array(30_000).map(() => rnd())]) {
+    for (const data of [
+      new Uint8Array(30_000).map(() => rnd() * 256),
+      new Uint16Array(30_000).map(() => rnd() * 65536),
+      new Float32Array(30_000).map(() => rnd()),
+    ]) {
       expect(Array.from(greyToLightness(data, 3))).toEqual(Array.from(srgbToLab(data, 3).L));
     }
   });
@@ -246,7 +290,9 @@ describe('grey data and lightness', () => {
     const g16 = lightnessToGrey(L, new Uint16Array(L.length));
     const gf = lightnessToGrey(L, new Float32Array(L.length));
     const Lf = greyToLightness(gf, 1);
-    let wrong8 = 0, wrong16 = 0, worst = 0;
+    let wrong8 = 0,
+      wrong16 = 0,
+      worst = 0;
     for (let i = 0; i < L.length; i++) {
       if (g8[i] !== Math.round(255 * linearToSrgb(cieY(L[i])))) wrong8++;
       if (g16[i] !== Math.round(65535 * linearToSrgb(cieY(L[i])))) wrong16++;

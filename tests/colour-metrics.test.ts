@@ -1,9 +1,16 @@
 import { describe, expect, it } from 'vitest';
 import {
-  ciede2000, colourfulness, inSrgbGamut, labToSrgb, meanAbError, meanCiede2000, psnr, srgbColourToLab, srgbToLab,
+  ciede2000,
+  colourfulness,
+  inSrgbGamut,
+  labToSrgb,
+  meanAbError,
+  meanCiede2000,
+  psnr,
+  srgbColourToLab,
+  srgbToLab,
 } from '../src/colour/index.js';
 import { random } from './helpers/random.js';
-
 
 describe('colourfulness (Hasler & Suesstrunk 2003)', () => {
   it('is 0 for a grey image', () => {
@@ -37,7 +44,8 @@ describe('inSrgbGamut', () => {
   it('holds the whole RGB cube surface, including the primaries, and refuses far-out colours', () => {
     // Every 8-bit colour is in sRGB by definition (IEC 61966-2-1); sample the cube's faces.
     const face: number[] = [];
-    for (let u = 0; u < 256; u += 15) for (let v = 0; v < 256; v += 15) face.push(0, u, v, 255, u, v, u, 0, v, u, 255, v, u, v, 0, u, v, 255);
+    for (let u = 0; u < 256; u += 15)
+      for (let v = 0; v < 256; v += 15) face.push(0, u, v, 255, u, v, u, 0, v, u, 255, v, u, v, 0, u, v, 255);
     const lab = srgbToLab(Uint8Array.from(face), 3);
     let outside = 0;
     for (let i = 0; i < lab.L.length; i++) if (!inSrgbGamut(lab.L[i], lab.a[i], lab.b[i])) outside++;
@@ -63,7 +71,10 @@ describe('inSrgbGamut', () => {
       lab.b[i] = rnd() * 256 - 128;
     }
     const back = srgbToLab(labToSrgb(lab, new Float32Array(n * 3), 3), 3);
-    let inside = 0, outside = 0, worstInside = 0, leastOutside = Infinity;
+    let inside = 0,
+      outside = 0,
+      worstInside = 0,
+      leastOutside = Infinity;
     for (let i = 0; i < n; i++) {
       const d = ciede2000(lab.L[i], lab.a[i], lab.b[i], back.L[i], back.a[i], back.b[i]);
       if (inSrgbGamut(lab.L[i], lab.a[i], lab.b[i])) {
@@ -112,8 +123,10 @@ describe('image comparisons', () => {
     // One pixel changes from sRGB red to sRGB orange: meanCiede2000 is that pixel's CIEDE2000 over two pixels.
     const a = new Uint8Array([255, 0, 0, 0, 128, 0]);
     const b = new Uint8Array([255, 128, 0, 0, 128, 0]);
-    const la = srgbToLab(a, 3), lb = srgbToLab(b, 3);
-    const red = srgbColourToLab(1, 0, 0), orange = srgbColourToLab(1, 128 / 255, 0);
+    const la = srgbToLab(a, 3),
+      lb = srgbToLab(b, 3);
+    const red = srgbColourToLab(1, 0, 0),
+      orange = srgbColourToLab(1, 128 / 255, 0);
     expect(meanCiede2000(la, lb)).toBeCloseTo(ciede2000(...red, ...orange) / 2, 4);
     expect(meanAbError(la, lb)).toBeCloseTo(Math.hypot(red[1] - orange[1], red[2] - orange[2]) / 2, 4);
     // 128 off in one of six values: MSE 128^2 / 6.

@@ -6,7 +6,6 @@ import { describe, expect, it } from 'vitest';
 import { ciede2000, inSrgbGamut, labToSrgb, srgbToLab } from '../src/colour/index.js';
 import { random } from './helpers/random.js';
 
-
 function randomRgb8(n: number, seed: number): Uint8Array {
   const rnd = random(seed);
   const data = new Uint8Array(n * 3);
@@ -21,7 +20,8 @@ describe('sRGB -> CIELAB against libvips', () => {
   it('65,536 seeded random colours stay within CIEDE2000 0.1 of sharp/libvips', async () => {
     // Reference: libvips' colourspace conversion (sRGB -> CIELAB D65) as exposed by sharp, float output.
     // libvips uses the 4-decimal IEC matrix, so small differences are expected; the bound is issue 2's.
-    const width = 256, height = 256;
+    const width = 256,
+      height = 256;
     const rgb = randomRgb8(width * height, 11);
     const { data, info } = await sharp(Buffer.from(rgb), { raw: { width, height, channels: 3 } })
       .toColourspace('lab')
@@ -60,7 +60,9 @@ describe('CIELAB against culori', () => {
     // The two sRGB results are compared perceptually (both measured with our forward conversion, checked
     // above against libvips and culori), since near black a tiny linear difference is a large sRGB step.
     const rnd = random(13);
-    const L: number[] = [], a: number[] = [], b: number[] = [];
+    const L: number[] = [],
+      a: number[] = [],
+      b: number[] = [];
     while (L.length < 10_000) {
       const c = { mode: 'lab65' as const, l: rnd() * 100, a: rnd() * 200 - 100, b: rnd() * 200 - 100 };
       if (displayable(c)) {
@@ -107,9 +109,12 @@ describe('CIELAB against culori', () => {
     // Reference: culori displayable() on lab65 colours. The two use slightly different white points, so
     // colours within 0.005 (linear light) of the gamut boundary are left out of the comparison.
     const rnd = random(15);
-    let compared = 0, disagree = 0;
+    let compared = 0,
+      disagree = 0;
     for (let i = 0; i < 50_000; i++) {
-      const L = rnd() * 100, a = rnd() * 256 - 128, b = rnd() * 256 - 128;
+      const L = rnd() * 100,
+        a = rnd() * 256 - 128,
+        b = rnd() * 256 - 128;
       if (inSrgbGamut(L, a, b, -0.005) !== inSrgbGamut(L, a, b, 0.005)) continue;
       compared++;
       if (inSrgbGamut(L, a, b) !== displayable({ mode: 'lab65', l: L, a, b })) disagree++;

@@ -36,7 +36,11 @@ describe('resampling', () => {
     expect(out[0]).toBe(10 + 500);
     // Zoomed out by 2: output (ox, oy) samples source (3 + 2 ox + 0.5, 5 + 2 oy + 0.5).
     sampleCrop(plane, w, h, { x: 3, y: 5, side: 16, flip: false }, 8, out, 0);
-    for (const [ox, oy] of [[0, 0], [5, 2], [7, 7]] as const) {
+    for (const [ox, oy] of [
+      [0, 0],
+      [5, 2],
+      [7, 7],
+    ] as const) {
       expect(out[oy * 8 + ox]).toBeCloseTo(3 + 2 * ox + 0.5 + 100 * (5 + 2 * oy + 0.5), 3);
     }
   });
@@ -54,7 +58,11 @@ describe('resampling', () => {
 describe('one footprint for restore and training', () => {
   it("restore's working-size scan and a training photo shrink alike, at ratios that do not divide", () => {
     const next = random(14);
-    for (const [w, h, side] of [[5, 3, 2], [101, 67, 40], [640, 427, 512]] as const) {
+    for (const [w, h, side] of [
+      [5, 3, 2],
+      [101, 67, 40],
+      [640, 427, 512],
+    ] as const) {
       const data = Uint8Array.from({ length: w * h * 3 }, () => Math.floor(next() * 256));
       const px = { width: w, height: h, channels: 3 as const, depth: 8 as const, data };
       const photo = downscaleToFloatRgb(px, side);

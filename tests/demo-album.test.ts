@@ -35,7 +35,9 @@ describe('restore of the demo album gives the same outputs bit for bit as before
         await writeFile(FIXTURE, `${JSON.stringify({ weightsSha256: meta.weightsSha256, runs }, null, 2)}\n`);
       }
       const fixture = JSON.parse(await readFile(FIXTURE, 'utf8')) as Fixture;
-      expect(meta.weightsSha256, 'the shipped model changed: make new digests with the code from before the change').toBe(fixture.weightsSha256);
+      expect(meta.weightsSha256, 'the shipped model changed: make new digests with the code from before the change').toBe(
+        fixture.weightsSha256,
+      );
       expect(digests).toEqual(fixture.runs[run]);
     }, 900_000);
   }

@@ -7,7 +7,16 @@ import { describe, expect, it } from 'vitest';
 import { check } from '../src/cli/commands/hints.js';
 import { isKinhueError, KinhueError } from '../src/errors.js';
 import {
-  formatHints, hintLch, hintsCandidates, outOfRange, parseCssColour, parseHints, prepareGuidance, rasteriseHints, starterHints, writeStarterHints,
+  formatHints,
+  hintLch,
+  hintsCandidates,
+  outOfRange,
+  parseCssColour,
+  parseHints,
+  prepareGuidance,
+  rasteriseHints,
+  starterHints,
+  writeStarterHints,
 } from '../src/hints/index.js';
 import { findJsonError } from '../src/hints/json-syntax.js';
 import { random } from './helpers/random.js';
@@ -28,7 +37,16 @@ const doc = (entries: unknown[], extra: Record<string, unknown> = {}) =>
 
 describe('CSS colours', () => {
   // Reference: culori's CSS parser (an independent npm library), channels 0-1.
-  const cases = ['#2f5d3a', '#ABC', '#000', '#ffffff', 'rgb(180, 40, 30)', 'rgb(10 20 30)', 'rgb(10%, 20%, 30%)', ' rgb( 0 , 255 , 127.5 ) '];
+  const cases = [
+    '#2f5d3a',
+    '#ABC',
+    '#000',
+    '#ffffff',
+    'rgb(180, 40, 30)',
+    'rgb(10 20 30)',
+    'rgb(10%, 20%, 30%)',
+    ' rgb( 0 , 255 , 127.5 ) ',
+  ];
   it.each(cases)('%s reads as culori reads it', (text) => {
     const ours = parseCssColour(text)!;
     const theirs = parse(text.trim()) as { r: number; g: number; b: number };
@@ -62,11 +80,20 @@ describe('CSS colours', () => {
 
 describe('parseHints', () => {
   it('reads points and strokes with their colours, radii and notes', () => {
-    const hints = parseHints(doc([
-      { x: 10, y: 20, colour: '#2f5d3a', radius: 6, note: 'coat' },
-      { points: [[0, 0], [299.5, 199.5]], colour: 'rgb(150, 38, 30)' },
-      { x: 1, y: 1, colour: '' },
-    ]), file);
+    const hints = parseHints(
+      doc([
+        { x: 10, y: 20, colour: '#2f5d3a', radius: 6, note: 'coat' },
+        {
+          points: [
+            [0, 0],
+            [299.5, 199.5],
+          ],
+          colour: 'rgb(150, 38, 30)',
+        },
+        { x: 1, y: 1, colour: '' },
+      ]),
+      file,
+    );
     expect(hints.width).toBe(300);
     expect(hints.entries).toHaveLength(2);
     expect(hints.placeholders).toBe(1);
@@ -101,7 +128,24 @@ describe('parseHints', () => {
   it('finds a syntax error exactly where JSON.parse fails, and none where it succeeds', () => {
     // Reference: Node's own JSON.parse, for validity and, where its message gives one, the position.
     const valid = ['{}', '[]', ' {"a": [1, -2.5e3, true, false, null, "\\u00e9\\n"]} ', '"x"', '0', '[[[[]]]]', '{"a":{"b":{}}}'];
-    const invalid = ['', '{', '{"a" 1}', '{"a": 01}', '[1 2]', '{"a": tru}', '"\\x"', '[-]', '{,}', '{"a": 1}}', "{'a': 1}", '[1,]', '1.', '[1e]', '-x', '"a\tb"'];
+    const invalid = [
+      '',
+      '{',
+      '{"a" 1}',
+      '{"a": 01}',
+      '[1 2]',
+      '{"a": tru}',
+      '"\\x"',
+      '[-]',
+      '{,}',
+      '{"a": 1}}',
+      "{'a': 1}",
+      '[1,]',
+      '1.',
+      '[1e]',
+      '-x',
+      '"a\tb"',
+    ];
     for (const text of valid) expect(findJsonError(text), text).toBeNull();
     let positions = 0;
     for (const text of invalid) {
@@ -131,7 +175,15 @@ describe('parseHints', () => {
   });
 
   it('refuses an rgb() colour out of range instead of clamping it', () => {
-    const error = thrown(() => parseHints(doc([{ x: 1, y: 1, colour: 'rgb(300, 0, 0)' }, { x: 1, y: 1, colour: 'rgb(120%, 0%, 0%)' }]), file));
+    const error = thrown(() =>
+      parseHints(
+        doc([
+          { x: 1, y: 1, colour: 'rgb(300, 0, 0)' },
+          { x: 1, y: 1, colour: 'rgb(120%, 0%, 0%)' },
+        ]),
+        file,
+      ),
+    );
     expect(error.message).toBe('entry 1: colour "rgb(300, 0, 0)" has a channel out of range');
     expect(error.hint).toMatch(/from 0 to 255, or from 0% to 100%/);
     expect(thrown(() => parseHints(doc([{ x: 1, y: 1, colour: 'rgb(120%, 0%, 0%)' }]), file)).message).toContain('out of range');
@@ -139,7 +191,11 @@ describe('parseHints', () => {
 
   it('repeats at most a few dozen characters of a value from the file', () => {
     const long = 'x'.repeat(1_000_000);
-    for (const entry of [{ x: 1, y: 1, colour: long }, { x: 1, y: 1, colour: '#fff', [long]: 1 }, { x: 1, y: 1, colour: '#fff', radius: long }]) {
+    for (const entry of [
+      { x: 1, y: 1, colour: long },
+      { x: 1, y: 1, colour: '#fff', [long]: 1 },
+      { x: 1, y: 1, colour: '#fff', radius: long },
+    ]) {
       const error = thrown(() => parseHints(doc([entry]), file));
       expect(error.describe().length).toBeLessThan(400);
       expect(error.message).toContain('(1000002 characters)');
@@ -148,7 +204,15 @@ describe('parseHints', () => {
   });
 
   it('names the entry whose point lies outside the image, and says what to change', () => {
-    const error = thrown(() => parseHints(doc([{ x: 5, y: 5, colour: '#fff' }, { x: 300, y: 10, colour: '#fff' }]), file));
+    const error = thrown(() =>
+      parseHints(
+        doc([
+          { x: 5, y: 5, colour: '#fff' },
+          { x: 300, y: 10, colour: '#fff' },
+        ]),
+        file,
+      ),
+    );
     expect(error.code).toBe('KH_BAD_HINTS');
     expect(error.describe()).toContain(file);
     expect(error.message).toContain('entry 2');
@@ -157,12 +221,33 @@ describe('parseHints', () => {
   });
 
   it('names the stroke vertex outside the image', () => {
-    const error = thrown(() => parseHints(doc([{ points: [[1, 1], [2, -3]], colour: '#fff' }]), file));
+    const error = thrown(() =>
+      parseHints(
+        doc([
+          {
+            points: [
+              [1, 1],
+              [2, -3],
+            ],
+            colour: '#fff',
+          },
+        ]),
+        file,
+      ),
+    );
     expect(error.message).toContain('entry 1: point 2 of the stroke (2, -3)');
   });
 
   it('names the entry with an unknown colour syntax and lists the accepted ones', () => {
-    const error = thrown(() => parseHints(doc([{ x: 1, y: 1, colour: '#123' }, { x: 1, y: 1, colour: 'dark green' }]), file));
+    const error = thrown(() =>
+      parseHints(
+        doc([
+          { x: 1, y: 1, colour: '#123' },
+          { x: 1, y: 1, colour: 'dark green' },
+        ]),
+        file,
+      ),
+    );
     expect(error.message).toBe('entry 2: colour "dark green" is not a colour kinhue reads');
     expect(error.hint).toContain('rgb(r, g, b)');
   });
@@ -181,11 +266,23 @@ describe('drawing entries onto the working grid', () => {
   it('gives each cell the colour of the last entry covering it, with 2,000 entries at the largest radius', () => {
     // Reference: each cell's centre tested against every entry in file order, the last one within its radius winning.
     const next = random(5);
-    const W = 400, H = 266, w = 200, h = 133;
+    const W = 400,
+      H = 266,
+      w = 200,
+      h = 133;
     const colours = ['#c0504a', '#3d8fbf', '#2f5d3a', '#8a4a26'];
-    const entries = Array.from({ length: 2000 }, (_, k) => k % 2
-      ? { x: Math.floor(next() * W), y: Math.floor(next() * H), colour: colours[k % 4], radius: k > 1990 ? 400 : 5 + next() * 40 }
-      : { points: [[next() * (W - 1), next() * (H - 1)], [next() * (W - 1), next() * (H - 1)]], colour: colours[k % 4], radius: 3 + next() * 30 });
+    const entries = Array.from({ length: 2000 }, (_, k) =>
+      k % 2
+        ? { x: Math.floor(next() * W), y: Math.floor(next() * H), colour: colours[k % 4], radius: k > 1990 ? 400 : 5 + next() * 40 }
+        : {
+            points: [
+              [next() * (W - 1), next() * (H - 1)],
+              [next() * (W - 1), next() * (H - 1)],
+            ],
+            colour: colours[k % 4],
+            radius: 3 + next() * 30,
+          },
+    );
     const hints = parseHints(JSON.stringify({ format: 'kinhue-hints', version: 1, image: { width: W, height: H }, entries }), file);
     const L = Float32Array.from({ length: w * h }, () => 30 + next() * 40);
     const drawn = rasteriseHints(hints, L, w, h, W, H);
@@ -193,13 +290,16 @@ describe('drawing entries onto the working grid', () => {
     const within = (e: (typeof hints.entries)[number], u: number, v: number): boolean => {
       const pts = e.points.map(([x, y]) => [(x + 0.5) * s, (y + 0.5) * s] as const);
       const [p, q] = [pts[0]!, pts.at(-1)!];
-      const dx = q[0] - p[0], dy = q[1] - p[1], len2 = dx * dx + dy * dy;
+      const dx = q[0] - p[0],
+        dy = q[1] - p[1],
+        len2 = dx * dx + dy * dy;
       const t = len2 > 0 ? Math.max(0, Math.min(1, ((u - p[0]) * dx + (v - p[1]) * dy) / len2)) : 0;
       return Math.hypot(u - p[0] - t * dx, v - p[1] - t * dy) <= e.radius * s;
     };
     let checked = 0;
     for (let i = 0; i < w * h; i += 97) {
-      const u = (i % w) + 0.5, v = Math.floor(i / w) + 0.5;
+      const u = (i % w) + 0.5,
+        v = Math.floor(i / w) + 0.5;
       const last = [...hints.entries].reverse().find((e) => within(e, u, v));
       expect(drawn.constraints.fixed[i]).toBe(last ? 1 : 0);
       if (!last) continue;
@@ -237,7 +337,9 @@ describe('starter hints', () => {
 
   it('are looked for in the hints folder, then beside the scan', () => {
     expect(hintsCandidates('scans/1952/barn.jpg', 'hints', '1952/barn.jpg')).toEqual([
-      join('hints', '1952', 'barn.hints.json'), join('hints', 'barn.hints.json'), join('scans', '1952', 'barn.hints.json'),
+      join('hints', '1952', 'barn.hints.json'),
+      join('hints', 'barn.hints.json'),
+      join('scans', '1952', 'barn.hints.json'),
     ]);
   });
 

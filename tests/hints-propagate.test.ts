@@ -11,8 +11,17 @@ import { workingLab } from '../src/batch/working-lab.js';
 import { ciede2000, inSrgbGamut, labToSrgb, psnr, srgbToLab } from '../src/colour/index.js';
 import { decodeImage } from '../src/image/index.js';
 import {
-  chromaAt, formatHex, hintLch, levinAffinity, parseCssColour, parseHints, PREDICTION_EDGE_SCALE, prepareGuidance, propagateHints,
-  rasteriseHints, withPredictionEdges,
+  chromaAt,
+  formatHex,
+  hintLch,
+  levinAffinity,
+  parseCssColour,
+  parseHints,
+  PREDICTION_EDGE_SCALE,
+  prepareGuidance,
+  propagateHints,
+  rasteriseHints,
+  withPredictionEdges,
 } from '../src/hints/index.js';
 import type { KinhueModel } from '../src/model/index.js';
 import { random } from './helpers/random.js';
@@ -24,7 +33,9 @@ const hintsJson = (width: number, height: number, entries: unknown[]): string =>
 describe('two regions of equal L* split by a thin dark line, one hint in each', () => {
   // Our own construction of the paper's motivating case (Levin et al. 2004, fig. 1): colour follows
   // luminance, so it fills each region and stops at the line.
-  const w = 160, h = 120, line = [79, 80];
+  const w = 160,
+    h = 120,
+    line = [79, 80];
   const L = new Float32Array(w * h).fill(60);
   for (let y = 0; y < h; y++) for (const x of line) L[y * w + x] = 20;
   const colours = { left: '#4f9a4f', right: '#c0504a' };
@@ -32,15 +43,31 @@ describe('two regions of equal L* split by a thin dark line, one hint in each', 
   it('each region takes its hint colour and neither crosses the line', async () => {
     const dir = await mkdtemp(join(tmpdir(), 'kinhue-hints-'));
     // Hints off-centre, so the centres are reached by propagation, not drawn.
-    await writeFile(join(dir, 'regions.hints.json'), hintsJson(w, h, [
-      { x: 15, y: 100, colour: colours.left, radius: 3 },
-      { points: [[140, 10], [150, 20]], colour: colours.right, radius: 2 },
-    ]));
+    await writeFile(
+      join(dir, 'regions.hints.json'),
+      hintsJson(w, h, [
+        { x: 15, y: 100, colour: colours.left, radius: 3 },
+        {
+          points: [
+            [140, 10],
+            [150, 20],
+          ],
+          colour: colours.right,
+          radius: 2,
+        },
+      ]),
+    );
     const guidance = await prepareGuidance(join(dir, 'regions.png'), w, h);
     // "No hints" is a flat grey prediction at low confidence (what an untrained model gives).
     const work = {
-      width: w, height: h, L, a: new Float32Array(w * h), b: new Float32Array(w * h),
-      confidence: new Float32Array(40 * 30).fill(0.25), confidenceWidth: 40, confidenceHeight: 30,
+      width: w,
+      height: h,
+      L,
+      a: new Float32Array(w * h),
+      b: new Float32Array(w * h),
+      confidence: new Float32Array(40 * 30).fill(0.25),
+      confidenceWidth: 40,
+      confidenceHeight: 30,
     };
     const guided = applyGuides(work, guidance.guides);
     Object.assign(guidance.record.hints!, guided.records.hints);
@@ -51,14 +78,16 @@ describe('two regions of equal L* split by a thin dark line, one hint in each', 
       const c = chromaAt(60, lch.chroma, lch.hue);
       return [c * Math.cos(lch.hue), c * Math.sin(lch.hue)];
     };
-    const [la, lb] = expected(colours.left), [ra, rb] = expected(colours.right);
+    const [la, lb] = expected(colours.left),
+      [ra, rb] = expected(colours.right);
     const dE = (i: number, a: number, b: number): number => ciede2000(60, guided.colour.a[i]!, guided.colour.b[i]!, 60, a, b);
     // CIEDE2000 under 5 at each region's centre (the issue's threshold).
     expect(dE(60 * w + 40, la, lb)).toBeLessThan(5);
     expect(dE(60 * w + 120, ra, rb)).toBeLessThan(5);
     // Not crossing: every pixel of each region, up to the line, stays nearer its own hint than the other's
     // and within CIEDE2000 5 of its own (a leak of the other colour would pull the far side first).
-    let worstLeft = 0, worstRight = 0;
+    let worstLeft = 0,
+      worstRight = 0;
     for (let y = 0; y < h; y++) {
       for (let x = 0; x < w; x++) {
         const i = y * w + x;
@@ -75,14 +104,27 @@ describe('two regions of equal L* split by a thin dark line, one hint in each', 
     expect(worstRight).toBeLessThan(5);
   });
 
-  it('meets the paper\'s condition: each free pixel is the weighted mean of its neighbours and its prediction', () => {
+  it("meets the paper's condition: each free pixel is the weighted mean of its neighbours and its prediction", () => {
     const n = w * h;
-    const fixed = new Uint8Array(n), ha = new Float32Array(n), hb = new Float32Array(n);
-    for (const [i, a, b] of [[100 * w + 15, -39, 32], [15 * w + 145, 44, 26]] as const) { fixed[i] = 1; ha[i] = a; hb[i] = b; }
+    const fixed = new Uint8Array(n),
+      ha = new Float32Array(n),
+      hb = new Float32Array(n);
+    for (const [i, a, b] of [
+      [100 * w + 15, -39, 32],
+      [15 * w + 145, 44, 26],
+    ] as const) {
+      fixed[i] = 1;
+      ha[i] = a;
+      hb[i] = b;
+    }
     const pa = Float32Array.from({ length: n }, (_, i) => 5 * Math.sin(i / 97));
     const pb = new Float32Array(n).fill(3);
     const confidence = Float32Array.from({ length: n }, (_, i) => (i % 7) / 7);
-    const result = propagateHints({ width: w, height: h, L, a: pa, b: pb, confidence }, { fixed, a: ha, b: hb }, { tolerance: 1e-8, maxIterations: 400 });
+    const result = propagateHints(
+      { width: w, height: h, L, a: pa, b: pb, confidence },
+      { fixed, a: ha, b: hb },
+      { tolerance: 1e-8, maxIterations: 400 },
+    );
     const g = levinAffinity(L, w, h);
     const lambda = 1 / n; // DEFAULT_PRIOR_WEIGHT spread over the pixels
     let worst = 0;
@@ -91,12 +133,22 @@ describe('two regions of equal L* split by a thin dark line, one hint in each', 
         const i = y * w + x;
         if (fixed[i]) continue;
         const nb: Array<[number, number]> = [
-          [i + 1, g.east[i]!], [i - 1, g.east[i - 1]!], [i + w, g.south[i]!], [i - w, g.south[i - w]!],
-          [i + w + 1, g.southEast[i]!], [i - w - 1, g.southEast[i - w - 1]!], [i + w - 1, g.southWest[i]!], [i - w + 1, g.southWest[i - w + 1]!],
+          [i + 1, g.east[i]!],
+          [i - 1, g.east[i - 1]!],
+          [i + w, g.south[i]!],
+          [i - w, g.south[i - w]!],
+          [i + w + 1, g.southEast[i]!],
+          [i - w - 1, g.southEast[i - w - 1]!],
+          [i + w - 1, g.southWest[i]!],
+          [i - w + 1, g.southWest[i - w + 1]!],
         ];
         const d = lambda * Math.max(1e-3, confidence[i]!);
-        let sw = d, sa = d * pa[i]!;
-        for (const [j, wt] of nb) { sw += wt; sa += wt * (fixed[j] ? ha[j]! : result.a[j]!); }
+        let sw = d,
+          sa = d * pa[i]!;
+        for (const [j, wt] of nb) {
+          sw += wt;
+          sa += wt * (fixed[j] ? ha[j]! : result.a[j]!);
+        }
         worst = Math.max(worst, Math.abs(result.a[i]! - sa / sw));
       }
     }
@@ -105,9 +157,12 @@ describe('two regions of equal L* split by a thin dark line, one hint in each', 
   });
 
   it('leaves the prediction alone when there are no hints', () => {
-    const a = new Float32Array(w * h).fill(7), b = new Float32Array(w * h).fill(-3);
-    const r = propagateHints({ width: w, height: h, L, a, b, confidence: new Float32Array(w * h).fill(0.5) },
-      { fixed: new Uint8Array(w * h), a: new Float32Array(w * h), b: new Float32Array(w * h) });
+    const a = new Float32Array(w * h).fill(7),
+      b = new Float32Array(w * h).fill(-3);
+    const r = propagateHints(
+      { width: w, height: h, L, a, b, confidence: new Float32Array(w * h).fill(0.5) },
+      { fixed: new Uint8Array(w * h), a: new Float32Array(w * h), b: new Float32Array(w * h) },
+    );
     expect(r.a).toEqual(a);
     expect(r.b).toEqual(b);
   });
@@ -116,17 +171,28 @@ describe('two regions of equal L* split by a thin dark line, one hint in each', 
 describe('boundaries the prediction shows and luminance does not', () => {
   // Our own construction: one even lightness, but the prediction sees two objects (a* +20 on the left, -20 on
   // the right, e.g. a green field against orange trees of the same L*). One hint on the left.
-  const w = 120, h = 60, n = w * h;
+  const w = 120,
+    h = 60,
+    n = w * h;
   const L = new Float32Array(n).fill(55);
-  const pa = Float32Array.from({ length: n }, (_, i) => (i % w < 60 ? 20 : -20)), pb = new Float32Array(n);
-  const fixed = new Uint8Array(n), ha = new Float32Array(n), hb = new Float32Array(n);
-  for (let y = 25; y < 35; y++) for (let x = 10; x < 20; x++) { fixed[y * w + x] = 1; ha[y * w + x] = 5; hb[y * w + x] = 30; }
+  const pa = Float32Array.from({ length: n }, (_, i) => (i % w < 60 ? 20 : -20)),
+    pb = new Float32Array(n);
+  const fixed = new Uint8Array(n),
+    ha = new Float32Array(n),
+    hb = new Float32Array(n);
+  for (let y = 25; y < 35; y++)
+    for (let x = 10; x < 20; x++) {
+      fixed[y * w + x] = 1;
+      ha[y * w + x] = 5;
+      hb[y * w + x] = 30;
+    }
   const input = { width: w, height: h, L, a: pa, b: pb, confidence: new Float32Array(n).fill(0.25) };
 
   it('luminance alone lets the hint flood both; with prediction edges the right keeps the prediction', () => {
     const plain = propagateHints(input, { fixed, a: ha, b: hb });
     const cut = propagateHints(input, { fixed, a: ha, b: hb }, { predictionEdges: PREDICTION_EDGE_SCALE });
-    const right = 30 * w + 100, left = 30 * w + 45;
+    const right = 30 * w + 100,
+      left = 30 * w + 45;
     // Levin et al.'s weights see no edge: the hint's b* = 30 reaches the far right almost whole.
     expect(plain.b[right]).toBeGreaterThan(25);
     // Cut at the prediction's boundary: the right keeps a* -20, b* 0 (within 1), the left takes the hint.
@@ -135,7 +201,7 @@ describe('boundaries the prediction shows and luminance does not', () => {
     expect(Math.abs(cut.b[left]! - 30)).toBeLessThan(2);
   });
 
-  it('a flat prediction leaves Levin et al.\'s weights as they are; a step cuts only the edges across it', () => {
+  it("a flat prediction leaves Levin et al.'s weights as they are; a step cuts only the edges across it", () => {
     const g = levinAffinity(L, w, h);
     const flat = withPredictionEdges(g, new Float32Array(n).fill(7), new Float32Array(n).fill(-3), PREDICTION_EDGE_SCALE);
     expect(flat.east).toEqual(g.east);
@@ -149,43 +215,81 @@ describe('boundaries the prediction shows and luminance does not', () => {
 });
 
 describe('odd shapes', () => {
-  it.each([[1, 50], [50, 1], [3, 3], [700, 2]])('%i x %i: a hint fades along a flat strip, held where placed', (w, h) => {
+  it.each([
+    [1, 50],
+    [50, 1],
+    [3, 3],
+    [700, 2],
+  ])('%i x %i: a hint fades along a flat strip, held where placed', (w, h) => {
     const n = w * h;
     const L = new Float32Array(n).fill(50);
-    const fixed = new Uint8Array(n), ha = new Float32Array(n), hb = new Float32Array(n);
-    fixed[0] = 1; ha[0] = 30; hb[0] = -20;
-    const r = propagateHints({ width: w, height: h, L, a: new Float32Array(n), b: new Float32Array(n), confidence: new Float32Array(n).fill(0.5) },
-      { fixed, a: ha, b: hb });
+    const fixed = new Uint8Array(n),
+      ha = new Float32Array(n),
+      hb = new Float32Array(n);
+    fixed[0] = 1;
+    ha[0] = 30;
+    hb[0] = -20;
+    const r = propagateHints(
+      { width: w, height: h, L, a: new Float32Array(n), b: new Float32Array(n), confidence: new Float32Array(n).fill(0.5) },
+      { fixed, a: ha, b: hb },
+    );
     expect(r.a[0]).toBe(30);
     expect(r.a.every((v) => Number.isFinite(v) && v <= 30 + 1e-3 && v >= -1e-3)).toBe(true);
     expect(r.a[n - 1]!).toBeLessThan(r.a[1]!);
     if (h === 1 || w === 1) {
       // A chain is tridiagonal: solve it directly (Thomas algorithm) as an independent check. Flat L* gives
       // weight 1 per edge; the prior (a* = 0) weighs 1/n x confidence 0.5 per pixel.
-      const d = 0.5 / n, m = n - 1;
-      const diag = Array.from({ length: m }, (_, k) => (k === m - 1 ? 1 : 2) + d), rhs: number[] = Array.from({ length: m }, (_, k) => (k === 0 ? 30 : 0));
-      const c = new Array<number>(m).fill(-1), x = new Array<number>(m).fill(0);
-      for (let k = 1; k < m; k++) { const f = -1 / diag[k - 1]!; diag[k] = diag[k]! - f * c[k - 1]!; rhs[k] = rhs[k]! - f * rhs[k - 1]!; }
+      const d = 0.5 / n,
+        m = n - 1;
+      const diag = Array.from({ length: m }, (_, k) => (k === m - 1 ? 1 : 2) + d),
+        rhs: number[] = Array.from({ length: m }, (_, k) => (k === 0 ? 30 : 0));
+      const c = new Array<number>(m).fill(-1),
+        x = new Array<number>(m).fill(0);
+      for (let k = 1; k < m; k++) {
+        const f = -1 / diag[k - 1]!;
+        diag[k] = diag[k]! - f * c[k - 1]!;
+        rhs[k] = rhs[k]! - f * rhs[k - 1]!;
+      }
       x[m - 1] = rhs[m - 1]! / diag[m - 1]!;
       for (let k = m - 2; k >= 0; k--) x[k] = (rhs[k]! - c[k]! * x[k + 1]!) / diag[k]!;
       for (let k = 0; k < m; k++) expect(Math.abs(r.a[k + 1]! - x[k]!)).toBeLessThan(0.05);
     }
   });
   it('every pixel hinted: the hints come back as they are', () => {
-    const w = 20, h = 10, n = w * h;
-    const fixed = new Uint8Array(n).fill(1), ha = Float32Array.from({ length: n }, (_, i) => i % 13), hb = new Float32Array(n).fill(-4);
-    const r = propagateHints({ width: w, height: h, L: new Float32Array(n).fill(40), a: new Float32Array(n), b: new Float32Array(n), confidence: new Float32Array(n) },
-      { fixed, a: ha, b: hb });
+    const w = 20,
+      h = 10,
+      n = w * h;
+    const fixed = new Uint8Array(n).fill(1),
+      ha = Float32Array.from({ length: n }, (_, i) => i % 13),
+      hb = new Float32Array(n).fill(-4);
+    const r = propagateHints(
+      {
+        width: w,
+        height: h,
+        L: new Float32Array(n).fill(40),
+        a: new Float32Array(n),
+        b: new Float32Array(n),
+        confidence: new Float32Array(n),
+      },
+      { fixed, a: ha, b: hb },
+    );
     expect(r.a).toEqual(ha);
     expect(r.b).toEqual(hb);
   });
 });
 
-describe('hinted colours keep the scan\'s L*', () => {
+describe("hinted colours keep the scan's L*", () => {
   it('a colour sRGB cannot hold at that lightness loses chroma, keeps hue, and is reported', () => {
-    const w = 40, h = 30;
+    const w = 40,
+      h = 30;
     const L = new Float32Array(w * h).fill(95); // a very light area
-    const hints = parseHints(hintsJson(w, h, [{ x: 10, y: 10, colour: '#ff0000', radius: 2 }, { x: 30, y: 20, colour: '#808080' }]), 'light.hints.json');
+    const hints = parseHints(
+      hintsJson(w, h, [
+        { x: 10, y: 10, colour: '#ff0000', radius: 2 },
+        { x: 30, y: 20, colour: '#808080' },
+      ]),
+      'light.hints.json',
+    );
     const drawn = rasteriseHints(hints, L, w, h, w, h);
     expect(drawn.adjustments).toHaveLength(1);
     const adj = drawn.adjustments[0]!;
@@ -219,16 +323,23 @@ describe('hints sampled from colour photographs, against the shipped model', () 
   // (stratified random sampling, common practice; seeded), each with the original's colour there (at the
   // working size) and a radius of 1% of the long side (common practice). PSNR: 8-bit RGB, full size.
   const dir = 'demo-photos/originals';
-  const photos = readdirSync(dir).filter((f) => f.endsWith('.jpg')).sort().filter((_, k) => k === 0 || k === 4);
+  const photos = readdirSync(dir)
+    .filter((f) => f.endsWith('.jpg'))
+    .sort()
+    .filter((_, k) => k === 0 || k === 4);
   let model: KinhueModel;
-  beforeAll(async () => { model = await loadShippedModel(); });
+  beforeAll(async () => {
+    model = await loadShippedModel();
+  });
   afterAll(() => model?.network.dispose());
 
   it('covers two photographs', () => expect(photos).toHaveLength(2));
 
   it.each(photos)('%s: 10 hints raise PSNR by at least 1 dB over the model alone', async (name) => {
     const { pixels } = await decodeImage(join(dir, name));
-    const W = pixels.width, H = pixels.height, n = W * H;
+    const W = pixels.width,
+      H = pixels.height,
+      n = W * H;
     const original = new Uint8Array(n * 3);
     for (let i = 0; i < n; i++) for (let c = 0; c < 3; c++) original[i * 3 + c] = pixels.data[i * pixels.channels + c]!;
     const { L } = srgbToLab(original, 3);
@@ -240,11 +351,14 @@ describe('hints sampled from colour photographs, against the shipped model', () 
     const entries = [];
     for (let gy = 0; gy < 2; gy++) {
       for (let gx = 0; gx < 5; gx++) {
-        const x = Math.floor(((gx + rnd()) * w) / 5), y = Math.floor(((gy + rnd()) * h) / 2);
+        const x = Math.floor(((gx + rnd()) * w) / 5),
+          y = Math.floor(((gy + rnd()) * h) / 2);
         const i = y * w + x;
         entries.push({
-          x: Math.floor(((x + 0.5) * W) / w), y: Math.floor(((y + 0.5) * H) / h),
-          colour: formatHex([small[i * 3]!, small[i * 3 + 1]!, small[i * 3 + 2]!]), radius: Math.round(Math.max(W, H) / 100),
+          x: Math.floor(((x + 0.5) * W) / w),
+          y: Math.floor(((y + 0.5) * H) / h),
+          colour: formatHex([small[i * 3]!, small[i * 3 + 1]!, small[i * 3 + 2]!]),
+          radius: Math.round(Math.max(W, H) / 100),
         });
       }
     }
@@ -256,7 +370,8 @@ describe('hints sampled from colour photographs, against the shipped model', () 
     const hinted = await colouriseLightness(L, W, H, model, { workSize, guides: guidance.guides });
     expect(guidance.record.hints).toMatchObject({ used: true, entries: 10 });
     const rgb = (a: Float32Array, b: Float32Array): Uint8Array => labToSrgb({ L, a, b }, new Uint8Array(n * 3), 3);
-    const before = psnr(rgb(alone.a, alone.b), original), after = psnr(rgb(hinted.a, hinted.b), original);
+    const before = psnr(rgb(alone.a, alone.b), original),
+      after = psnr(rgb(hinted.a, hinted.b), original);
     expect(after - before).toBeGreaterThanOrEqual(1);
   });
 });

@@ -23,10 +23,14 @@ async function scan(path: string, w = 96, h = 64): Promise<void> {
       v[y * w + x] = Math.round(255 * (disc ? 0.3 : 0.55 + 0.3 * (x / w)));
     }
   }
-  await sharp(v, { raw: { width: w, height: h, channels: 1 } }).toColourspace('b-w').png().toFile(path);
+  await sharp(v, { raw: { width: w, height: h, channels: 1 } })
+    .toColourspace('b-w')
+    .png()
+    .toFile(path);
 }
 
-const hints = (entries: unknown[]): string => JSON.stringify({ format: 'kinhue-hints', version: 1, image: { width: 96, height: 64 }, entries });
+const hints = (entries: unknown[]): string =>
+  JSON.stringify({ format: 'kinhue-hints', version: 1, image: { width: 96, height: 64 }, entries });
 
 beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'kinhue-hints-restore-'));
@@ -44,8 +48,11 @@ describe('restore with hints', () => {
     const entries = Array.from({ length: 60 }, (_, k) => ({ x: 4 + (k % 12) * 8, y: 8 + Math.floor(k / 12) * 12, colour: '#ffff00' }));
     await writeFile(join(scans, 'crowded.hints.json'), hints(entries));
     const out = join(root, 'many-out');
-    const cli = spawnSync(process.execPath, [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--jobs', '1', '--work-size', '96'],
-      { encoding: 'utf8', timeout: 120_000 });
+    const cli = spawnSync(
+      process.execPath,
+      [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--jobs', '1', '--work-size', '96'],
+      { encoding: 'utf8', timeout: 120_000 },
+    );
     expect(cli.status).toBe(0);
     const lines = cli.stderr.split('\n');
     expect(lines.filter((line) => /crowded\.png: hint entry \d+ \(/.test(line))).toHaveLength(20);
@@ -62,7 +69,13 @@ describe('restore with hints', () => {
     await scan(join(scans, 'good.png'));
     await scan(join(scans, 'bad.png'));
     await writeFile(join(scans, 'good.hints.json'), hints([{ x: 33, y: 32, colour: '#c0504a', radius: 6, note: 'the red ball' }]));
-    await writeFile(join(scans, 'bad.hints.json'), hints([{ x: 33, y: 32, colour: '#c0504a' }, { x: 120, y: 10, colour: '#fff' }]));
+    await writeFile(
+      join(scans, 'bad.hints.json'),
+      hints([
+        { x: 33, y: 32, colour: '#c0504a' },
+        { x: 120, y: 10, colour: '#fff' },
+      ]),
+    );
     const out = join(root, 'out');
     const summary = await restore({ inputs: [scans], out, model: modelDir, jobs: 1, workSize: 64 });
     expect(summary.failed).toEqual([]);
@@ -94,7 +107,14 @@ describe('restore with hints', () => {
     expect(edited.files.find((f) => f.rel === 'bad.png')?.status).toBe('done');
 
     // --no-hints: no hints file is looked for, and the settings (hence the resume key) say so.
-    const plain = await restore({ inputs: [join(scans, 'good.png')], out: join(root, 'plain'), model: modelDir, jobs: 1, workSize: 64, hints: false });
+    const plain = await restore({
+      inputs: [join(scans, 'good.png')],
+      out: join(root, 'plain'),
+      model: modelDir,
+      jobs: 1,
+      workSize: 64,
+      hints: false,
+    });
     expect(plain.settings.hints).toBe(false);
     const record = JSON.parse(await readFile(join(root, 'plain', 'good.kinhue.json'), 'utf8'));
     expect(record.guidance).toBeUndefined();
@@ -104,7 +124,8 @@ describe('restore with hints', () => {
     const scans = join(root, 'scans2');
     await mkdir(scans);
     await scan(join(scans, 'one.png'));
-    await expect(restore({ inputs: [scans], out: join(root, 'out2'), model: modelDir, jobs: 1, workSize: 64, reference: join(scans, 'one.png') }))
-      .rejects.toMatchObject({ code: 'KH_BAD_HINTS', message: expect.stringContaining('grey') });
+    await expect(
+      restore({ inputs: [scans], out: join(root, 'out2'), model: modelDir, jobs: 1, workSize: 64, reference: join(scans, 'one.png') }),
+    ).rejects.toMatchObject({ code: 'KH_BAD_HINTS', message: expect.stringContaining('grey') });
   });
 });

@@ -46,7 +46,8 @@ function expectInputError(error: KinhueError, code: string, file: string): void 
 describe('bit depth', () => {
   it('a 16-bit greyscale TIFF keeps its 16-bit L* through decode and encode (within one 16-bit step)', async () => {
     // A ramp over the whole 16-bit range: 256 x 64 = 16384 distinct levels, 4 apart.
-    const width = 256, height = 64;
+    const width = 256,
+      height = 64;
     const source = new Uint16Array(width * height);
     for (let i = 0; i < source.length; i++) source[i] = Math.min(65535, i * 4 + (i % 3));
     const file = join(dir, 'ramp16.tif');
@@ -80,7 +81,9 @@ describe('bit depth', () => {
 
   it('an 8-bit JPEG decodes to 8-bit sRGB', async () => {
     const file = join(dir, 'plain.jpg');
-    await sharp({ create: { width: 8, height: 4, channels: 3, background: '#336699' } }).jpeg({ quality: 100 }).toFile(file);
+    await sharp({ create: { width: 8, height: 4, channels: 3, background: '#336699' } })
+      .jpeg({ quality: 100 })
+      .toFile(file);
     const decoded = await decodeImage(file);
     expect(decoded.pixels).toMatchObject({ width: 8, height: 4, channels: 3, depth: 8 });
     // JPEG at quality 100 on a flat field: within 2 levels of #336699 (common practice tolerance).
@@ -98,20 +101,45 @@ describe('bit depth', () => {
  */
 function storedFor(upright: Uint8Array, w: number, h: number, orientation: number): { data: Uint8Array; width: number; height: number } {
   const swap = orientation >= 5;
-  const width = swap ? h : w, height = swap ? w : h;
+  const width = swap ? h : w,
+    height = swap ? w : h;
   const data = new Uint8Array(width * height * 3);
   for (let r = 0; r < height; r++) {
     for (let c = 0; c < width; c++) {
       let ur: number, uc: number;
       switch (orientation) {
-        case 1: ur = r; uc = c; break; // 0th row top, 0th column left
-        case 2: ur = r; uc = w - 1 - c; break; // row top, column right
-        case 3: ur = h - 1 - r; uc = w - 1 - c; break; // row bottom, column right
-        case 4: ur = h - 1 - r; uc = c; break; // row bottom, column left
-        case 5: ur = c; uc = r; break; // row left, column top
-        case 6: ur = c; uc = w - 1 - r; break; // row right, column top
-        case 7: ur = h - 1 - c; uc = w - 1 - r; break; // row right, column bottom
-        default: ur = h - 1 - c; uc = r; break; // 8: row left, column bottom
+        case 1:
+          ur = r;
+          uc = c;
+          break; // 0th row top, 0th column left
+        case 2:
+          ur = r;
+          uc = w - 1 - c;
+          break; // row top, column right
+        case 3:
+          ur = h - 1 - r;
+          uc = w - 1 - c;
+          break; // row bottom, column right
+        case 4:
+          ur = h - 1 - r;
+          uc = c;
+          break; // row bottom, column left
+        case 5:
+          ur = c;
+          uc = r;
+          break; // row left, column top
+        case 6:
+          ur = c;
+          uc = w - 1 - r;
+          break; // row right, column top
+        case 7:
+          ur = h - 1 - c;
+          uc = w - 1 - r;
+          break; // row right, column bottom
+        default:
+          ur = h - 1 - c;
+          uc = r;
+          break; // 8: row left, column bottom
       }
       for (let k = 0; k < 3; k++) data[(r * width + c) * 3 + k] = upright[(ur * w + uc) * 3 + k]!;
     }
@@ -122,7 +150,8 @@ function storedFor(upright: Uint8Array, w: number, h: number, orientation: numbe
 describe('EXIF orientation', () => {
   it('all eight orientations come out upright', async () => {
     // Asymmetric 5 x 3 image in which every pixel is different.
-    const w = 5, h = 3;
+    const w = 5,
+      h = 3;
     const upright = new Uint8Array(w * h * 3);
     for (let i = 0; i < w * h; i++) upright.set([i * 16, Math.floor(i / w) * 100, (i % w) * 50], i * 3);
     for (let orientation = 1; orientation <= 8; orientation++) {
@@ -143,7 +172,8 @@ describe('EXIF orientation', () => {
 
 /** The largest CIEDE2000 (Sharma et al. 2005) difference between two RGB images, 8 or 16 bit. */
 function worstDeltaE(expected: Uint8Array | Uint16Array, actual: Uint8Array | Uint16Array): number {
-  const e = srgbToLab(expected, 3), a = srgbToLab(actual, 3);
+  const e = srgbToLab(expected, 3),
+    a = srgbToLab(actual, 3);
   let worst = 0;
   for (let i = 0; i < e.L.length; i++) {
     worst = Math.max(worst, ciede2000(e.L[i]!, e.a[i]!, e.b[i]!, a.L[i]!, a.a[i]!, a.b[i]!));
@@ -189,7 +219,13 @@ describe('ICC profiles', () => {
     await sharp(srgb, { raw }).withIccProfile('p3').png().toFile(file);
     expect((await sharp(file).metadata()).hasProfile).toBe(true);
     const stored = await sharp(file, { ignoreIcc: true }).raw().toBuffer();
-    expect(worstCodeDifference(stored, Float64Array.from(srgb, (v) => v / 255), 255)).toBeGreaterThan(20); // really P3 values
+    expect(
+      worstCodeDifference(
+        stored,
+        Float64Array.from(srgb, (v) => v / 255),
+        255,
+      ),
+    ).toBeGreaterThan(20); // really P3 values
 
     const decoded = await decodeImage(file);
     expect(decoded.hasIcc).toBe(true);
@@ -199,7 +235,12 @@ describe('ICC profiles', () => {
     // codes where a channel is near 0 (measured 3.9), where a code step is hard to see; in
     // CIEDE2000 the worst is 0.74 (measured), so the bound is 1, about one just-noticeable difference.
     const reference = p3ToSrgbReference(stored, 255);
-    expect(worstDeltaE(to16(reference), Uint16Array.from(decoded.pixels.data, (v) => v * 257))).toBeLessThan(1);
+    expect(
+      worstDeltaE(
+        to16(reference),
+        Uint16Array.from(decoded.pixels.data, (v) => v * 257),
+      ),
+    ).toBeLessThan(1);
     // Back near the original sRGB colours too: P3 stored in 8 bits rounds each channel, which one
     // code step of sRGB can show as up to ~1.7 CIEDE2000 in dark blue-greys (measured 1.68); bound 2.
     expect(worstDeltaE(srgb, decoded.pixels.data)).toBeLessThan(2);
@@ -230,10 +271,16 @@ describe('ICC profiles', () => {
 
 describe('multi-page TIFF', () => {
   it('uses page 1 and says so', async () => {
-    const red = await sharp({ create: { width: 6, height: 4, channels: 3, background: '#ff0000' } }).png().toBuffer();
-    const blue = await sharp({ create: { width: 6, height: 4, channels: 3, background: '#0000ff' } }).png().toBuffer();
+    const red = await sharp({ create: { width: 6, height: 4, channels: 3, background: '#ff0000' } })
+      .png()
+      .toBuffer();
+    const blue = await sharp({ create: { width: 6, height: 4, channels: 3, background: '#0000ff' } })
+      .png()
+      .toBuffer();
     const file = join(dir, 'two-pages.tif');
-    await sharp([red, blue], { join: { animated: true } }).tiff({ compression: 'deflate' }).toFile(file);
+    await sharp([red, blue], { join: { animated: true } })
+      .tiff({ compression: 'deflate' })
+      .toFile(file);
     expect((await sharp(file).metadata()).pages).toBe(2);
     const decoded = await decodeImage(file);
     expect(decoded.pageCount).toBe(2);
@@ -274,7 +321,9 @@ describe('input errors', () => {
   });
 
   it('a truncated JPEG gives KH_CORRUPT_IMAGE', async () => {
-    const full = await sharp({ create: { width: 64, height: 64, channels: 3, background: '#808080', noise: { type: 'gaussian', mean: 128, sigma: 40 } } })
+    const full = await sharp({
+      create: { width: 64, height: 64, channels: 3, background: '#808080', noise: { type: 'gaussian', mean: 128, sigma: 40 } },
+    })
       .jpeg()
       .toBuffer();
     const file = join(dir, 'truncated.jpg');
@@ -321,7 +370,9 @@ describe('input errors', () => {
     expect(resolveMaxPixels(5000, { KINHUE_MAX_PIXELS: '600e6' })).toBe(5000);
 
     const file = join(dir, 'big.png');
-    await sharp({ create: { width: 100, height: 80, channels: 3, background: '#102030' } }).png().toFile(file);
+    await sharp({ create: { width: 100, height: 80, channels: 3, background: '#102030' } })
+      .png()
+      .toFile(file);
     expectInputError(await failure(decodeImage(file, { maxPixels: 7999 })), ErrorCodes.TOO_LARGE, file);
     expect((await decodeImage(file, { maxPixels: 8000 })).pixels.width).toBe(100);
     const saved = process.env.KINHUE_MAX_PIXELS;
@@ -338,8 +389,14 @@ describe('input errors', () => {
 
   it('decoding leaves the input file unchanged', async () => {
     const file = join(dir, 'orient-6.png');
-    const before = createHash('sha256').update(await readFile(file)).digest('hex');
+    const before = createHash('sha256')
+      .update(await readFile(file))
+      .digest('hex');
     await decodeImage(file);
-    expect(createHash('sha256').update(await readFile(file)).digest('hex')).toBe(before);
+    expect(
+      createHash('sha256')
+        .update(await readFile(file))
+        .digest('hex'),
+    ).toBe(before);
   });
 });

@@ -10,8 +10,17 @@ import { ErrorCodes, KinhueError } from '../src/errors.js';
 import { pngWithIcc } from '../src/image/containers.js';
 import { writeAtomic, writeFileAtomic } from '../src/files/index.js';
 import {
-  decodeBuffer, decodeImage, encodeBuffer, encodeImage, exifOrientation, extensionFor, formatForPath,
-  provenanceXmp, writeGreyMap, type OutputFormat, type Pixels,
+  decodeBuffer,
+  decodeImage,
+  encodeBuffer,
+  encodeImage,
+  exifOrientation,
+  extensionFor,
+  formatForPath,
+  provenanceXmp,
+  writeGreyMap,
+  type OutputFormat,
+  type Pixels,
 } from '../src/image/index.js';
 import { VERSION } from '../src/version.js';
 import { greyGammaProfile } from './image-icc-profile.js';
@@ -35,7 +44,8 @@ function gradient(width: number, height: number): Pixels {
 }
 
 function worstDeltaE(expected: Uint8Array | Uint16Array, actual: Uint8Array | Uint16Array): number {
-  const e = srgbToLab(expected, 3), a = srgbToLab(actual, 3);
+  const e = srgbToLab(expected, 3),
+    a = srgbToLab(actual, 3);
   let worst = 0;
   for (let i = 0; i < e.L.length; i++) worst = Math.max(worst, ciede2000(e.L[i]!, e.a[i]!, e.b[i]!, a.L[i]!, a.a[i]!, a.b[i]!));
   return worst;
@@ -114,7 +124,10 @@ describe('ICC profiles', () => {
     // Source: libvips converts a gradient to Display P3 and embeds the profile.
     const original = gradient(48, 32);
     const source = join(dir, 'p3-source.png');
-    await sharp(original.data, { raw: { width: 48, height: 32, channels: 3 } }).withIccProfile('p3').png().toFile(source);
+    await sharp(original.data, { raw: { width: 48, height: 32, channels: 3 } })
+      .withIccProfile('p3')
+      .png()
+      .toFile(source);
     const decoded = await decodeImage(source);
     const sourceIcc = (await sharp(source).metadata()).icc!;
     for (const format of FORMATS) {
@@ -136,7 +149,11 @@ describe('ICC profiles', () => {
   it('16-bit colour keeps 16 bits and its Display P3 profile', async () => {
     const original = gradient(48, 32);
     const source = join(dir, 'p3-16-source.png');
-    await sharp(original.data, { raw: { width: 48, height: 32, channels: 3 } }).toColourspace('rgb16').withIccProfile('p3').png().toFile(source);
+    await sharp(original.data, { raw: { width: 48, height: 32, channels: 3 } })
+      .toColourspace('rgb16')
+      .withIccProfile('p3')
+      .png()
+      .toFile(source);
     const decoded = await decodeImage(source);
     expect(decoded.pixels.depth).toBe(16);
     const out = join(dir, 'p3-16-out.tif');
@@ -192,7 +209,10 @@ describe('ICC profiles', () => {
       expect(meta.channels).toBe(1);
       expect(meta.depth).toBe(depth === 8 ? 'uchar' : 'ushort');
       expect(iccSpace(meta.icc)).toBe('GRAY');
-      const stored = await sharp(data, { ignoreIcc: true }).toColourspace(depth === 8 ? 'b-w' : 'grey16').raw({ depth: depth === 8 ? 'uchar' : 'ushort' }).toBuffer();
+      const stored = await sharp(data, { ignoreIcc: true })
+        .toColourspace(depth === 8 ? 'b-w' : 'grey16')
+        .raw({ depth: depth === 8 ? 'uchar' : 'ushort' })
+        .toBuffer();
       const back = depth === 8 ? stored : new Uint16Array(stored.buffer, stored.byteOffset, stored.length / 2);
       let worstBack = 0;
       for (let i = 0; i < 256; i++) worstBack = Math.max(worstBack, Math.abs(back[i]! - values[i]!) / max);
@@ -222,7 +242,9 @@ describe('XMP provenance', () => {
       expect(read, format).toContain('xmlns:dc="http://purl.org/dc/elements/1.1/"');
       expect(read, format).toMatch(/<dc:description>\s*<rdf:Alt>\s*<rdf:li xml:lang="x-default">Colourised interpretation[^<]*estimate/);
       expect(read, format).toContain(`<xmp:CreatorTool>kinhue ${VERSION}</xmp:CreatorTool>`);
-      expect(read, format).toMatch(/<xmpMM:DerivedFrom rdf:parseType="Resource">\s*<stRef:filePath>scans\/1952 wedding &amp; party\.tif<\/stRef:filePath>/);
+      expect(read, format).toMatch(
+        /<xmpMM:DerivedFrom rdf:parseType="Resource">\s*<stRef:filePath>scans\/1952 wedding &amp; party\.tif<\/stRef:filePath>/,
+      );
       expect(read, format).toContain('<xmp:CreateDate>2026-01-02T03:04:05.000Z</xmp:CreateDate>');
       expect(read, format).toContain(`<kinhue:sourceSha256>${'ab'.repeat(32)}</kinhue:sourceSha256>`);
       expect(read, format).toContain('<kinhue:model>demo-model</kinhue:model>');
@@ -294,7 +316,7 @@ describe('atomic writes', () => {
 });
 
 describe('pixel limit', () => {
-  it('encodes a scan above libvips\' own 268-megapixel default and within kinhue\'s 300', async () => {
+  it("encodes a scan above libvips' own 268-megapixel default and within kinhue's 300", async () => {
     // libvips' default limit is 0x3FFF squared = 268,402,689 pixels (sharp's documented
     // limitInputPixels default); 16400 x 16400 = 268,960,000 is just above it.
     const side = 16_400;

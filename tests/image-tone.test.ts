@@ -12,7 +12,8 @@ import { random } from './helpers/random.js';
 
 const DEMO = join(dirname(fileURLToPath(import.meta.url)), '..', 'demo-photos');
 
-const W = 128, H = 96;
+const W = 128,
+  H = 96;
 
 /** An 8-bit sRGB image whose L* ramps 5-95 across and whose a*, b* come from `tint(L)`. */
 function tonedImage(tint: (L: number, x: number, y: number) => [number, number]): { lab: LabPlanes; meanA: number; meanB: number } {
@@ -30,7 +31,8 @@ function tonedImage(tint: (L: number, x: number, y: number) => [number, number])
   }
   const rgb = labToSrgb(planned, new Uint8Array(n * 3), 3);
   const lab = srgbToLab(rgb, 3); // measured after 8-bit rounding, as a decoded scan would be
-  let meanA = 0, meanB = 0;
+  let meanA = 0,
+    meanB = 0;
   for (let i = 0; i < n; i++) {
     meanA += lab.a[i]!;
     meanB += lab.b[i]!;
@@ -193,16 +195,26 @@ async function albumTone(folder: string, name: string): Promise<ReturnType<typeo
   const file = join(DEMO, folder, name);
   const { pixels } = await decodeImage(file);
   const full = classifyTone(srgbToLab(pixels.data, pixels.channels));
-  const { data, info } = await sharp(file).resize(512, 512, { fit: 'inside' }).removeAlpha().toColourspace('srgb')
-    .raw({ depth: 'uchar' }).toBuffer({ resolveWithObject: true });
+  const { data, info } = await sharp(file)
+    .resize(512, 512, { fit: 'inside' })
+    .removeAlpha()
+    .toColourspace('srgb')
+    .raw({ depth: 'uchar' })
+    .toBuffer({ resolveWithObject: true });
   const small = classifyTone(srgbToLab(new Uint8Array(data.buffer, data.byteOffset, data.length), info.channels as 3));
   return [full, small];
 }
 
 describe('classifyTone on the demo album (demo-photos/SOURCES.md)', () => {
   const originals = [
-    'wrenfold-01-hill-pasture.jpg', 'wrenfold-02-spaniels.jpg', 'wrenfold-03-new-calf.jpg', 'wrenfold-04-hill-pony.jpg',
-    'wrenfold-05-billy-goat.jpg', 'wrenfold-06-gosling.jpg', 'wrenfold-07-orchard-clocks.jpg', 'wrenfold-08-ferry-couple.jpg',
+    'wrenfold-01-hill-pasture.jpg',
+    'wrenfold-02-spaniels.jpg',
+    'wrenfold-03-new-calf.jpg',
+    'wrenfold-04-hill-pony.jpg',
+    'wrenfold-05-billy-goat.jpg',
+    'wrenfold-06-gosling.jpg',
+    'wrenfold-07-orchard-clocks.jpg',
+    'wrenfold-08-ferry-couple.jpg',
     'wrenfold-09-cousin-ada.jpg',
   ];
   // 03 (a brown calf on beige ground) and 07 (dandelion clocks in evening light) are warm, one-hue colour

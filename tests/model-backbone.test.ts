@@ -58,7 +58,7 @@ describe('the backbone', () => {
     expect(Array.from(backboneFeatures(backbone, L, 96, 64, true).local8)).not.toEqual(Array.from(f.local8));
   }, 60_000);
 
-  it('lets content far away change a pixel\'s colour through the scene vector, which L* alone cannot', () => {
+  it("lets content far away change a pixel's colour through the scene vector, which L* alone cannot", () => {
     const W = 512;
     const H = 64;
     const next = random(9);
@@ -66,7 +66,8 @@ describe('the backbone', () => {
     const far = Float32Array.from(near);
     // Change only the right quarter of the picture.
     for (let y = 0; y < H; y++) for (let x = (3 * W) / 4; x < W; x++) far[y * W + x] = 100 * next();
-    const leftCorner = (p: { a: Float32Array; width: number }) => Array.from({ length: 8 }, (_, y) => Array.from(p.a.subarray(y * p.width, y * p.width + 8))).flat();
+    const leftCorner = (p: { a: Float32Array; width: number }) =>
+      Array.from({ length: 8 }, (_, y) => Array.from(p.a.subarray(y * p.width, y * p.width + 8))).flat();
 
     const plain = createNetwork({ width: 4, seed: 2 });
     const opts = { decoding: 'annealed-mean' as const, temperature: 1 };

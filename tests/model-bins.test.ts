@@ -46,7 +46,14 @@ describe('a*b* bins', () => {
       }
     }
     // The gamut's corners: the primaries and secondaries, the most saturated colours.
-    for (const [r, g, b] of [[1, 0, 0], [0, 1, 0], [0, 0, 1], [1, 1, 0], [0, 1, 1], [1, 0, 1]]) {
+    for (const [r, g, b] of [
+      [1, 0, 0],
+      [0, 1, 0],
+      [0, 0, 1],
+      [1, 1, 0],
+      [0, 1, 1],
+      [1, 0, 1],
+    ]) {
       const lab = toLab({ mode: 'rgb', r, g, b });
       expect(lookup.cellIndex(lab.a, lab.b)).toBeGreaterThanOrEqual(0);
     }

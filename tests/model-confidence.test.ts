@@ -27,7 +27,12 @@ function rng(seed: number): () => number {
 // of four colours at random per region, so their colour cannot be predicted.
 const STRIPES: [number, number] = [45, 45];
 const FLAT: [number, number] = [-35, 30];
-const RANDOM: [number, number][] = [[50, -45], [-30, -35], [15, 60], [-45, 45]];
+const RANDOM: [number, number][] = [
+  [50, -45],
+  [-30, -35],
+  [15, 60],
+  [-45, 45],
+];
 
 interface Scene {
   L: Float32Array;

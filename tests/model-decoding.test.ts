@@ -64,7 +64,8 @@ describe('least expected CIEDE2000 decoding', () => {
     for (let p = 0; p < n; p++) {
       const raw = Array.from({ length: Q }, (_, q) => Math.exp(logits[p * Q + q]) / weights[q]);
       const total = raw.reduce((s, v) => s + v, 0);
-      const risk = (a: number, b: number): number => raw.reduce((s, v, q) => s + (v / total) * ciede2000(50, bins.a[q], bins.b[q], 50, a, b), 0);
+      const risk = (a: number, b: number): number =>
+        raw.reduce((s, v, q) => s + (v / total) * ciede2000(50, bins.a[q], bins.b[q], 50, a, b), 0);
       let least = Infinity;
       for (let c = 0; c < t.count; c++) least = Math.min(least, risk(t.a[c], t.b[c]));
       // float32 sums may pick a candidate that ties within rounding (tolerance: common practice).
@@ -82,7 +83,14 @@ describe('least expected CIEDE2000 decoding', () => {
   it('mutes the colour when two opposite hues are equally likely', () => {
     const orange = nearestBin(30, 40);
     const blue = nearestBin(-20, -40);
-    const got = decode(logitsOf(new Map([[orange, 0.5], [blue, 0.5]])));
+    const got = decode(
+      logitsOf(
+        new Map([
+          [orange, 0.5],
+          [blue, 0.5],
+        ]),
+      ),
+    );
     expect(Math.hypot(got[0], got[1])).toBeLessThan(Math.hypot(bins.a[orange], bins.b[orange]) / 2);
   });
 
@@ -92,7 +100,13 @@ describe('least expected CIEDE2000 decoding', () => {
     const weights = new Float32Array(Q).fill(1);
     weights[blue] = 10; // blue was rare in training, so its pixels counted ten times
     // True odds 70:30 for orange; the network, trained with the weights, learnt them as 70:300.
-    const logits = logitsOf(new Map([[orange, 0.7], [blue, 0.3]]), weights);
+    const logits = logitsOf(
+      new Map([
+        [orange, 0.7],
+        [blue, 0.3],
+      ]),
+      weights,
+    );
     const towardsOrange = (ab: Float32Array): number => ab[0] * bins.a[orange] + ab[1] * bins.b[orange];
     expect(towardsOrange(decode(logits))).toBeLessThan(0);
     expect(towardsOrange(decode(logits, weights))).toBeGreaterThan(0);
@@ -115,9 +129,16 @@ describe('choosing a decoding', () => {
 
   it('reads model folders written before the choice existed as annealed mean', () => {
     const meta = {
-      format: 'kinhue-model', formatVersion: 1, name: 'older', bins: { grid: bins.grid, count: Q, a: Array.from(bins.a), b: Array.from(bins.b) },
-      temperature: 0.38, workingSize: 512, network: { input: 'L/100-0.5', multiple: 16, outputStride: 4 },
-      classWeights: [], training: null, weightsSha256: '0'.repeat(64),
+      format: 'kinhue-model',
+      formatVersion: 1,
+      name: 'older',
+      bins: { grid: bins.grid, count: Q, a: Array.from(bins.a), b: Array.from(bins.b) },
+      temperature: 0.38,
+      workingSize: 512,
+      network: { input: 'L/100-0.5', multiple: 16, outputStride: 4 },
+      classWeights: [],
+      training: null,
+      weightsSha256: '0'.repeat(64),
     };
     expect(parseMetadata(meta, 'older').decoding).toBe('annealed-mean');
     expect(parseMetadata({ ...meta, decoding: 'least-ciede2000' }, 'newer').decoding).toBe('least-ciede2000');

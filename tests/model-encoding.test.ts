@@ -40,7 +40,7 @@ describe('soft encoding', () => {
     }
   });
 
-  it('builds dense batch targets at quarter resolution with the nearest bin\'s weight', () => {
+  it("builds dense batch targets at quarter resolution with the nearest bin's weight", () => {
     const h = 8;
     const w = 12;
     const ab = new Float32Array(2 * h * w);
@@ -85,7 +85,11 @@ describe('class rebalancing', () => {
     const w = rebalanceWeights(counts, 0.5, 5);
     const total = counts.reduce((s, c) => s + c, 0);
     const smooth = Array.from(bins.a, (_, i) =>
-      Array.from(bins.a, (_, j) => (counts[j] / total) * Math.exp(-((bins.a[i] - bins.a[j]) ** 2 + (bins.b[i] - bins.b[j]) ** 2) / 50)).reduce((s, v) => s + v, 0));
+      Array.from(
+        bins.a,
+        (_, j) => (counts[j] / total) * Math.exp(-((bins.a[i] - bins.a[j]) ** 2 + (bins.b[i] - bins.b[j]) ** 2) / 50),
+      ).reduce((s, v) => s + v, 0),
+    );
     const z = smooth.reduce((s, v) => s + v, 0);
     const p = smooth.map((v) => v / z);
     const raw = p.map((v) => 1 / (0.5 * v + 0.5 / bins.count));

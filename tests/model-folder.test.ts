@@ -32,7 +32,10 @@ afterAll(async () => {
 const sha256 = (data: Buffer): string => createHash('sha256').update(data).digest('hex');
 
 async function refusal(promise: Promise<unknown>): Promise<ModelError> {
-  const error = await promise.then(() => undefined, (e: unknown) => e);
+  const error = await promise.then(
+    () => undefined,
+    (e: unknown) => e,
+  );
   expect(error).toBeInstanceOf(ModelError);
   return error as ModelError;
 }
@@ -75,7 +78,10 @@ describe('the layout file is checked', () => {
       expect(error.hint).toMatch(/train or tune it again/);
     }
     const out = join(root, 'edited-out');
-    const cli = spawnSync(process.execPath, [BIN, 'restore', SCAN, '--out', out, '--model', dir, '--jobs', '1'], { encoding: 'utf8', timeout: 120_000 });
+    const cli = spawnSync(process.execPath, [BIN, 'restore', SCAN, '--out', out, '--model', dir, '--jobs', '1'], {
+      encoding: 'utf8',
+      timeout: 120_000,
+    });
     expect(cli.status).toBe(1);
     expect(cli.stderr).toContain(`KH_BAD_MODEL`);
     expect(cli.stderr).toContain(join(dir, 'model.json'));
@@ -111,7 +117,9 @@ describe('the model folder is written as one unit', () => {
     for (let round = 0; round < 10; round++) {
       const child = spawn(process.execPath, [SAVE_LOOP, dir], { stdio: ['ignore', 'pipe', 'inherit'] });
       await new Promise<void>((ready, fail) => {
-        child.stdout.on('data', (chunk: Buffer) => { if (chunk.toString().includes('ready')) ready(); });
+        child.stdout.on('data', (chunk: Buffer) => {
+          if (chunk.toString().includes('ready')) ready();
+        });
         child.on('exit', (code) => fail(new Error(`the save loop ended by itself (${code})`)));
       });
       // Let it save a few times, then kill it somewhere in a save.
@@ -159,7 +167,12 @@ describe('the model folder is written as one unit', () => {
     await saveUntrainedModel(dir);
     const dead = deadPid();
     const live = process.ppid;
-    const leftovers = [`.kinhue-save-${dead}-00000000`, `.kinhue-swap-${dead}-11111111-weights.bin`, `weights.bin.${dead}.mabc12.tmp`, `training-checkpoint.bin.${dead}.deadbeef.tmp`];
+    const leftovers = [
+      `.kinhue-save-${dead}-00000000`,
+      `.kinhue-swap-${dead}-11111111-weights.bin`,
+      `weights.bin.${dead}.mabc12.tmp`,
+      `training-checkpoint.bin.${dead}.deadbeef.tmp`,
+    ];
     await mkdir(join(dir, leftovers[0]!));
     await writeFile(join(dir, leftovers[0]!, 'weights.bin'), 'half');
     for (const name of leftovers.slice(1)) await writeFile(join(dir, name), 'half');

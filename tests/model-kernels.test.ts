@@ -43,15 +43,23 @@ const cases: Case[] = [
 
 function gradients(c: Case, seed: number): { dx: Float32Array; dw: Float32Array } {
   const next = rng(seed);
-  const xs = randomArray(c.x.reduce((p, q) => p * q, 1), next);
+  const xs = randomArray(
+    c.x.reduce((p, q) => p * q, 1),
+    next,
+  );
   const wShape: [number, number, number, number] = [c.k[0], c.k[1], c.x[3], c.co];
-  const ws = randomArray(wShape.reduce((p, q) => p * q, 1), next);
+  const ws = randomArray(
+    wShape.reduce((p, q) => p * q, 1),
+    next,
+  );
   return tf.tidy(() => {
     const x = tf.tensor4d(xs, c.x);
     const w = tf.tensor4d(ws, wShape);
     const out = tf.conv2d(x, w, c.stride, c.pad);
     const r = tf.tensor(randomArray(out.size, next), out.shape);
-    const [dx, dw] = tf.grads((a: tf.Tensor, b: tf.Tensor) => tf.sum(tf.mul(tf.conv2d(a as tf.Tensor4D, b as tf.Tensor4D, c.stride, c.pad), r)))([x, w]);
+    const [dx, dw] = tf.grads((a: tf.Tensor, b: tf.Tensor) =>
+      tf.sum(tf.mul(tf.conv2d(a as tf.Tensor4D, b as tf.Tensor4D, c.stride, c.pad), r)),
+    )([x, w]);
     return { dx: dx.dataSync() as Float32Array, dw: dw.dataSync() as Float32Array };
   });
 }

@@ -127,16 +127,24 @@ describe('the export follows the network definition', () => {
 
   it('a network built otherwise (5 x 5 and strided valid convolutions, a linear layer, upsampling by 3) gives the same logits', async () => {
     const input = tf.input({ shape: [null, null, 1], name: 'lightness' });
-    let x = tf.layers.conv2d({ filters: 6, kernelSize: 5, padding: 'same', activation: 'relu', name: 'wide' }).apply(input) as tf.SymbolicTensor;
-    const side = tf.layers.conv2d({ filters: 3, kernelSize: 3, strides: 2, padding: 'valid', name: 'strided', useBias: false }).apply(x) as tf.SymbolicTensor;
+    let x = tf.layers
+      .conv2d({ filters: 6, kernelSize: 5, padding: 'same', activation: 'relu', name: 'wide' })
+      .apply(input) as tf.SymbolicTensor;
+    const side = tf.layers
+      .conv2d({ filters: 3, kernelSize: 3, strides: 2, padding: 'valid', name: 'strided', useBias: false })
+      .apply(x) as tf.SymbolicTensor;
     x = tf.layers.upSampling2d({ size: [3, 3], name: 'up3' }).apply(side) as tf.SymbolicTensor;
-    x = tf.layers.concatenate({ name: 'join' }).apply([x, tf.layers.conv2d({ filters: 2, kernelSize: 1, name: 'one' }).apply(x) as tf.SymbolicTensor]) as tf.SymbolicTensor;
+    x = tf.layers
+      .concatenate({ name: 'join' })
+      .apply([x, tf.layers.conv2d({ filters: 2, kernelSize: 1, name: 'one' }).apply(x) as tf.SymbolicTensor]) as tf.SymbolicTensor;
     const network = tf.model({ inputs: input, outputs: x });
     const data = Float32Array.from({ length: 33 * 21 }, (_, i) => Math.sin(i / 7));
-    const { native, tfjs } = await both(() => tf.tidy(() => {
-      const out = runNetwork(network, tf.tensor4d(data, [1, 21, 33, 1]));
-      return { shape: out.shape, data: out.dataSync() as Float32Array };
-    }));
+    const { native, tfjs } = await both(() =>
+      tf.tidy(() => {
+        const out = runNetwork(network, tf.tensor4d(data, [1, 21, 33, 1]));
+        return { shape: out.shape, data: out.dataSync() as Float32Array };
+      }),
+    );
     expect(native.shape).toEqual(tfjs.shape);
     expect(maxDifference(native.data, tfjs.data)).toBeLessThan(1e-4);
     network.dispose();
@@ -168,7 +176,12 @@ describe('the export follows the network definition', () => {
 
   it('the graph export reads the graph JSON: an operation it does not know is named', () => {
     const graph = (op: string): GraphModelJson => ({
-      modelTopology: { node: [{ name: 'x', op: 'Placeholder' }, { name: 'y', op, input: ['x'] }] },
+      modelTopology: {
+        node: [
+          { name: 'x', op: 'Placeholder' },
+          { name: 'y', op, input: ['x'] },
+        ],
+      },
       weightsManifest: [{ weights: [] }],
     });
     expect(graphModelToOnnx(graph('Sigmoid'), new Uint8Array(0), ['y']).length).toBeGreaterThan(0);

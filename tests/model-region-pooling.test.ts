@@ -42,7 +42,7 @@ function argmax(p: Float32Array, i: number): number {
 }
 
 describe('region pooling', () => {
-  it('gives every pixel of a region of equal L* the same choice: the region\'s majority', () => {
+  it("gives every pixel of a region of equal L* the same choice: the region's majority", () => {
     const before = hesitant(7);
     const pooled = poolRegions(before, Q, twoRegions(), W, H, { spatial: 20, range: 10 });
     let flipsBefore = 0;
@@ -55,7 +55,7 @@ describe('region pooling', () => {
     expect(flipsBefore).toBeGreaterThan(0.2 * W * H);
   });
 
-  it('does not carry a region\'s colour across an L* edge', () => {
+  it("does not carry a region's colour across an L* edge", () => {
     // Left all bin 0, right all bin 2, no hesitation: pooling must keep them apart at the edge.
     const p = new Float32Array(W * H * Q);
     for (let i = 0; i < W * H; i++) p[i * Q + (i % W < W / 2 ? 0 : 2)] = 1;
@@ -66,7 +66,7 @@ describe('region pooling', () => {
     }
     // Without the edge in the guide, the same pooling does carry colour across (the test can fail).
     const flat = poolRegions(p, Q, new Float32Array(W * H).fill(50), W, H, { spatial: 20, range: 10 });
-    expect(flat[(H / 2 * W + W / 2 - 1) * Q + 2]).toBeGreaterThan(0.2);
+    expect(flat[((H / 2) * W + W / 2 - 1) * Q + 2]).toBeGreaterThan(0.2);
   });
 
   it('keeps each pixel a distribution (sums unchanged) and leaves a uniform field as it is', () => {

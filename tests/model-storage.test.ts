@@ -54,7 +54,11 @@ describe('model folders', () => {
     const classWeights = Float32Array.from({ length: bins.count }, (_, q) => 1 + q / bins.count);
     const meta = await saveModel(net, dir, { name: 'fresh-test', classWeights, training: { photos: 0, note: 'untrained' } });
     expect(readdirSync(dir).sort()).toEqual(['kinhue-model.json', 'model.json', 'weights.bin']);
-    expect(meta.weightsSha256).toBe(createHash('sha256').update(readFileSync(join(dir, 'weights.bin'))).digest('hex'));
+    expect(meta.weightsSha256).toBe(
+      createHash('sha256')
+        .update(readFileSync(join(dir, 'weights.bin')))
+        .digest('hex'),
+    );
     expect(meta.kinhueVersion).toBe(VERSION);
     expect(meta.bins.count).toBe(bins.count);
     expect(meta.temperature).toBe(0.38);
@@ -116,7 +120,12 @@ describe('model folders', () => {
 
 describe('predict', () => {
   it('returns a quarter of any size, padded and cropped back', () => {
-    for (const [w, h] of [[64, 48], [37, 23], [1, 1], [17, 130]]) {
+    for (const [w, h] of [
+      [64, 48],
+      [37, 23],
+      [1, 1],
+      [17, 130],
+    ]) {
       const p = predict(net, plane(w, h), w, h);
       expect([p.width, p.height]).toEqual([Math.ceil(w / 4), Math.ceil(h / 4)]);
       expect(p.a.length).toBe(p.width * p.height);

@@ -20,7 +20,9 @@ let root: string;
 let photos: string;
 
 async function sha(path: string): Promise<string> {
-  return createHash('sha256').update(await readFile(path)).digest('hex');
+  return createHash('sha256')
+    .update(await readFile(path))
+    .digest('hex');
 }
 
 beforeAll(async () => {
@@ -28,12 +30,26 @@ beforeAll(async () => {
   photos = join(root, 'photos');
   await mkdir(photos);
   // Six small colour photos (a training run needs six): two-colour halves, each pair of colours its own.
-  const pairs = [['#c03020', '#2060c0'], ['#30a040', '#e0c020'], ['#8040a0', '#40c0c0'], ['#d07030', '#3050a0'], ['#a03060', '#60b030'], ['#2080a0', '#c09040']];
+  const pairs = [
+    ['#c03020', '#2060c0'],
+    ['#30a040', '#e0c020'],
+    ['#8040a0', '#40c0c0'],
+    ['#d07030', '#3050a0'],
+    ['#a03060', '#60b030'],
+    ['#2080a0', '#c09040'],
+  ];
   for (const [i, [left, right]] of pairs.entries()) {
-    const half = (colour: string) => sharp({ create: { width: 24, height: 48, channels: 3, background: colour } }).png().toBuffer();
+    const half = (colour: string) =>
+      sharp({ create: { width: 24, height: 48, channels: 3, background: colour } })
+        .png()
+        .toBuffer();
     await sharp({ create: { width: 48, height: 48, channels: 3, background: '#000000' } })
-      .composite([{ input: await half(left!), left: 0, top: 0 }, { input: await half(right!), left: 24, top: 0 }])
-      .png().toFile(join(photos, `c${i}.png`));
+      .composite([
+        { input: await half(left!), left: 0, top: 0 },
+        { input: await half(right!), left: 24, top: 0 },
+      ])
+      .png()
+      .toFile(join(photos, `c${i}.png`));
   }
 });
 
@@ -91,7 +107,9 @@ describe('commands that write beside their inputs', () => {
     const linked = await fit({ photos: [photos], out: join(root, 'photos-link'), mode: 'train', ...tiny }).catch((e: unknown) => e);
     expect(linked).toBeInstanceOf(OutputOnInputError);
     expect((linked as OutputOnInputError).message).toMatch(/is, or holds, the input/);
-    await expect(fit({ photos: [join(photos, 'c0.png'), join(photos, 'c1.png')], out: root, mode: 'train', ...tiny })).rejects.toBeInstanceOf(OutputOnInputError);
+    await expect(
+      fit({ photos: [join(photos, 'c0.png'), join(photos, 'c1.png')], out: root, mode: 'train', ...tiny }),
+    ).rejects.toBeInstanceOf(OutputOnInputError);
 
     const base = join(root, 'base-model');
     await saveUntrainedModel(base);
@@ -113,7 +131,9 @@ describe('commands that write beside their inputs', () => {
 describe('KINHUE_MAX_PIXELS', () => {
   it('is refused once, at start, with a usage error when it is not a whole number of pixels', () => {
     const r = spawnSync(process.execPath, [BIN, 'restore', photos, '--out', join(root, 'never'), '--dry-run'], {
-      encoding: 'utf8', timeout: 120_000, env: { ...process.env, KINHUE_MAX_PIXELS: '1e99' },
+      encoding: 'utf8',
+      timeout: 120_000,
+      env: { ...process.env, KINHUE_MAX_PIXELS: '1e99' },
     });
     expect(r.status).toBe(2);
     expect(r.stderr).toMatch(/KINHUE_MAX_PIXELS=1e99 is not a whole number of pixels/);

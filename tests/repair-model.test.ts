@@ -5,8 +5,22 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { initBackend } from '../src/model/index.js';
 import {
-  addGrain, detectDamage, detectionFigures, drawDamage, loadRepairModel, maskedSquaredError, medianFill, networkPlanes, networkRepair, poolDetection,
-  psnrOf, readRepairPhotos, REPAIR_META_FILE, repairPhotoSplit, softScene, trainRepairModel,
+  addGrain,
+  detectDamage,
+  detectionFigures,
+  drawDamage,
+  loadRepairModel,
+  maskedSquaredError,
+  medianFill,
+  networkPlanes,
+  networkRepair,
+  poolDetection,
+  psnrOf,
+  readRepairPhotos,
+  REPAIR_META_FILE,
+  repairPhotoSplit,
+  softScene,
+  trainRepairModel,
 } from '../src/repair/index.js';
 import { Random } from '../src/training/index.js';
 
@@ -37,7 +51,11 @@ describe('repair model folder', () => {
     // Detection and fill are chosen by measurement at the end of the run, and the figures kept.
     expect(['network', 'median']).toContain(model.meta.fill);
     expect(['network', 'confirmed']).toContain(model.meta.detection);
-    expect(model.meta.training.choice).toMatchObject({ f1: expect.any(Number), changedShare: expect.any(Number), medianFillPsnr: expect.any(Number) });
+    expect(model.meta.training.choice).toMatchObject({
+      f1: expect.any(Number),
+      changedShare: expect.any(Number),
+      medianFillPsnr: expect.any(Number),
+    });
     const { mask } = networkRepair(new Float32Array(64 * 48).fill(50), 64, 48, model);
     expect(mask.length).toBe(64 * 48);
     const weights = await readFile(join(out, 'weights.bin'));
@@ -49,7 +67,9 @@ describe('repair model folder', () => {
   }, 300_000);
 
   it('the CLI checks its command line', () => {
-    const run = spawnSync(process.execPath, [BIN, 'train-repair', join(root, 'nowhere'), '--out', join(root, 'm'), '--steps', '0'], { encoding: 'utf8' });
+    const run = spawnSync(process.execPath, [BIN, 'train-repair', join(root, 'nowhere'), '--out', join(root, 'm'), '--steps', '0'], {
+      encoding: 'utf8',
+    });
     expect(run.status).toBe(2);
     expect(run.stderr).toContain('--steps must be a whole number of 1 or more');
   });
@@ -57,7 +77,8 @@ describe('repair model folder', () => {
 
 describe('the shipped repair model (models/kinhue-repair)', () => {
   /** F1 of pooled precision and recall. */
-  const f1 = (d: { precision: number; recall: number }) => (d.precision + d.recall > 0 ? (2 * d.precision * d.recall) / (d.precision + d.recall) : 0);
+  const f1 = (d: { precision: number; recall: number }) =>
+    d.precision + d.recall > 0 ? (2 * d.precision * d.recall) / (d.precision + d.recall) : 0;
 
   it('meets the precision goal on damaged soft scenes, and beats the classical detector on the demo originals with a margin', async () => {
     const model = await loadRepairModel();
@@ -73,7 +94,10 @@ describe('the shipped repair model (models/kinhue-repair)', () => {
     // Detailed photographs: the demo album's colour originals, held out of the training pool (models/photo-list.tsv,
     // use = demo), at a long side of 512 px. Margins of our own: F1 at least 0.1 higher than the classical detector's,
     // and at most a third of the pixels it changes on the same photos undamaged.
-    const photos = await readRepairPhotos((await readdir(ORIGINALS)).sort().map((name) => join(ORIGINALS, name)), 512);
+    const photos = await readRepairPhotos(
+      (await readdir(ORIGINALS)).sort().map((name) => join(ORIGINALS, name)),
+      512,
+    );
     const rng = new Random(15);
     const found = { classical: [] as ReturnType<typeof detectionFigures>[], network: [] as ReturnType<typeof detectionFigures>[] };
     const changed = { classical: 0, network: 0 };

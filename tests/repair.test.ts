@@ -1,8 +1,19 @@
 import { describe, expect, it } from 'vitest';
 import type { Pixels } from '../src/image/index.js';
 import {
-  addGrain, changeFigures, detectDamage, detectionFigures, drawDamage, keepUnmasked, MASK_DELTA, maskedSquaredError, medianFill, psnrOf,
-  repairScan, softScene, squareFilter,
+  addGrain,
+  changeFigures,
+  detectDamage,
+  detectionFigures,
+  drawDamage,
+  keepUnmasked,
+  MASK_DELTA,
+  maskedSquaredError,
+  medianFill,
+  psnrOf,
+  repairScan,
+  softScene,
+  squareFilter,
 } from '../src/repair/index.js';
 import { Random } from '../src/training/index.js';
 
@@ -40,8 +51,13 @@ describe('damage generator', () => {
       // The widest extent, in pixels, of the marked pixels along a row or a column.
       let best = 0;
       for (let y = 0; y < 256; y++) {
-        let lo = 256, hi = -1;
-        for (let x = 0; x < 256; x++) if (mask[y * 256 + x]) { lo = Math.min(lo, x); hi = Math.max(hi, x); }
+        let lo = 256,
+          hi = -1;
+        for (let x = 0; x < 256; x++)
+          if (mask[y * 256 + x]) {
+            lo = Math.min(lo, x);
+            hi = Math.max(hi, x);
+          }
         best = Math.max(best, hi - lo + 1);
       }
       return best;
@@ -76,10 +92,15 @@ describe('mask-only replacement', () => {
   });
 
   it('median fill changes only masked pixels and fills a hole in a flat area with its surroundings', () => {
-    const w = 40, h = 30;
+    const w = 40,
+      h = 30;
     const L = new Float32Array(w * h).fill(42);
     const mask = new Uint8Array(w * h);
-    for (let y = 10; y < 18; y++) for (let x = 12; x < 20; x++) { mask[y * w + x] = 1; L[y * w + x] = 95; }
+    for (let y = 10; y < 18; y++)
+      for (let x = 12; x < 20; x++) {
+        mask[y * w + x] = 1;
+        L[y * w + x] = 95;
+      }
     L[0] = 7;
     const out = medianFill(L, w, h, mask);
     for (let i = 0; i < L.length; i++) expect(out[i]).toBe(mask[i] ? 42 : L[i]);
@@ -88,7 +109,8 @@ describe('mask-only replacement', () => {
 
 describe('repair of whole scans', () => {
   it('finds and repairs damage on soft, grainy scans, and beats leaving it', () => {
-    const w = 384, h = 256;
+    const w = 384,
+      h = 256;
     const figures = [];
     let damagedError = { sum: 0, count: 0 };
     let repairedError = { sum: 0, count: 0 };
@@ -97,7 +119,10 @@ describe('repair of whole scans', () => {
       const found = detectDamage(L, w, h).mask;
       figures.push(detectionFigures(found, mask, w, h, 2));
       const filled = medianFill(L, w, h, found);
-      const add = (a: { sum: number; count: number }, b: { sum: number; count: number }) => ({ sum: a.sum + b.sum, count: a.count + b.count });
+      const add = (a: { sum: number; count: number }, b: { sum: number; count: number }) => ({
+        sum: a.sum + b.sum,
+        count: a.count + b.count,
+      });
       damagedError = add(damagedError, maskedSquaredError(L, clean, mask));
       repairedError = add(repairedError, maskedSquaredError(filled, clean, mask));
     }
@@ -111,7 +136,8 @@ describe('repair of whole scans', () => {
   });
 
   it('leaves an undamaged grainy or soft scan all but untouched (the issue: at most 0.1% of pixels, mean |dL*| under 0.2)', () => {
-    const w = 384, h = 256;
+    const w = 384,
+      h = 256;
     for (const grain of [0, 1.5, 3]) {
       const L = softScene(w, h);
       addGrain(L, new Random(30 + grain), grain);
@@ -123,9 +149,15 @@ describe('repair of whole scans', () => {
   });
 
   it('repairScan keeps unmasked samples bit for bit at 8 and 16 bits, grey and RGB, and replaces only what its mask marks', () => {
-    const w = 300, h = 200;
+    const w = 300,
+      h = 200;
     const { L } = drawDamage(softScene(w, h), w, h, new Random(40), { perMegapixel: 300 });
-    for (const [depth, channels] of [[8, 1], [16, 1], [8, 3], [16, 4]] as const) {
+    for (const [depth, channels] of [
+      [8, 1],
+      [16, 1],
+      [8, 3],
+      [16, 4],
+    ] as const) {
       const max = depth === 8 ? 255 : 65535;
       const data = depth === 8 ? new Uint8Array(w * h * channels) : new Uint16Array(w * h * channels);
       for (let i = 0; i < w * h; i++) {
@@ -156,7 +188,9 @@ describe('repair of whole scans', () => {
 describe('morphology', () => {
   it('squareFilter equals a direct minimum and maximum over the window', () => {
     const rng = new Random(3);
-    const w = 23, h = 17, r = 3;
+    const w = 23,
+      h = 17,
+      r = 3;
     const src = Float32Array.from({ length: w * h }, () => rng.next());
     for (const op of ['min', 'max'] as const) {
       const out = squareFilter(src, w, h, r, op);

@@ -8,7 +8,10 @@ import { colourfulness, meanAbError, meanCiede2000, psnr, srgbToLab } from '../s
 // case worked by hand and to the published reference data the colour module is tested on.
 
 const tsv = readFileSync(fileURLToPath(new URL('./fixtures/ciede2000-sharma-2005.tsv', import.meta.url)), 'utf8');
-const pairs = tsv.split('\n').filter((l) => l.trim() && !l.startsWith('#') && !l.startsWith('pair')).map((l) => l.split('\t').map(Number));
+const pairs = tsv
+  .split('\n')
+  .filter((l) => l.trim() && !l.startsWith('#') && !l.startsWith('pair'))
+  .map((l) => l.split('\t').map(Number));
 
 describe('score metrics', () => {
   it('PSNR of 8-bit RGB matches the definition worked by hand', () => {

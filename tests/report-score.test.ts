@@ -18,7 +18,8 @@ import { formatScoreTable, score, scoreToCsv, writeScoreFiles, type ScoreReport 
 // CIELAB / LCh / CIEDE2000 implementation), the model rows with restore's own colourisation measured by culori.
 
 const BIN = join(__dirname, '..', 'bin', 'kinhue.js');
-const W = 48, H = 32;
+const W = 48,
+  H = 32;
 let root: string;
 let photos: string;
 let trained: string;
@@ -29,23 +30,28 @@ const rgbOf = new Map<string, Uint8Array>();
 /** A colourful test photo: hue varies across, saturation down; `k` shifts the palette. */
 function photo(k: number): Uint8Array {
   const rgb = new Uint8Array(W * H * 3);
-  for (let y = 0; y < H; y++) for (let x = 0; x < W; x++) {
-    const i = (y * W + x) * 3;
-    const t = x / (W - 1), s = y / (H - 1);
-    rgb[i] = Math.round(255 * ((1 - t) * 0.9 * (1 - s) + s * 0.5));
-    rgb[i + 1] = Math.round(255 * ((k === 1 ? t : 0.3 + 0.4 * t) * (1 - s) * 0.8 + s * 0.45));
-    rgb[i + 2] = Math.round(255 * ((k === 2 ? 1 - t : t) * 0.7 * (1 - s) + s * 0.4));
-  }
+  for (let y = 0; y < H; y++)
+    for (let x = 0; x < W; x++) {
+      const i = (y * W + x) * 3;
+      const t = x / (W - 1),
+        s = y / (H - 1);
+      rgb[i] = Math.round(255 * ((1 - t) * 0.9 * (1 - s) + s * 0.5));
+      rgb[i + 1] = Math.round(255 * ((k === 1 ? t : 0.3 + 0.4 * t) * (1 - s) * 0.8 + s * 0.45));
+      rgb[i + 2] = Math.round(255 * ((k === 2 ? 1 - t : t) * 0.7 * (1 - s) + s * 0.4));
+    }
   return rgb;
 }
 
 /** The training samples behind the "trained" model's class weights: a* on [0, 20), b* on [10, 40). */
 function trainingSamples(): { a: Float32Array; b: Float32Array } {
-  const n = 60, a = new Float32Array(n * n), b = new Float32Array(n * n);
-  for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) {
-    a[i * n + j] = (20 * (i + 0.5)) / n;
-    b[i * n + j] = 10 + (30 * (j + 0.5)) / n;
-  }
+  const n = 60,
+    a = new Float32Array(n * n),
+    b = new Float32Array(n * n);
+  for (let i = 0; i < n; i++)
+    for (let j = 0; j < n; j++) {
+      a[i * n + j] = (20 * (i + 0.5)) / n;
+      b[i * n + j] = 10 + (30 * (j + 0.5)) / n;
+    }
   return { a, b };
 }
 
@@ -57,9 +63,14 @@ const de00 = differenceCiede2000();
 /** Figures for L* (from the original, by culori) with the given a*b* per pixel, all by culori. */
 function culoriFigures(original: Uint8Array, ab: (i: number) => [number, number]) {
   const n = original.length / 3;
-  let se = 0, de = 0, abErr = 0;
+  let se = 0,
+    de = 0,
+    abErr = 0;
   // The hue figures from culori's chroma and hue angle, with the thresholds kinhue states (issue 17).
-  let coloured = 0, right = 0, grey = 0, falseColour = 0;
+  let coloured = 0,
+    right = 0,
+    grey = 0,
+    falseColour = 0;
   const hueOff = (h1: number, h2: number) => Math.min(Math.abs(h1 - h2), 360 - Math.abs(h1 - h2));
   for (let i = 0; i < n; i++) {
     const o = toLab({ mode: 'rgb', r: original[i * 3] / 255, g: original[i * 3 + 1] / 255, b: original[i * 3 + 2] / 255 });
@@ -71,7 +82,8 @@ function culoriFigures(original: Uint8Array, ab: (i: number) => [number, number]
     const seen = toLab({ mode: 'rgb', r: q[0] / 255, g: q[1] / 255, b: q[2] / 255 });
     de += de00(seen, o);
     abErr += Math.hypot(seen.a - o.a, seen.b - o.b);
-    const lo = toLch(o), lr = toLch(seen);
+    const lo = toLch(o),
+      lr = toLch(seen);
     const off = lo.c >= NEAR_NEUTRAL_CHROMA && lr.c >= NEAR_NEUTRAL_CHROMA ? hueOff(lo.h ?? 0, lr.h ?? 0) : NaN;
     if (lo.c >= CLEARLY_COLOURED_CHROMA) {
       coloured++;
@@ -81,13 +93,20 @@ function culoriFigures(original: Uint8Array, ab: (i: number) => [number, number]
     if (lr.c >= CLEARLY_COLOURED_CHROMA && (lo.c < NEAR_NEUTRAL_CHROMA || off > FALSE_HUE_DEGREES)) falseColour++;
   }
   return {
-    psnr: 10 * Math.log10((255 * 255 * n * 3) / se), ciede2000: de / n, abError: abErr / n,
-    rightHue: coloured ? (100 * right) / coloured : null, falseColour: (100 * falseColour) / n, leftGrey: coloured ? (100 * grey) / coloured : null,
+    psnr: 10 * Math.log10((255 * 255 * n * 3) / se),
+    ciede2000: de / n,
+    abError: abErr / n,
+    rightHue: coloured ? (100 * right) / coloured : null,
+    falseColour: (100 * falseColour) / n,
+    leftGrey: coloured ? (100 * grey) / coloured : null,
   };
 }
 
 /** kinhue's hue figures against culori's: within 0.2 points (a pixel or two at a threshold may fall either side). */
-function expectHueFigures(got: { rightHue: number | null; falseColour: number; leftGrey: number | null }, ref: ReturnType<typeof culoriFigures>): void {
+function expectHueFigures(
+  got: { rightHue: number | null; falseColour: number; leftGrey: number | null },
+  ref: ReturnType<typeof culoriFigures>,
+): void {
   if (ref.rightHue === null) {
     expect(got.rightHue).toBeNull();
     expect(got.leftGrey).toBeNull();
@@ -105,7 +124,9 @@ beforeAll(async () => {
   for (const k of [0, 1, 2]) {
     const rgb = photo(k);
     rgbOf.set(`photo-${k}.png`, rgb);
-    await sharp(rgb, { raw: { width: W, height: H, channels: 3 } }).png().toFile(join(photos, `photo-${k}.png`));
+    await sharp(rgb, { raw: { width: W, height: H, channels: 3 } })
+      .png()
+      .toFile(join(photos, `photo-${k}.png`));
   }
   // A sepia-toned print kept as RGB: colour of one hue. Scored, with a note (it may be a tinted print).
   const sepia = new Uint8Array(W * H * 3);
@@ -116,13 +137,20 @@ beforeAll(async () => {
     sepia[i * 3 + 2] = Math.round(v * 0.68);
   }
   rgbOf.set('sepia.png', sepia);
-  await sharp(sepia, { raw: { width: W, height: H, channels: 3 } }).png().toFile(join(photos, 'sepia.png'));
+  await sharp(sepia, { raw: { width: W, height: H, channels: 3 } })
+    .png()
+    .toFile(join(photos, 'sepia.png'));
   // A pale photo: orange-ish above, blue-ish below, chroma about 10 (no clearly coloured pixel, C*ab < 15).
   const pale = new Uint8Array(W * H * 3);
-  for (let i = 0; i < W * H; i++) pale.set(i < (W * H) / 2 ? [150 + (i % 40), 135 + (i % 40), 120 + (i % 40)] : [110 + (i % 40), 120 + (i % 40), 138 + (i % 40)], i * 3);
+  for (let i = 0; i < W * H; i++)
+    pale.set(i < (W * H) / 2 ? [150 + (i % 40), 135 + (i % 40), 120 + (i % 40)] : [110 + (i % 40), 120 + (i % 40), 138 + (i % 40)], i * 3);
   rgbOf.set('pale.png', pale);
-  await sharp(pale, { raw: { width: W, height: H, channels: 3 } }).png().toFile(join(photos, 'pale.png'));
-  await sharp(Buffer.alloc(W * H, 120), { raw: { width: W, height: H, channels: 1 } }).png().toFile(join(photos, 'grey.png'));
+  await sharp(pale, { raw: { width: W, height: H, channels: 3 } })
+    .png()
+    .toFile(join(photos, 'pale.png'));
+  await sharp(Buffer.alloc(W * H, 120), { raw: { width: W, height: H, channels: 1 } })
+    .png()
+    .toFile(join(photos, 'grey.png'));
   await writeFile(join(photos, 'notes.jpg'), 'this is text, not a photo\n');
 
   await initBackend();
@@ -132,7 +160,11 @@ beforeAll(async () => {
   untrained = join(root, 'model-untrained');
   let net = createNetwork({ width: 4, seed: 5 });
   // Weights made with a rebalancing λ other than the paper's 0.5, recorded as train and tune record it.
-  await saveModel(net, trained, { name: 'small-a', classWeights: rebalanceWeights(binHistogram(a, b, bins), 0.95), training: { rebalance: 0.95 } });
+  await saveModel(net, trained, {
+    name: 'small-a',
+    classWeights: rebalanceWeights(binHistogram(a, b, bins), 0.95),
+    training: { rebalance: 0.95 },
+  });
   net.dispose();
   net = createNetwork({ width: 4, seed: 6 });
   await saveModel(net, untrained, { name: 'small-b' });
@@ -193,7 +225,9 @@ describe('kinhue score', () => {
     expect(t1.target!.description).toMatch(/λ 0\.95/);
     // Model 2 has no weights: the pooled statistics of the four scored photos, by culori.
     expect(t2.target!.source).toBe('scored-photos');
-    let sa = 0, sb = 0, n = 0;
+    let sa = 0,
+      sb = 0,
+      n = 0;
     for (const rgb of rgbOf.values()) {
       for (let i = 0; i < rgb.length; i += 3) {
         const o = toLab({ mode: 'rgb', r: rgb[i] / 255, g: rgb[i + 1] / 255, b: rgb[i + 2] / 255 });
@@ -267,7 +301,9 @@ describe('kinhue score', () => {
     expect(table).toMatch(/Right hue: of the original's clearly coloured pixels \(C\*ab >= 15\)/);
 
     const csv = scoreToCsv(report).split('\r\n');
-    expect(csv[0]).toBe('photo,method,model,psnr_db,ciede2000_mean,ab_error_mean,colourfulness,right_hue_pct,false_colour_pct,left_grey_pct,original_colourfulness,original_clearly_coloured_pct');
+    expect(csv[0]).toBe(
+      'photo,method,model,psnr_db,ciede2000_mean,ab_error_mean,colourfulness,right_hue_pct,false_colour_pct,left_grey_pct,original_colourfulness,original_clearly_coloured_pct',
+    );
     expect(csv).toHaveLength(1 + (5 + 1) * 5 + 1); // header, (photos + average) x methods, final line break
     // The pale photo's grey row: right hue and left grey empty, false colour 0, clearly coloured 0%.
     expect(csv[1]).toMatch(/^pale\.png,grey \(L\* only\),,[^,]+,[^,]+,[^,]+,[^,]+,,0,,[^,]+,0$/);
@@ -284,7 +320,11 @@ describe('kinhue score', () => {
 
   it('runs from the command line: --json prints JSON, --out writes both files, exit 1 for the failures', async () => {
     const out = join(root, 'cli-scores');
-    const run = spawnSync(process.execPath, [BIN, 'score', join(photos, 'photo-0.png'), join(photos, 'grey.png'), '--model', trained, '--json', '--out', out], { encoding: 'utf8' });
+    const run = spawnSync(
+      process.execPath,
+      [BIN, 'score', join(photos, 'photo-0.png'), join(photos, 'grey.png'), '--model', trained, '--json', '--out', out],
+      { encoding: 'utf8' },
+    );
     expect(run.status, run.stderr).toBe(1);
     const json = JSON.parse(run.stdout) as ScoreReport;
     expect(json.photos.map((p) => p.file)).toEqual(['photo-0.png']);

@@ -45,15 +45,22 @@ async function modelFolder(): Promise<string> {
   return dir;
 }
 
-interface Card { name: string; status: string; confidence: string; hidden: boolean }
+interface Card {
+  name: string;
+  status: string;
+  confidence: string;
+  hidden: boolean;
+}
 
 async function cards(): Promise<Card[]> {
-  return page.$$eval('article.photo', (els) => els.map((el) => ({
-    name: el.getAttribute('data-name') ?? '',
-    status: el.getAttribute('data-status') ?? '',
-    confidence: el.getAttribute('data-confidence') ?? '',
-    hidden: (el as HTMLElement).hidden,
-  })));
+  return page.$$eval('article.photo', (els) =>
+    els.map((el) => ({
+      name: el.getAttribute('data-name') ?? '',
+      status: el.getAttribute('data-status') ?? '',
+      confidence: el.getAttribute('data-confidence') ?? '',
+      hidden: (el as HTMLElement).hidden,
+    })),
+  );
 }
 
 beforeAll(async () => {
@@ -74,7 +81,9 @@ beforeAll(async () => {
   page = context.pages()[0] ?? (await context.newPage());
   page.on('request', (r) => requests.push(r.url()));
   page.on('pageerror', (e) => problems.push(String(e)));
-  page.on('console', (m) => { if (m.type() === 'error' || m.type() === 'warning') problems.push(m.text()); });
+  page.on('console', (m) => {
+    if (m.type() === 'error' || m.type() === 'warning') problems.push(m.text());
+  });
   await page.goto(pathToFileURL(sheetPath).href, { waitUntil: 'load' });
   // Decode every picture (those below the fold too) so checks and screenshots see them all.
   await page.evaluate(() => Promise.all(Array.from(document.images).map((i) => i.decode().catch(() => undefined))));
@@ -96,7 +105,9 @@ describe('review sheet in Chromium', () => {
   });
 
   it('loads every image from the folder, with no network and no errors', async () => {
-    const images = await page.$$eval('img', (els) => els.map((i) => ({ src: i.getAttribute('src') ?? '', complete: i.complete, width: i.naturalWidth })));
+    const images = await page.$$eval('img', (els) =>
+      els.map((i) => ({ src: i.getAttribute('src') ?? '', complete: i.complete, width: i.naturalWidth })),
+    );
     expect(images.length).toBe(5 * summary.done); // comparison (2) + scan, result, confidence map
     for (const img of images) {
       expect(img.complete, img.src).toBe(true);
@@ -181,9 +192,11 @@ describe('a damaged provenance record', () => {
     const view = await context.newPage();
     try {
       await view.goto(pathToFileURL(out).href, { waitUntil: 'load' });
-      const damaged = await view.$$eval('article.failed', (els) => els
-        .filter((el) => el.querySelector('.badge')?.textContent === 'damaged record')
-        .map((el) => `${el.querySelector('.message')?.textContent} / ${el.querySelector('.hint')?.textContent}`));
+      const damaged = await view.$$eval('article.failed', (els) =>
+        els
+          .filter((el) => el.querySelector('.badge')?.textContent === 'damaged record')
+          .map((el) => `${el.querySelector('.message')?.textContent} / ${el.querySelector('.hint')?.textContent}`),
+      );
       expect(damaged).toHaveLength(2);
       expect(damaged.join('\n')).toContain(`${records[0]} is damaged: missing or wrong source.width, timings`);
       expect(damaged.join('\n')).toContain(`${records[1]} is damaged: not a JSON object`);

@@ -7,13 +7,7 @@ import { escapeHtml } from '../src/report/sheet-html.js';
 describe('text tables', () => {
   it('pads columns to their widest cell, figures to the right', () => {
     const text = renderTable([{ label: 'photo' }, { label: 'PSNR', align: 'right' }], [['barn.jpg', '24.31'], TABLE_RULE, ['a', '5.00']]);
-    expect(text.split('\n')).toEqual([
-      'photo      PSNR',
-      '--------  -----',
-      'barn.jpg  24.31',
-      '--------  -----',
-      'a          5.00',
-    ]);
+    expect(text.split('\n')).toEqual(['photo      PSNR', '--------  -----', 'barn.jpg  24.31', '--------  -----', 'a          5.00']);
   });
 
   it('splits a heading over lines at line breaks, bottom-aligned, and writes span rows as they are', () => {
@@ -50,7 +44,15 @@ describe('CSV', () => {
     expect(csvField('two\nlines')).toBe('"two\nlines"');
     expect(csvField(null)).toBe('');
     expect(csvField(NaN)).toBe('');
-    expect(toCsv(['photo', 'psnr'], [['x.jpg', 24.5], ['y,z.jpg', null]])).toBe('photo,psnr\r\nx.jpg,24.5\r\n"y,z.jpg",\r\n');
+    expect(
+      toCsv(
+        ['photo', 'psnr'],
+        [
+          ['x.jpg', 24.5],
+          ['y,z.jpg', null],
+        ],
+      ),
+    ).toBe('photo,psnr\r\nx.jpg,24.5\r\n"y,z.jpg",\r\n');
   });
 });
 

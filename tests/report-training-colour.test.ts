@@ -1,7 +1,12 @@
 import { describe, expect, it } from 'vitest';
 import { abBins, binHistogram, rebalanceWeights } from '../src/model/index.js';
 import { labStatistics } from '../src/report/reinhard.js';
-import { abStatisticsFromClassWeights, distributionFromClassWeights, recordedRebalance, trainingColourFor } from '../src/report/training-colour.js';
+import {
+  abStatisticsFromClassWeights,
+  distributionFromClassWeights,
+  recordedRebalance,
+  trainingColourFor,
+} from '../src/report/training-colour.js';
 
 // The Reinhard baseline's target comes from the class-rebalancing weights a model stores
 // (Zhang et al. 2016, eq. 4). These checks make weights from known a*b* samples with the model
@@ -9,11 +14,13 @@ import { abStatisticsFromClassWeights, distributionFromClassWeights, recordedReb
 
 function samples(n: number): { a: Float32Array; b: Float32Array } {
   // A deterministic lattice: a* uniform on [0, 20), b* uniform on [10, 40), independent.
-  const a = new Float32Array(n * n), b = new Float32Array(n * n);
-  for (let i = 0; i < n; i++) for (let j = 0; j < n; j++) {
-    a[i * n + j] = (20 * (i + 0.5)) / n;
-    b[i * n + j] = 10 + (30 * (j + 0.5)) / n;
-  }
+  const a = new Float32Array(n * n),
+    b = new Float32Array(n * n);
+  for (let i = 0; i < n; i++)
+    for (let j = 0; j < n; j++) {
+      a[i * n + j] = (20 * (i + 0.5)) / n;
+      b[i * n + j] = 10 + (30 * (j + 0.5)) / n;
+    }
   return { a, b };
 }
 
@@ -47,7 +54,14 @@ describe('training colour from class weights', () => {
     const weights = rebalanceWeights(binHistogram(a, b, bins), 0.95, undefined, bins);
     const lambda = recordedRebalance({ rebalance: 0.95 });
     expect(lambda).toBe(0.95);
-    const got = trainingColourFor(weights, bins, () => { throw new Error('no fallback expected'); }, lambda);
+    const got = trainingColourFor(
+      weights,
+      bins,
+      () => {
+        throw new Error('no fallback expected');
+      },
+      lambda,
+    );
     expect(got.source).toBe('class-weights');
     expect(got.description).toContain('λ 0.95');
     // Tolerances as above (common practice for this histogram).

@@ -1,7 +1,15 @@
 import { describe, expect, it } from 'vitest';
 import {
-  CIEDE2000_MARGIN, RIGHT_HUE_MARGIN, averageFigures, compareFigures, formatScoreTable, modelVerdicts,
-  type PhotoScore, type ScoreFigures, type ScoreMethod, type ScoreReport,
+  CIEDE2000_MARGIN,
+  RIGHT_HUE_MARGIN,
+  averageFigures,
+  compareFigures,
+  formatScoreTable,
+  modelVerdicts,
+  type PhotoScore,
+  type ScoreFigures,
+  type ScoreMethod,
+  type ScoreReport,
 } from '../src/report/index.js';
 
 // The closing verdict of `score`, on synthetic reports whose averages are written out here. The
@@ -9,7 +17,15 @@ import {
 // sit exactly on them or just either side.
 
 function figures(ciede2000: number, rightHue: number | null): ScoreFigures {
-  return { psnr: 20, ciede2000, abError: 10, colourfulness: 20, rightHue, falseColour: 2, leftGrey: rightHue === null ? null : 100 - rightHue };
+  return {
+    psnr: 20,
+    ciede2000,
+    abError: 10,
+    colourfulness: 20,
+    rightHue,
+    falseColour: 2,
+    leftGrey: rightHue === null ? null : 100 - rightHue,
+  };
 }
 
 const METHODS: ScoreMethod[] = [
@@ -65,8 +81,14 @@ describe('modelVerdicts', () => {
     };
     const verdicts = modelVerdicts(METHODS, average);
     expect(verdicts.map((v) => v.method)).toEqual(['model:1', 'model:2']);
-    expect(verdicts[0].comparisons.map((c) => [c.against, c.outcome])).toEqual([['grey', 'better'], ['model:2', 'worse']]);
-    expect(verdicts[1].comparisons.map((c) => [c.against, c.outcome])).toEqual([['grey', 'better'], ['model:1', 'better']]);
+    expect(verdicts[0].comparisons.map((c) => [c.against, c.outcome])).toEqual([
+      ['grey', 'better'],
+      ['model:2', 'worse'],
+    ]);
+    expect(verdicts[1].comparisons.map((c) => [c.against, c.outcome])).toEqual([
+      ['grey', 'better'],
+      ['model:1', 'better'],
+    ]);
     expect(verdicts[0].text).toBe(
       'model base: better than grey on right hue (31.0% vs 0.0%), level on CIEDE2000 (13.20 vs 13.51); ' +
         'worse than model family on CIEDE2000 (13.20 vs 12.10) and right hue (31.0% vs 40.0%)',
@@ -80,15 +102,24 @@ describe('modelVerdicts', () => {
   it('says which figures disagree, or that all are within the margins', () => {
     const methods = METHODS.slice(0, 3);
     const mixed = modelVerdicts(methods, { grey: figures(13, 0), 'transfer:1': figures(12, 50), 'model:1': figures(14, 20) });
-    expect(mixed[0].text).toBe('model base: no clearer than grey: better on right hue (20.0% vs 0.0%), worse on CIEDE2000 (14.00 vs 13.00)');
+    expect(mixed[0].text).toBe(
+      'model base: no clearer than grey: better on right hue (20.0% vs 0.0%), worse on CIEDE2000 (14.00 vs 13.00)',
+    );
     const level = modelVerdicts(methods, { grey: figures(13, 0), 'transfer:1': figures(12, 50), 'model:1': figures(12.8, 2) });
-    expect(level[0].text).toBe('model base: no clearer than grey: CIEDE2000 (12.80 vs 13.00) and right hue (2.0% vs 0.0%) within the margins');
+    expect(level[0].text).toBe(
+      'model base: no clearer than grey: CIEDE2000 (12.80 vs 13.00) and right hue (2.0% vs 0.0%) within the margins',
+    );
   });
 
   it('follows the averages of a report and closes its table', () => {
     // Two photos; the second has no clearly coloured pixel, so right hue averages rest on the first alone.
     const photo = (file: string, grey: ScoreFigures, model: ScoreFigures, clearlyColoured: number): PhotoScore => ({
-      file, width: 2, height: 2, originalColourfulness: 30, clearlyColoured, figures: { grey, 'transfer:1': figures(15, 10), 'model:1': model },
+      file,
+      width: 2,
+      height: 2,
+      originalColourfulness: 30,
+      clearlyColoured,
+      figures: { grey, 'transfer:1': figures(15, 10), 'model:1': model },
     });
     const photos = [photo('a.jpg', figures(14, 0), figures(12, 60), 50), photo('b.jpg', figures(6, null), figures(7.4, null), 0)];
     const methods = METHODS.slice(0, 3);
@@ -98,13 +129,22 @@ describe('modelVerdicts', () => {
     expect(average.figures['model:1'].rightHue).toBe(60);
     expect(average.figures['model:1'].leftGrey).toBe(40);
     const report: ScoreReport = {
-      kind: 'kinhue-score', version: '0', created: '', methods, photos, failures: [], average,
-      verdicts: modelVerdicts(methods, average.figures), notes: [],
+      kind: 'kinhue-score',
+      version: '0',
+      created: '',
+      methods,
+      photos,
+      failures: [],
+      average,
+      verdicts: modelVerdicts(methods, average.figures),
+      notes: [],
     };
     // Grey averages 10 (14 and 6), the model 9.7 (12 and 7.4): within 0.5, so right hue (60 vs 0) decides.
     expect(report.verdicts[0].comparisons[0].outcome).toBe('better');
     const table = formatScoreTable(report);
     expect(table).toContain('average of 2 (right hue and left grey: 1)');
-    expect(table).toMatch(/Verdict \(averages of 2 photos;[^\n]*\n {2}model base: better than grey on right hue \(60\.0% vs 0\.0%\), level on CIEDE2000 \(9\.70 vs 10\.00\)$/m);
+    expect(table).toMatch(
+      /Verdict \(averages of 2 photos;[^\n]*\n {2}model base: better than grey on right hue \(60\.0% vs 0\.0%\), level on CIEDE2000 \(9\.70 vs 10\.00\)$/m,
+    );
   });
 });

@@ -9,7 +9,16 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it, vi } from 'vitest';
 import {
-  loadRunFolder, parsePart, partFromScheduler, partKey, partOf, planOutputs, restore, runProgress, type RestoreSummary, type RunProgress,
+  loadRunFolder,
+  parsePart,
+  partFromScheduler,
+  partKey,
+  partOf,
+  planOutputs,
+  restore,
+  runProgress,
+  type RestoreSummary,
+  type RunProgress,
 } from '../src/batch/index.js';
 import { check } from '../src/cli/commands/restore.js';
 import { main } from '../src/cli/main.js';
@@ -55,23 +64,45 @@ describe('the partition', () => {
       // 600 / count each; a uniform hash keeps every part within 35% of that here (common practice: a few standard deviations).
       for (const size of sizes) expect(Math.abs(size - 600 / count)).toBeLessThanOrEqual(0.35 * (600 / count));
     }
-    const before = planOutputs(names.map((rel) => ({ path: `/s/${rel}`, rel })), 'same');
+    const before = planOutputs(
+      names.map((rel) => ({ path: `/s/${rel}`, rel })),
+      'same',
+    );
     const added = [...names, ...Array.from({ length: 200 }, (_, i) => `box-9/new ${i}.tif`)].sort();
-    const after = new Map(planOutputs(added.map((rel) => ({ path: `/s/${rel}`, rel })), 'same').map((o, i) => [added[i], o.image]));
+    const after = new Map(
+      planOutputs(
+        added.map((rel) => ({ path: `/s/${rel}`, rel })),
+        'same',
+      ).map((o, i) => [added[i], o.image]),
+    );
     names.forEach((rel, i) => expect(partOf(after.get(rel)!, 10)).toBe(partOf(before[i]!.image, 10)));
   });
 
   it('never gives one output file to two parts, even when the parts found different scans', () => {
     // Scans whose outputs can meet: the same stem in two formats, letter case, a name that is another's
     // name with its extension, a scan named like another's confidence map, and numbered clashes.
-    const tricky = ['x.jpg', 'x.png', 'X_jpg.tif', 'x.confidence.png', 'x.confidence.confidence.png', 'x-2.jpg', 'Sub/A.png', 'sub/a.jpg', 'x_jpg-2.jpg'];
-    const naive = (rel: string, count: number): number => (Number.parseInt(createHash('sha256').update(rel).digest('hex').slice(0, 12), 16) % count) + 1;
+    const tricky = [
+      'x.jpg',
+      'x.png',
+      'X_jpg.tif',
+      'x.confidence.png',
+      'x.confidence.confidence.png',
+      'x-2.jpg',
+      'Sub/A.png',
+      'sub/a.jpg',
+      'x_jpg-2.jpg',
+    ];
+    const naive = (rel: string, count: number): number =>
+      (Number.parseInt(createHash('sha256').update(rel).digest('hex').slice(0, 12), 16) % count) + 1;
     const shared = (partOfFile: (rel: string, image: string, count: number) => number): string[] => {
       const clashes: string[] = [];
       for (const count of [2, 3, 5]) {
         const writer = new Map<string, number>(); // output file (lower case: some file systems ignore case) -> part
         for (let mask = 1; mask < 1 << tricky.length; mask++) {
-          const view = tricky.filter((_, i) => mask & (1 << i)).sort().map((rel) => ({ path: `/s/${rel}`, rel }));
+          const view = tricky
+            .filter((_, i) => mask & (1 << i))
+            .sort()
+            .map((rel) => ({ path: `/s/${rel}`, rel }));
           planOutputs(view, 'same').forEach((o, i) => {
             const part = partOfFile(view[i]!.rel, o.image, count);
             for (const file of [o.image, o.confidence, o.record].map((f) => f.toLowerCase())) {
@@ -106,8 +137,12 @@ describe('the partition', () => {
       throw new Error('not refused');
     };
     expect(refused(() => partFromScheduler('slurm', {})).message).toMatch(/SLURM_ARRAY_TASK_ID is not set/);
-    expect(refused(() => partFromScheduler('slurm', { SLURM_ARRAY_TASK_ID: '0', SLURM_ARRAY_TASK_COUNT: '3' })).hint).toMatch(/--array=1-N/);
-    expect(refused(() => partFromScheduler('slurm', { SLURM_ARRAY_TASK_ID: '2', SLURM_ARRAY_TASK_COUNT: '1' })).hint).toMatch(/--part-count/);
+    expect(refused(() => partFromScheduler('slurm', { SLURM_ARRAY_TASK_ID: '0', SLURM_ARRAY_TASK_COUNT: '3' })).hint).toMatch(
+      /--array=1-N/,
+    );
+    expect(refused(() => partFromScheduler('slurm', { SLURM_ARRAY_TASK_ID: '2', SLURM_ARRAY_TASK_COUNT: '1' })).hint).toMatch(
+      /--part-count/,
+    );
     expect(refused(() => partFromScheduler('kubernetes', { JOB_COMPLETION_INDEX: '0' })).hint).toMatch(/--part-count N/);
     expect(refused(() => partFromScheduler('kubernetes', { JOB_COMPLETION_INDEX: '10' }, 10)).message).toMatch(/from 1 to 10, got 11/);
     const base = { inputs: ['scans/'], out: 'restored/' };
@@ -152,7 +187,7 @@ describe('parts in one output folder', () => {
     await expect(run([scans], out, { part: { index: 1, count: 4 } })).rejects.toThrow(/split into 3 parts/);
   });
 
-  it('runs the README\'s Kubernetes Job command for each completion index into one folder', async () => {
+  it("runs the README's Kubernetes Job command for each completion index into one folder", async () => {
     const readme = await readFile(join(__dirname, '..', 'README.md'), 'utf8');
     const job = /```yaml\n([\s\S]*?)```/.exec(readme)![1]!;
     const completions = Number(/completions: (\d+)/.exec(job)![1]);
@@ -161,9 +196,14 @@ describe('parts in one output folder', () => {
     const scans = await album('pod-album', 10);
     const out = join(root, 'pod-out');
     // The archive's paths become this test's; one core and the small model instead of 16 and the shipped one.
-    const args = command.slice(2).map((a, i, all) => (a === '/archive/scans' ? scans : a === '/archive/restored' ? out : all[i - 1] === '--jobs' ? '1' : a));
+    const args = command
+      .slice(2)
+      .map((a, i, all) => (a === '/archive/scans' ? scans : a === '/archive/restored' ? out : all[i - 1] === '--jobs' ? '1' : a));
     const written: string[] = [];
-    const quiet = [vi.spyOn(process.stderr, 'write').mockImplementation(() => true), vi.spyOn(console, 'log').mockImplementation((t: string) => void written.push(t))];
+    const quiet = [
+      vi.spyOn(process.stderr, 'write').mockImplementation(() => true),
+      vi.spyOn(console, 'log').mockImplementation((t: string) => void written.push(t)),
+    ];
     try {
       for (let index = 0; index < completions; index++) {
         process.env.JOB_COMPLETION_INDEX = String(index);
@@ -184,7 +224,7 @@ describe('parts in one output folder', () => {
     expect(runProgress(folder).total).toMatchObject({ files: 10, done: 10, pending: 0 });
   });
 
-  it('keeps another machine\'s temporary files and another part\'s unfinished manifest line; clears its own leftovers', async () => {
+  it("keeps another machine's temporary files and another part's unfinished manifest line; clears its own leftovers", async () => {
     const scans = await album('shared', 8);
     const out = join(root, 'shared-out');
     await mkdir(out);
@@ -219,7 +259,9 @@ describe('parts in one output folder', () => {
     const left = (await readdir(out)).filter((n) => n.endsWith('.tmp')).sort();
     expect(left).toEqual([temps.runningHere, temps.theirsAtWork].sort());
     expect(summary.notes).toContain('removed 2 temporary files left by an earlier run that was stopped');
-    expect(summary.notes.filter((n) => n.includes('cut short'))).toEqual([expect.stringMatching(/^kinhue-run\.part-1-of-2\..* line 1 was cut short/)]);
+    expect(summary.notes.filter((n) => n.includes('cut short'))).toEqual([
+      expect.stringMatching(/^kinhue-run\.part-1-of-2\..* line 1 was cut short/),
+    ]);
     expect(await readFile(theirManifest, 'utf8')).toBe(theirBytes);
     expect((await readFile(ownManifest, 'utf8')).split('\n')[1]).toMatch(/^\{"time":/); // the next line starts on its own
   });
@@ -233,8 +275,10 @@ describe('parts in one output folder', () => {
     const size = files.filter((o) => partOf(o, count) === index).length;
     // Stopped after its first scan: the next one never starts.
     const soft = new AbortController();
-    const partWay = await restore({ inputs: [scans], out, model: modelDir, jobs: 1, workSize: 64, part: { index, count }, signal: soft.signal },
-      (e) => e.type === 'done' && soft.abort());
+    const partWay = await restore(
+      { inputs: [scans], out, model: modelDir, jobs: 1, workSize: 64, part: { index, count }, signal: soft.signal },
+      (e) => e.type === 'done' && soft.abort(),
+    );
     expect(partWay.done).toBe(1);
     expect(partWay.interrupted).toBe(true);
     const cli = spawnSync(process.execPath, [BIN, 'progress', out, '--json'], { encoding: 'utf8' });

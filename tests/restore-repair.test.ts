@@ -16,7 +16,8 @@ let root: string;
 let modelDir: string;
 let scans: string;
 let truth: Uint8Array;
-const W = 240, H = 160;
+const W = 240,
+  H = 160;
 
 beforeAll(async () => {
   root = await mkdtemp(join(tmpdir(), 'kinhue-repair-'));
@@ -33,10 +34,20 @@ beforeAll(async () => {
     return Math.round(max * (y <= 0.0031308 ? 12.92 * y : 1.055 * y ** (1 / 2.4) - 0.055));
   };
   await mkdir(scans);
-  await sharp(Uint8Array.from(damaged.L, (l) => code(l, 255)), { raw: { width: W, height: H, channels: 1 } })
-    .toColourspace('b-w').png().toFile(join(scans, 'dusty.png'));
-  await sharp(Uint16Array.from(damaged.L, (l) => code(l, 65535)), { raw: { width: W, height: H, channels: 1 } })
-    .toColourspace('grey16').tiff({ compression: 'deflate' }).toFile(join(scans, 'dusty16.tif'));
+  await sharp(
+    Uint8Array.from(damaged.L, (l) => code(l, 255)),
+    { raw: { width: W, height: H, channels: 1 } },
+  )
+    .toColourspace('b-w')
+    .png()
+    .toFile(join(scans, 'dusty.png'));
+  await sharp(
+    Uint16Array.from(damaged.L, (l) => code(l, 65535)),
+    { raw: { width: W, height: H, channels: 1 } },
+  )
+    .toColourspace('grey16')
+    .tiff({ compression: 'deflate' })
+    .toFile(join(scans, 'dusty16.tif'));
 }, 120_000);
 
 afterAll(async () => {
@@ -56,15 +67,21 @@ async function raw(path: string): Promise<{ data: Uint8Array | Uint16Array; chan
 }
 
 describe('restore --repair', () => {
-  it('writes the mask, the repaired grey scan in the scan\'s depth, the record and the XMP; untouched pixels are the scan\'s own', async () => {
+  it("writes the mask, the repaired grey scan in the scan's depth, the record and the XMP; untouched pixels are the scan's own", async () => {
     const out = join(root, 'out');
     const summary = await restore({ inputs: [scans], out, model: modelDir, jobs: 1, workSize: 64, repairedScan: true });
     expect(summary.done).toBe(2);
-    for (const [name, ext, depth] of [['dusty', '.png', 8], ['dusty16', '.tif', 16]] as const) {
+    for (const [name, ext, depth] of [
+      ['dusty', '.png', 8],
+      ['dusty16', '.tif', 16],
+    ] as const) {
       const record = JSON.parse(await readFile(join(out, `${name}.kinhue.json`), 'utf8'));
       expect(record.settings.repair).toEqual({
-        model: 'kinhue-repair', weightsSha256: expect.stringMatching(/^[0-9a-f]{64}$/), detection: expect.stringMatching(/^(network|confirmed)$/),
-        threshold: expect.any(Number), fill: expect.stringMatching(/^(network|median)$/),
+        model: 'kinhue-repair',
+        weightsSha256: expect.stringMatching(/^[0-9a-f]{64}$/),
+        detection: expect.stringMatching(/^(network|confirmed)$/),
+        threshold: expect.any(Number),
+        fill: expect.stringMatching(/^(network|median)$/),
       });
       expect(record.repair.method).toContain('kinhue-repair network');
       expect(record.repair.mask).toBe(`${name}.repair.png`);
@@ -92,7 +109,9 @@ describe('restore --repair', () => {
       }
       expect(changed).toBeGreaterThan(0.5 * record.repair.pixels);
       // The colour result is made from the repaired scan: its L* where repaired follows the repaired scan, not the damage.
-      const result = await sharp(join(out, `${name}${ext}`)).raw().toBuffer({ resolveWithObject: true });
+      const result = await sharp(join(out, `${name}${ext}`))
+        .raw()
+        .toBuffer({ resolveWithObject: true });
       const resultL = greyToLightness(new Uint8Array(result.data), result.info.channels as 3);
       const repairedL = greyToLightness(depth === 16 ? (repaired.data as Uint16Array) : (repaired.data as Uint8Array), 1);
       let far = 0;
@@ -120,7 +139,11 @@ describe('restore --repair', () => {
     expect(record.settings.repair).toBeUndefined();
     await expect(readFile(join(plain, 'dusty.repair.png'))).rejects.toThrow();
     const cli = join(root, 'cli');
-    const run = spawnSync(process.execPath, [BIN, 'restore', join(scans, 'dusty.png'), '--out', cli, '--model', modelDir, '--jobs', '1', '--work-size', '64', '--repair'], { encoding: 'utf8' });
+    const run = spawnSync(
+      process.execPath,
+      [BIN, 'restore', join(scans, 'dusty.png'), '--out', cli, '--model', modelDir, '--jobs', '1', '--work-size', '64', '--repair'],
+      { encoding: 'utf8' },
+    );
     expect(run.status, run.stderr).toBe(0);
     const cliRecord = JSON.parse(await readFile(join(cli, 'dusty.kinhue.json'), 'utf8'));
     expect(cliRecord.repair.pixels).toBeGreaterThan(0);

@@ -19,10 +19,16 @@ let root: string;
 let modelDir: string;
 
 async function sha(path: string): Promise<string> {
-  return createHash('sha256').update(await readFile(path)).digest('hex');
+  return createHash('sha256')
+    .update(await readFile(path))
+    .digest('hex');
 }
 
-function cli(args: string[], env: NodeJS.ProcessEnv = {}, prefix: string[] = []): { status: number | null; stdout: string; stderr: string } {
+function cli(
+  args: string[],
+  env: NodeJS.ProcessEnv = {},
+  prefix: string[] = [],
+): { status: number | null; stdout: string; stderr: string } {
   const command = prefix.length ? prefix[0]! : process.execPath;
   const argv = prefix.length ? [...prefix.slice(1), process.execPath, BIN, ...args] : [BIN, ...args];
   const r = spawnSync(command, argv, { encoding: 'utf8', timeout: 120_000, env: { ...process.env, ...env } });
@@ -71,7 +77,10 @@ describe('an output never replaces an input', () => {
     await greyPng(join(scans, 'a.png'));
     const before = await sha(join(scans, 'a.png'));
     const script = `mount --bind "$1" "$2" && exec "$3" "$4" restore "$1" --out "$2" --model "$5" --jobs 1`;
-    const r = spawnSync('unshare', ['-m', 'sh', '-c', script, 'sh', scans, alias, process.execPath, BIN, modelDir], { encoding: 'utf8', timeout: 120_000 });
+    const r = spawnSync('unshare', ['-m', 'sh', '-c', script, 'sh', scans, alias, process.execPath, BIN, modelDir], {
+      encoding: 'utf8',
+      timeout: 120_000,
+    });
     expect(r.status, r.stderr).toBe(2);
     expect(r.stderr).toMatch(/is the output folder/);
     expect(await sha(join(scans, 'a.png'))).toBe(before);
@@ -93,7 +102,10 @@ describe('an output never replaces an input', () => {
 
     const summary = await run([join(top, 'scans'), join(top, 'other')], out);
     expect(summary.done).toBe(1);
-    expect(summary.failed.map((f) => [f.rel, f.code])).toEqual([['other/c.png', 'KH_OUTPUT_ON_INPUT'], ['scans/a.png', 'KH_OUTPUT_ON_INPUT']]);
+    expect(summary.failed.map((f) => [f.rel, f.code])).toEqual([
+      ['other/c.png', 'KH_OUTPUT_ON_INPUT'],
+      ['scans/a.png', 'KH_OUTPUT_ON_INPUT'],
+    ]);
     expect(summary.failed[0]!.message).toContain(join(top, 'other', 'c.png'));
     expect(summary.failed[0]!.hint).toMatch(/--out/);
     expect(await Promise.all(['scans/a.png', 'other/b.png', 'other/c.png'].map((f) => sha(join(top, f))))).toEqual(before);
@@ -117,12 +129,28 @@ describe('what was not done is reported', () => {
     await symlink(join(scans, 'gone.png'), join(scans, 'broken.png'));
     await symlink(join(scans, 'loop-b.png'), join(scans, 'loop-a.png'));
     await symlink(join(scans, 'loop-a.png'), join(scans, 'loop-b.png'));
-    const r = cli(['restore', join(scans, 'a.png'), join(scans, 'broken.png'), join(scans, 'loop-a.png'), '--out', join(root, 'named-out'),
-      '--model', modelDir, '--work-size', '64', '--jobs', '1', '--json']);
+    const r = cli([
+      'restore',
+      join(scans, 'a.png'),
+      join(scans, 'broken.png'),
+      join(scans, 'loop-a.png'),
+      '--out',
+      join(root, 'named-out'),
+      '--model',
+      modelDir,
+      '--work-size',
+      '64',
+      '--jobs',
+      '1',
+      '--json',
+    ]);
     expect(r.status, r.stderr).toBe(1);
     const summary = JSON.parse(r.stdout);
     expect(summary).toMatchObject({ done: 1, total: 3 });
-    expect(summary.failed.map((f: { rel: string; code: string }) => [f.rel, f.code])).toEqual([['broken.png', 'KH_UNREADABLE'], ['loop-a.png', 'KH_UNREADABLE']]);
+    expect(summary.failed.map((f: { rel: string; code: string }) => [f.rel, f.code])).toEqual([
+      ['broken.png', 'KH_UNREADABLE'],
+      ['loop-a.png', 'KH_UNREADABLE'],
+    ]);
     expect(r.stderr).toMatch(/failed: broken\.png: KH_UNREADABLE .*does not exist/);
   });
 
@@ -144,7 +172,13 @@ describe('what was not done is reported', () => {
       expect(r.status, r.stderr).toBe(1);
       const summary = JSON.parse(r.stdout);
       expect(summary.done).toBe(1);
-      expect(summary.failed).toEqual([expect.objectContaining({ rel: 'locked', code: 'KH_UNREADABLE', message: expect.stringMatching(/folder cannot be read \(permission denied\)/) })]);
+      expect(summary.failed).toEqual([
+        expect.objectContaining({
+          rel: 'locked',
+          code: 'KH_UNREADABLE',
+          message: expect.stringMatching(/folder cannot be read \(permission denied\)/),
+        }),
+      ]);
     } finally {
       await chmod(join(scans, 'locked'), 0o755);
     }
@@ -155,16 +189,38 @@ describe('what was not done is reported', () => {
     await mkdir(scans);
     await greyPng(join(scans, 'a.png'));
     await greyPng(join(scans, 'b.png'));
-    await writeFile(join(scans, 'a.hints.json'), '{"format": "kinhue-hints", "version": 1, "image": {"width": 64, "height": 48}, "entries": [');
-    await writeFile(join(scans, 'b.hints.json'), JSON.stringify({ format: 'kinhue-hints', version: 99, image: { width: 64, height: 48 }, entries: [] }));
+    await writeFile(
+      join(scans, 'a.hints.json'),
+      '{"format": "kinhue-hints", "version": 1, "image": {"width": 64, "height": 48}, "entries": [',
+    );
+    await writeFile(
+      join(scans, 'b.hints.json'),
+      JSON.stringify({ format: 'kinhue-hints', version: 99, image: { width: 64, height: 48 }, entries: [] }),
+    );
     const missing = join(root, 'no-such-hints');
-    const r = cli(['restore', scans, '--out', join(root, 'hinted-out'), '--hints', missing, '--model', modelDir, '--work-size', '64', '--jobs', '1', '--json']);
+    const r = cli([
+      'restore',
+      scans,
+      '--out',
+      join(root, 'hinted-out'),
+      '--hints',
+      missing,
+      '--model',
+      modelDir,
+      '--work-size',
+      '64',
+      '--jobs',
+      '1',
+      '--json',
+    ]);
     expect(r.status, r.stderr).toBe(4);
     const summary = JSON.parse(r.stdout) as RestoreSummary;
     expect(summary.done).toBe(2);
     expect(summary.failed).toEqual([]);
     expect(summary.hintsNotUsed.map((h) => [h.rel ?? null, h.file])).toEqual([
-      [null, missing], ['a.png', join(scans, 'a.hints.json')], ['b.png', join(scans, 'b.hints.json')],
+      [null, missing],
+      ['a.png', join(scans, 'a.hints.json')],
+      ['b.png', join(scans, 'b.hints.json')],
     ]);
     expect(summary.hintsNotUsed[0]!.reason).toMatch(/does not exist/);
     const text = formatSummary(summary);
@@ -190,7 +246,7 @@ describe('what was not done is reported', () => {
     expect((await loadManifest(manifest)).notes).toEqual([expect.stringMatching(/line 1 is not a record/)]);
   });
 
-  it('refuses to replace another album\'s result under the same name unless --force', async () => {
+  it("refuses to replace another album's result under the same name unless --force", async () => {
     const albumA = join(root, 'album-a');
     const albumB = join(root, 'album-b');
     const moved = join(root, 'album-a-moved');
@@ -204,7 +260,9 @@ describe('what was not done is reported', () => {
 
     const other = await run([albumB], out);
     expect(other.done).toBe(0);
-    expect(other.failed).toEqual([expect.objectContaining({ rel: 'p1.png', code: 'KH_OUTPUT_CONFLICT', message: expect.stringContaining(join(albumA, 'p1.png')) })]);
+    expect(other.failed).toEqual([
+      expect.objectContaining({ rel: 'p1.png', code: 'KH_OUTPUT_CONFLICT', message: expect.stringContaining(join(albumA, 'p1.png')) }),
+    ]);
     expect(other.failed[0]!.hint).toMatch(/--force/);
     expect(await sha(join(out, 'p1.png'))).toBe(first);
     expect((await readManifest(join(out, 'kinhue-run.jsonl'))).get('p1.png')?.source).toBe(join(albumA, 'p1.png'));
@@ -243,7 +301,9 @@ describe('files on disk', () => {
     await mkdir(join(out, 'a.kinhue.json'), { recursive: true }); // a folder where the record must go
     const summary = await run([scans], out);
     expect((await readdir(out)).sort()).toEqual(['a.kinhue.json', 'kinhue-run.jsonl']); // no image or map without its record
-    expect(summary.failed).toEqual([expect.objectContaining({ rel: 'a.png', code: 'KH_WRITE_FAILED', message: 'a folder of that name is in the way' })]);
+    expect(summary.failed).toEqual([
+      expect.objectContaining({ rel: 'a.png', code: 'KH_WRITE_FAILED', message: 'a folder of that name is in the way' }),
+    ]);
   });
 
   it('removes temporary files of processes that are gone, and keeps those of a running one', async () => {
@@ -269,7 +329,9 @@ describe('stop signals', () => {
     const out = join(root, `signal-${signal}-out`);
     await mkdir(scans);
     for (let i = 0; i < 4; i++) await greyPng(join(scans, `p${i}.png`), 160, 120, i);
-    const child = spawn(process.execPath, [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--work-size', '64', '--jobs', '1'], { stdio: ['ignore', 'pipe', 'pipe'] });
+    const child = spawn(process.execPath, [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--work-size', '64', '--jobs', '1'], {
+      stdio: ['ignore', 'pipe', 'pipe'],
+    });
     let stderr = '';
     let sent = false;
     const exit = new Promise<number | null>((resolve) => child.on('exit', (code) => resolve(code)));

@@ -30,12 +30,17 @@ function scene(width: number, height: number, max: number): number[] {
 }
 
 async function grey8Png(path: string, w = 96, h = 64): Promise<void> {
-  await sharp(Uint8Array.from(scene(w, h, 255)), { raw: { width: w, height: h, channels: 1 } }).toColourspace('b-w').png().toFile(path);
+  await sharp(Uint8Array.from(scene(w, h, 255)), { raw: { width: w, height: h, channels: 1 } })
+    .toColourspace('b-w')
+    .png()
+    .toFile(path);
 }
 
 async function grey16Tiff(path: string, w = 80, h = 60): Promise<void> {
   await sharp(Uint16Array.from(scene(w, h, 65535)), { raw: { width: w, height: h, channels: 1 } })
-    .toColourspace('grey16').tiff({ compression: 'deflate' }).toFile(path);
+    .toColourspace('grey16')
+    .tiff({ compression: 'deflate' })
+    .toFile(path);
 }
 
 /** A sepia-toned print: grey scene times a warm tint, RGB. */
@@ -47,11 +52,15 @@ async function tonedPng(path: string, w = 90, h = 60): Promise<void> {
     rgb[i * 3 + 1] = Math.round(v * 0.86 + 8);
     rgb[i * 3 + 2] = Math.round(v * 0.68);
   });
-  await sharp(rgb, { raw: { width: w, height: h, channels: 3 } }).png().toFile(path);
+  await sharp(rgb, { raw: { width: w, height: h, channels: 3 } })
+    .png()
+    .toFile(path);
 }
 
 async function sha(path: string): Promise<string> {
-  return createHash('sha256').update(await readFile(path)).digest('hex');
+  return createHash('sha256')
+    .update(await readFile(path))
+    .digest('hex');
 }
 
 /** L* per pixel by libvips' own CIELAB conversion (independent of kinhue's colour module). */
@@ -64,7 +73,8 @@ async function vipsLightness(path: string): Promise<Float32Array> {
 }
 
 function lightnessDiff(x: Float32Array, y: Float32Array): { mean: number; worst: number } {
-  let sum = 0, worst = 0;
+  let sum = 0,
+    worst = 0;
   for (let i = 0; i < x.length; i++) {
     const d = Math.abs(x[i]! - y[i]!);
     sum += d;
@@ -116,14 +126,11 @@ describe('restore: invariants, failures and resume', () => {
     const before = await hashTree(scans);
 
     const events: RestoreEvent[] = [];
-    const summary = await restore(
-      { inputs: [scans], out, model: modelDir, jobs: 2, workSize: 64, maxPixels: 20_000 },
-      (e) => {
-        events.push(e);
-        // Unreadable: the file goes away after discovery, as on a share that drops.
-        if (e.type === 'plan') void unlink(join(scans, 'vanishing.png'));
-      },
-    );
+    const summary = await restore({ inputs: [scans], out, model: modelDir, jobs: 2, workSize: 64, maxPixels: 20_000 }, (e) => {
+      events.push(e);
+      // Unreadable: the file goes away after discovery, as on a share that drops.
+      if (e.type === 'plan') void unlink(join(scans, 'vanishing.png'));
+    });
     expect(summary.total).toBe(8);
     expect(summary.done).toBe(3);
     const codes = Object.fromEntries(summary.failed.map((f) => [f.rel, f.code]));
@@ -170,7 +177,11 @@ describe('restore: invariants, failures and resume', () => {
     expect(record.tone.name).toBe('sepia');
     expect(record.model.name).toBe('test-untrained');
     expect(record.model.weightsSha256).toMatch(/^[0-9a-f]{64}$/);
-    expect(record.model.topologySha256).toBe(createHash('sha256').update(await readFile(join(modelDir, 'model.json'))).digest('hex'));
+    expect(record.model.topologySha256).toBe(
+      createHash('sha256')
+        .update(await readFile(join(modelDir, 'model.json')))
+        .digest('hex'),
+    );
     expect(record.settings).toMatchObject({ workSize: 64, format: 'same' });
     expect(record.backend).toBeTruthy();
     expect(record.meanConfidence).toBeGreaterThanOrEqual(0);
@@ -199,7 +210,14 @@ describe('restore: invariants, failures and resume', () => {
     expect(manifest.get('text.jpg')?.status).toBe('failed');
 
     // Changed settings redo everything; --force does too.
-    const third = await restore({ inputs: [join(scans, 'grey8.png')], out: join(root, 'single'), model: modelDir, jobs: 1, workSize: 64, format: 'jpeg' });
+    const third = await restore({
+      inputs: [join(scans, 'grey8.png')],
+      out: join(root, 'single'),
+      model: modelDir,
+      jobs: 1,
+      workSize: 64,
+      format: 'jpeg',
+    });
     expect(third.done).toBe(1);
     expect((await sharp(join(root, 'single', 'grey8.jpg')).metadata()).format).toBe('jpeg');
   });
@@ -254,7 +272,20 @@ describe('restore CLI', () => {
     await mkdir(scans, { recursive: true });
     await grey8Png(join(scans, 'a.png'));
     await writeFile(join(scans, 'b.jpg'), 'not an image');
-    const r = cli(['restore', scans, '--out', join(root, 'json-out'), '--model', modelDir, '--work-size', '64', '--jobs', '1', '--json', '--verbose']);
+    const r = cli([
+      'restore',
+      scans,
+      '--out',
+      join(root, 'json-out'),
+      '--model',
+      modelDir,
+      '--work-size',
+      '64',
+      '--jobs',
+      '1',
+      '--json',
+      '--verbose',
+    ]);
     expect(r.status).toBe(1);
     const summary = JSON.parse(r.stdout);
     expect(summary).toMatchObject({ total: 2, done: 1, failed: [{ rel: 'b.jpg', code: 'KH_NOT_AN_IMAGE' }] });

@@ -55,7 +55,12 @@ describe('skin prior on a synthetic portrait', () => {
     const [ab, bb] = at(40, 60);
     expect(Math.hypot(ab - -20, bb - 10)).toBeLessThan(1);
     // Outside the ellipse: untouched, bit for bit.
-    for (const [x, y] of [[2, 2], [77, 40], [40, 78], [10, 70]] as const) {
+    for (const [x, y] of [
+      [2, 2],
+      [77, 40],
+      [40, 78],
+      [10, 70],
+    ] as const) {
       expect(at(x, y)).toEqual([-20, 10]);
     }
     expect(out.record.faces).toHaveLength(1);
@@ -115,9 +120,15 @@ describe('face finder (BlazeFace, shipped in models/face-finder) on the demo alb
     const faces = findFaces(finder, couple.L, couple.width, couple.height);
     expect(faces).toHaveLength(2);
     // Face centres marked by eye on the photo (fractions of width and height): her face, his face.
-    const marked: [number, number][] = [[0.345, 0.27], [0.585, 0.22]];
+    const marked: [number, number][] = [
+      [0.345, 0.27],
+      [0.585, 0.22],
+    ];
     for (const [mx, my] of marked) {
-      expect(faces.some((f) => Math.hypot(centre(f)[0] - mx, centre(f)[1] - my) < 0.05), `a face near ${mx}, ${my}`).toBe(true);
+      expect(
+        faces.some((f) => Math.hypot(centre(f)[0] - mx, centre(f)[1] - my) < 0.05),
+        `a face near ${mx}, ${my}`,
+      ).toBe(true);
     }
     const ada = await lightnessOf(join(SCANS, 'wrenfold-09-cousin-ada.jpg'));
     const one = findFaces(finder, ada.L, ada.width, ada.height);
@@ -126,8 +137,13 @@ describe('face finder (BlazeFace, shipped in models/face-finder) on the demo alb
   });
 
   it.each([
-    'wrenfold-01-hill-pasture.jpg', 'wrenfold-02-spaniels.jpg', 'wrenfold-03-new-calf.jpg', 'wrenfold-04-hill-pony.jpg',
-    'wrenfold-05-billy-goat.jpg', 'wrenfold-06-gosling.tif', 'wrenfold-07-orchard-clocks.jpg',
+    'wrenfold-01-hill-pasture.jpg',
+    'wrenfold-02-spaniels.jpg',
+    'wrenfold-03-new-calf.jpg',
+    'wrenfold-04-hill-pony.jpg',
+    'wrenfold-05-billy-goat.jpg',
+    'wrenfold-06-gosling.tif',
+    'wrenfold-07-orchard-clocks.jpg',
   ])('finds no face in %s (landscapes, animals, flowers), at full size or at a working size', async (name) => {
     for (const size of [undefined, 512, 320]) {
       const scan = await lightnessOf(join(SCANS, name), size);
@@ -162,7 +178,9 @@ describe('restore with the skin prior', () => {
   });
 
   it('records the faces it gave a skin hue, in the record, the warnings and the XMP; --no-skin turns it off', async () => {
-    const on = spawnSync(process.execPath, [BIN, 'restore', join(root, 'scans'), '--out', join(root, 'on'), '--jobs', '1'], { encoding: 'utf8' });
+    const on = spawnSync(process.execPath, [BIN, 'restore', join(root, 'scans'), '--out', join(root, 'on'), '--jobs', '1'], {
+      encoding: 'utf8',
+    });
     expect(on.status, on.stderr).toBe(0);
     const record = JSON.parse(await readFile(join(root, 'on', 'couple.kinhue.json'), 'utf8'));
     expect(record.guidance.skin.faces).toHaveLength(2);
@@ -172,7 +190,9 @@ describe('restore with the skin prior', () => {
     const image = await readFile(join(root, 'on', 'couple.jpg'));
     expect(image.toString('latin1')).toContain('<kinhue:skinPriorFaces>2</kinhue:skinPriorFaces>');
 
-    const off = spawnSync(process.execPath, [BIN, 'restore', join(root, 'scans'), '--out', join(root, 'off'), '--jobs', '1', '--no-skin'], { encoding: 'utf8' });
+    const off = spawnSync(process.execPath, [BIN, 'restore', join(root, 'scans'), '--out', join(root, 'off'), '--jobs', '1', '--no-skin'], {
+      encoding: 'utf8',
+    });
     expect(off.status, off.stderr).toBe(0);
     const plain = JSON.parse(await readFile(join(root, 'off', 'couple.kinhue.json'), 'utf8'));
     expect(plain.guidance).toBeUndefined();

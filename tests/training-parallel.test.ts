@@ -97,12 +97,18 @@ describe('parallel trainer', () => {
         expect(worstRelative(whole, shared)).toBeLessThan(1e-5);
         expect(Math.abs(shared.loss - whole.loss) / whole.loss).toBeLessThan(1e-5);
         // Each shard on its own is far from the whole: the comparison means something.
-        const first = createGradientComputer(net, { classWeights, names: trainer.names }).compute(d.L.slice(0, 2 * S * S), d.ab.slice(0, 4 * S * S), 2, S, S,
+        const first = createGradientComputer(net, { classWeights, names: trainer.names }).compute(
+          d.L.slice(0, 2 * S * S),
+          d.ab.slice(0, 4 * S * S),
+          2,
+          S,
+          S,
           d.borrowed && {
             features8: d.borrowed.features8.slice(0, 2 * 16 * BACKBONE_CHANNELS.local8),
             features16: d.borrowed.features16.slice(0, 2 * 4 * BACKBONE_CHANNELS.local16),
             scene: d.borrowed.scene.slice(0, 2 * 4 * BACKBONE_CHANNELS.global),
-          });
+          },
+        );
         expect(worstRelative(whole, first)).toBeGreaterThan(1e-3);
       } finally {
         await parallel.close();
@@ -125,7 +131,9 @@ describe('parallel trainer', () => {
           const d = batch(4, 20 + i, false);
           await parallel.step(d.L, d.ab, 4, S, S);
         }
-        encoderLayerNames(net).forEach((n, i) => expect(Array.from(net.getLayer(n).getWeights()[0]!.dataSync())).toEqual(Array.from(encoder[i]!)));
+        encoderLayerNames(net).forEach((n, i) =>
+          expect(Array.from(net.getLayer(n).getWeights()[0]!.dataSync())).toEqual(Array.from(encoder[i]!)),
+        );
         expect(Array.from(net.getLayer('logits').getWeights()[0]!.dataSync())).not.toEqual(Array.from(head));
         expect(trainer.steps).toBe(3);
         return net.getWeights().map((w) => Float32Array.from(w.dataSync() as Float32Array));
@@ -164,7 +172,10 @@ describe('parallel trainer', () => {
 
 describe('kinhue train with worker threads, as a process', () => {
   /** Runs the CLI; `onStderr` sees stderr so far, as it comes. Resolves with the exit code and output. */
-  function run(args: string[], onStderr: (text: string, child: ReturnType<typeof spawn>) => void = () => {}): Promise<{ code: number | null; stdout: string; stderr: string }> {
+  function run(
+    args: string[],
+    onStderr: (text: string, child: ReturnType<typeof spawn>) => void = () => {},
+  ): Promise<{ code: number | null; stdout: string; stderr: string }> {
     const child = spawn(process.execPath, [BIN, ...args], { stdio: ['ignore', 'pipe', 'pipe'] });
     let stdout = '';
     let stderr = '';
@@ -188,12 +199,15 @@ describe('kinhue train with worker threads, as a process', () => {
   it('stops after the step on Ctrl-C, writes its checkpoint and ends, workers and all', async () => {
     const out = join(dir, 'sigint');
     let sent = false;
-    const r = await run(['train', await writeSkyGrassPhotos(join(dir, 'photos')), '--out', out, '--steps', '100000', ...common], (text, child) => {
-      if (!sent && /on 2 worker threads/.test(text)) {
-        sent = true;
-        child.kill('SIGINT');
-      }
-    });
+    const r = await run(
+      ['train', await writeSkyGrassPhotos(join(dir, 'photos')), '--out', out, '--steps', '100000', ...common],
+      (text, child) => {
+        if (!sent && /on 2 worker threads/.test(text)) {
+          sent = true;
+          child.kill('SIGINT');
+        }
+      },
+    );
     expect(r.code).toBe(130); // stopped early, as restore reports it
     expect(r.stdout).toMatch(/interrupted; continue with --resume/);
     const summary = JSON.parse(await readFile(join(out, SUMMARY_FILE), 'utf8'));
@@ -206,12 +220,25 @@ describe('kinhue train with worker threads, as a process', () => {
     const out = join(dir, 'failing');
     let blocked = false;
     // A folder where the checkpoint goes: the first checkpoint (due after every step) cannot be written.
-    const r = await run(['train', await writeSkyGrassPhotos(join(dir, 'photos')), '--out', out, '--steps', '100000', '--checkpoint-minutes', '0.0001', ...common], (text) => {
-      if (!blocked && /on 2 worker threads/.test(text)) {
-        blocked = true;
-        void mkdir(join(out, CHECKPOINT_FILE, 'in-the-way'), { recursive: true });
-      }
-    });
+    const r = await run(
+      [
+        'train',
+        await writeSkyGrassPhotos(join(dir, 'photos')),
+        '--out',
+        out,
+        '--steps',
+        '100000',
+        '--checkpoint-minutes',
+        '0.0001',
+        ...common,
+      ],
+      (text) => {
+        if (!blocked && /on 2 worker threads/.test(text)) {
+          blocked = true;
+          void mkdir(join(out, CHECKPOINT_FILE, 'in-the-way'), { recursive: true });
+        }
+      },
+    );
     expect(blocked).toBe(true);
     expect(r.code).not.toBe(0);
     expect(r.code).not.toBeNull();

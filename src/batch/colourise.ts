@@ -3,7 +3,16 @@
  * guides, and the full-resolution grid of render. Used by scoring (whole planes), so a score describes
  * what restore does.
  */
-import { fitInside, greyToLightness, lightnessToGrey, limitChroma, resizePlane, shrinkPlane, sliceRows, type Guide } from '../colour/index.js';
+import {
+  fitInside,
+  greyToLightness,
+  lightnessToGrey,
+  limitChroma,
+  resizePlane,
+  shrinkPlane,
+  sliceRows,
+  type Guide,
+} from '../colour/index.js';
 import type { FaceFinder, KinhueModel } from '../model/index.js';
 import { applyGuides, skinGuide } from './stages/guide.js';
 import { predictColour, type PredictSettings } from './stages/predict.js';

@@ -14,11 +14,18 @@ export async function fileSha256(path: string): Promise<string> {
     for await (const chunk of createReadStream(path, { highWaterMark: 1 << 20 })) hash.update(chunk as Buffer);
   } catch (error) {
     const code = (error as NodeJS.ErrnoException).code;
-    throw new InputError(ErrorCodes.UNREADABLE, code === 'EACCES' || code === 'EPERM' ? 'permission denied' : `cannot be read (${code ?? String(error)})`, {
-      file: path,
-      hint: code === 'EACCES' || code === 'EPERM' ? 'give your user read permission on the file, then run again' : 'check the path and that the drive or share is available, then run again',
-      cause: error,
-    });
+    throw new InputError(
+      ErrorCodes.UNREADABLE,
+      code === 'EACCES' || code === 'EPERM' ? 'permission denied' : `cannot be read (${code ?? String(error)})`,
+      {
+        file: path,
+        hint:
+          code === 'EACCES' || code === 'EPERM'
+            ? 'give your user read permission on the file, then run again'
+            : 'check the path and that the drive or share is available, then run again',
+        cause: error,
+      },
+    );
   }
   return hash.digest('hex');
 }

@@ -29,7 +29,13 @@ export interface ModelInfo {
 export async function readModelInfo(dir: string): Promise<ModelInfo> {
   const { meta, topologySha256, warnings } = await readModelFiles(dir);
   return {
-    dir: resolve(dir), name: meta.name, weightsSha256: meta.weightsSha256, topologySha256,
-    decoding: meta.decoding, temperature: meta.temperature, workingSize: meta.workingSize, warnings,
+    dir: resolve(dir),
+    name: meta.name,
+    weightsSha256: meta.weightsSha256,
+    topologySha256,
+    decoding: meta.decoding,
+    temperature: meta.temperature,
+    workingSize: meta.workingSize,
+    warnings,
   };
 }

@@ -97,27 +97,38 @@ export function partFromScheduler(scheduler: Scheduler, env: NodeJS.ProcessEnv, 
   if (scheduler === 'slurm') {
     const id = whole('SLURM_ARRAY_TASK_ID');
     if (id === undefined) {
-      throw new UsageError('--part-from slurm: SLURM_ARRAY_TASK_ID is not set, so this is not a task of a Slurm job array',
-        'submit the script as an array, sbatch --array=1-N, or give the part with --part K/N');
+      throw new UsageError(
+        '--part-from slurm: SLURM_ARRAY_TASK_ID is not set, so this is not a task of a Slurm job array',
+        'submit the script as an array, sbatch --array=1-N, or give the part with --part K/N',
+      );
     }
     const tasks = count ?? whole('SLURM_ARRAY_TASK_COUNT');
-    if (tasks === undefined) throw new UsageError('--part-from slurm: SLURM_ARRAY_TASK_COUNT is not set', 'give the number of parts with --part-count N');
+    if (tasks === undefined)
+      throw new UsageError('--part-from slurm: SLURM_ARRAY_TASK_COUNT is not set', 'give the number of parts with --part-count N');
     if (id === 0) {
-      throw new UsageError('--part-from slurm: array task 0: parts are counted from 1',
-        'number the array from 1 (#SBATCH --array=1-N), so that task K restores part K');
+      throw new UsageError(
+        '--part-from slurm: array task 0: parts are counted from 1',
+        'number the array from 1 (#SBATCH --array=1-N), so that task K restores part K',
+      );
     }
-    return checkedPart(id, tasks, `--part-from slurm (task ${id} of ${tasks})`,
+    return checkedPart(
+      id,
+      tasks,
+      `--part-from slurm (task ${id} of ${tasks})`,
       count === undefined && id > tasks
         ? 'a task resubmitted alone (sbatch --array=K) is an array of one: give the number of parts with --part-count N'
-        : undefined);
+        : undefined,
+    );
   }
   const index = whole('JOB_COMPLETION_INDEX');
   if (index === undefined) {
-    throw new UsageError('--part-from kubernetes: JOB_COMPLETION_INDEX is not set, so this is not a pod of an Indexed Job',
-      'run it from a Job with completionMode: Indexed, or give the part with --part K/N');
+    throw new UsageError(
+      '--part-from kubernetes: JOB_COMPLETION_INDEX is not set, so this is not a pod of an Indexed Job',
+      'run it from a Job with completionMode: Indexed, or give the part with --part K/N',
+    );
   }
   if (count === undefined) {
-    throw new UsageError('--part-from kubernetes needs the number of parts', 'add --part-count N, N being the Job\'s completions');
+    throw new UsageError('--part-from kubernetes needs the number of parts', "add --part-count N, N being the Job's completions");
   }
   return checkedPart(index + 1, count, `--part-from kubernetes (completion index ${index}, ${count} parts)`);
 }

@@ -76,23 +76,51 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
   const skipped = files.filter((f) => f.action === 'skip').length;
   if (!options.dryRun) {
     await mkdir(outDir, { recursive: true }).catch((error: unknown) => {
-      throw new UsageError(`the output folder ${options.out} could not be created (${(error as Error).message})`, 'choose a writable --out folder');
+      throw new UsageError(
+        `the output folder ${options.out} could not be created (${(error as Error).message})`,
+        'choose a writable --out folder',
+      );
     });
     if (plan.manifest.torn) await terminateManifest(manifestPath);
     await appendManifest(manifestPath, {
       time: new Date().toISOString(),
-      start: { part: plan.part, host: plan.host, pid: process.pid, files: todo.length + skipped, all: plan.found, toRun: todo.length, settings: key },
+      start: {
+        part: plan.part,
+        host: plan.host,
+        pid: process.pid,
+        files: todo.length + skipped,
+        all: plan.found,
+        toRun: todo.length,
+        settings: key,
+      },
     });
     notes.push(...(await removeLeftovers(outDir, files, todo)));
   }
   onEvent({ type: 'plan', files, toRun: todo.length, skipped, outDir, notes, failures });
 
   const summary: RestoreSummary = {
-    outDir, manifest: manifestPath, part: plan.part, found: plan.found, total: files.length + plan.problems,
-    done: 0, skipped, failed: failures, hintsNotUsed: plan.hintsNotUsed,
-    notRun: 0, interrupted: false, dryRun: Boolean(options.dryRun), seconds: 0,
-    model: { dir: plan.model.dir, name: plan.model.name, weightsSha256: plan.model.weightsSha256, topologySha256: plan.model.topologySha256 },
-    settings, files, notes,
+    outDir,
+    manifest: manifestPath,
+    part: plan.part,
+    found: plan.found,
+    total: files.length + plan.problems,
+    done: 0,
+    skipped,
+    failed: failures,
+    hintsNotUsed: plan.hintsNotUsed,
+    notRun: 0,
+    interrupted: false,
+    dryRun: Boolean(options.dryRun),
+    seconds: 0,
+    model: {
+      dir: plan.model.dir,
+      name: plan.model.name,
+      weightsSha256: plan.model.weightsSha256,
+      topologySha256: plan.model.topologySha256,
+    },
+    settings,
+    files,
+    notes,
   };
   if (options.dryRun || todo.length === 0) {
     summary.notRun = options.dryRun ? todo.length : 0;
@@ -139,8 +167,14 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
       summary.done++;
       file.status = 'done';
       onEvent({
-        type: 'done', rel: file.rel, output: file.outputs.image, seconds: outcome.seconds,
-        done: summary.done, failed: summary.failed.length, total: todo.length, warnings: outcome.record.warnings,
+        type: 'done',
+        rel: file.rel,
+        output: file.outputs.image,
+        seconds: outcome.seconds,
+        done: summary.done,
+        failed: summary.failed.length,
+        total: todo.length,
+        warnings: outcome.record.warnings,
       });
     } catch (error) {
       if (hard) return; // unfinished, not failed: the next run does it again
@@ -211,7 +245,13 @@ async function removeLeftovers(outDir: string, files: PlannedFile[], todo: Plann
 /** The plan entry as a worker restores it. */
 function jobOf(plan: RestorePlan, file: PlannedFile): FileJob {
   return {
-    source: file.source, rel: file.rel, outDir: plan.outDir, outputs: file.outputs, settings: plan.settings, hints: file.hints, maxPixels: plan.maxPixels,
+    source: file.source,
+    rel: file.rel,
+    outDir: plan.outDir,
+    outputs: file.outputs,
+    settings: plan.settings,
+    hints: file.hints,
+    maxPixels: plan.maxPixels,
   };
 }
 

@@ -63,7 +63,9 @@ export async function loadRunFolder(folder: string, own?: string): Promise<RunFo
     const code = (error as NodeJS.ErrnoException).code;
     if (code !== 'ENOENT') {
       throw new KinhueError(ErrorCodes.UNREADABLE, `the output folder could not be read (${code ?? (error as Error).message})`, {
-        file: folder, hint: 'check its permissions, or choose another --out folder', cause: error,
+        file: folder,
+        hint: 'check its permissions, or choose another --out folder',
+        cause: error,
       });
     }
     names = [];
@@ -74,7 +76,8 @@ export async function loadRunFolder(folder: string, own?: string): Promise<RunFo
     const match = PART_MANIFEST.exec(name);
     const path = join(folder, name);
     manifests.push({
-      name, path,
+      name,
+      path,
       part: match ? { index: Number(match[1]), count: Number(match[2]) } : null,
       host: match ? match[3]! : null,
       contents: await loadManifest(path, { growing: name !== own }),

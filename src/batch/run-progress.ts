@@ -51,7 +51,8 @@ interface Start {
   history: ManifestRecord[];
 }
 
-const latest = <T extends { time: string }>(xs: T[]): T | undefined => xs.reduce<T | undefined>((a, x) => (!a || x.time >= a.time ? x : a), undefined);
+const latest = <T extends { time: string }>(xs: T[]): T | undefined =>
+  xs.reduce<T | undefined>((a, x) => (!a || x.time >= a.time ? x : a), undefined);
 
 /**
  * The progress of the run in a folder read by loadRunFolder, as of `now` (ms since 1970).
@@ -76,7 +77,9 @@ export function runProgress(run: RunFolder, now: number = Date.now()): RunProgre
   const rows: PartProgress[] = [];
   for (let index = 1; index <= (split ?? 1); index++) {
     const part = split ? { index, count: split } : null;
-    const mine = starts.filter((s) => (part ? s.line.start.part?.count === split && s.line.start.part.index === index : !s.line.start.part));
+    const mine = starts.filter((s) =>
+      part ? s.line.start.part?.count === split && s.line.start.part.index === index : !s.line.start.part,
+    );
     const start = latest(mine.map((s) => s.line));
     const records = part ? counted.filter((r) => partOf(r.output, part.count) === index) : counted;
     const done = records.filter((r) => r.status === 'done').length;
@@ -89,7 +92,14 @@ export function runProgress(run: RunFolder, now: number = Date.now()): RunProgre
     const minutes = start ? (until - Date.parse(start.time)) / 60000 : 0;
     const perMinute = since.length && minutes > 0 ? since.length / minutes : null;
     rows.push({
-      part, started: start?.time ?? null, host: start?.start.host ?? null, files, done, failed, pending, perMinute,
+      part,
+      started: start?.time ?? null,
+      host: start?.start.host ?? null,
+      files,
+      done,
+      failed,
+      pending,
+      perMinute,
       secondsLeft: pending === 0 ? 0 : pending !== null && perMinute ? (pending * 60) / perMinute : null,
       lastRecord,
     });
@@ -102,7 +112,18 @@ export function runProgress(run: RunFolder, now: number = Date.now()): RunProgre
   const working = rows.filter((row) => row.pending !== 0 && row.perMinute !== null);
   const perMinute = working.length ? working.reduce((a, row) => a + row.perMinute!, 0) : null;
   return {
-    folder: run.folder, settings, split, parts: rows, notes: run.notes,
-    total: { files, done, failed, pending, perMinute, secondsLeft: pending === 0 ? 0 : pending !== null && perMinute ? (pending * 60) / perMinute : null },
+    folder: run.folder,
+    settings,
+    split,
+    parts: rows,
+    notes: run.notes,
+    total: {
+      files,
+      done,
+      failed,
+      pending,
+      perMinute,
+      secondsLeft: pending === 0 ? 0 : pending !== null && perMinute ? (pending * 60) / perMinute : null,
+    },
   };
 }

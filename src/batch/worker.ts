@@ -33,9 +33,9 @@ async function start(): Promise<void> {
     Promise.resolve(skin ? faceFinder : undefined)
       .then((finder) => restoreFile(message.job, model, { backend, faceFinder: finder }))
       .then(
-      (outcome) => post({ type: 'done', id: message.id, outcome }),
-      (error: unknown) => post({ type: 'failed', id: message.id, error: serialiseError(error) }),
-    );
+        (outcome) => post({ type: 'done', id: message.id, outcome }),
+        (error: unknown) => post({ type: 'failed', id: message.id, error: serialiseError(error) }),
+      );
   });
 }
 

@@ -13,4 +13,13 @@ import { command as tuneCommand } from './commands/tune.js';
  * src/cli/commands/<verb>.ts and exports `command`.
  */
 // eslint-disable-next-line @typescript-eslint/no-explicit-any
-export const commands: CommandModule<any, any>[] = [restoreCommand, progressCommand, hintsCommand, tuneCommand, trainCommand, trainRepairCommand, scoreCommand, sheetCommand];
+export const commands: CommandModule<any, any>[] = [
+  restoreCommand,
+  progressCommand,
+  hintsCommand,
+  tuneCommand,
+  trainCommand,
+  trainRepairCommand,
+  scoreCommand,
+  sheetCommand,
+];

@@ -18,7 +18,8 @@ export const ExitCode = {
 
 /** The exit code for an error that stopped a whole command. An output refused because it is an input stops it before anything is written. */
 export function exitCodeFor(error: unknown): number {
-  if (isKinhueError(error)) return error.code === ErrorCodes.USAGE || error.code === ErrorCodes.OUTPUT_ON_INPUT ? ExitCode.USAGE : ExitCode.SOME_FAILED;
+  if (isKinhueError(error))
+    return error.code === ErrorCodes.USAGE || error.code === ErrorCodes.OUTPUT_ON_INPUT ? ExitCode.USAGE : ExitCode.SOME_FAILED;
   if (error instanceof Error && error.name === 'YError') return ExitCode.USAGE;
   return ExitCode.INTERNAL;
 }

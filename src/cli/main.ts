@@ -22,9 +22,16 @@ export async function main(args: string[]): Promise<void> {
   }
   const parser = yargs(args)
     .scriptName('kinhue')
-    .usage('kinhue <command> [options]\n\nColourise black-and-white photographs offline. A colourised photo is an interpretation, not a record.')
+    .usage(
+      'kinhue <command> [options]\n\nColourise black-and-white photographs offline. A colourised photo is an interpretation, not a record.',
+    )
     .version(VERSION)
-    .option('verbose', { type: 'boolean', default: false, global: true, describe: 'say more: which compute backend runs the model (tfjs-node, onnxruntime, wasm or cpu)' })
+    .option('verbose', {
+      type: 'boolean',
+      default: false,
+      global: true,
+      describe: 'say more: which compute backend runs the model (tfjs-node, onnxruntime, wasm or cpu)',
+    })
     .help()
     .alias('h', 'help')
     .strict()

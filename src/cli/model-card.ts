@@ -15,7 +15,8 @@ import { formatDuration } from './progress.js';
 /** The card's file name inside a model folder. */
 export const MODEL_CARD_FILE = 'MODEL_CARD.md';
 
-const figure = (x: number | null | undefined, decimals = 2): string => (x === null || x === undefined || !Number.isFinite(x) ? '-' : x.toFixed(decimals));
+const figure = (x: number | null | undefined, decimals = 2): string =>
+  x === null || x === undefined || !Number.isFinite(x) ? '-' : x.toFixed(decimals);
 const percent = (x: number | null | undefined): string => (x === null || x === undefined ? '-' : `${x.toFixed(1)}%`);
 
 /** The averages of a score report as a Markdown table, one row per method. */
@@ -50,18 +51,28 @@ function stopped(result: FitResult): string {
  * @example
  *   const { report } = await writeModelCard(result, 'models/kinhue-base', ['family-colour/']);
  */
-export async function writeModelCard(result: FitResult, base: string | undefined, photos: string[]): Promise<{ file: string; report: ScoreReport }> {
+export async function writeModelCard(
+  result: FitResult,
+  base: string | undefined,
+  photos: string[],
+): Promise<{ file: string; report: ScoreReport }> {
   const report = await score({ photos: result.holdoutFiles, models: base ? [base, result.out] : [result.out] });
   const name = basename(result.out);
   const o = result.options;
   const tuned = result.mode === 'tune';
-  const weights = o.classWeightsFrom === 'base'
-    ? `those of ${result.from?.name ?? 'the model tuned from'} (rebalancing ${o.rebalance}), so it chooses colours as that model does`
-    : `from these photos' colours (rebalancing ${o.rebalance})`;
+  const weights =
+    o.classWeightsFrom === 'base'
+      ? `those of ${result.from?.name ?? 'the model tuned from'} (rebalancing ${o.rebalance}), so it chooses colours as that model does`
+      : `from these photos' colours (rebalancing ${o.rebalance})`;
   const files = [
     [TOPOLOGY_FILE, "the network's layout (TensorFlow.js)"],
     [WEIGHTS_FILE, 'its weights'],
-    ...(o.backbone ? [[BACKBONE_TOPOLOGY_FILE, 'the borrowed detector'], [BACKBONE_WEIGHTS_FILE, "the detector's weights"]] : []),
+    ...(o.backbone
+      ? [
+          [BACKBONE_TOPOLOGY_FILE, 'the borrowed detector'],
+          [BACKBONE_WEIGHTS_FILE, "the detector's weights"],
+        ]
+      : []),
     [METADATA_FILE, 'colour bins, decoding, class weights, the training record and the SHA-256 of the files above'],
     [TRAINING_LOG_FILE, 'one line per evaluation on the validation photos'],
     [SUMMARY_FILE, 'the run: photos (names below their folders), settings, figures, why it stopped'],

@@ -82,10 +82,18 @@ export function coreOptions<T>(argv: Partial<CliArgs<T>>, table: OptionTable<T>)
 
 /** Checks shared by several verbs. */
 export const checks = {
-  folder: (flag: string, what: string) => (value: unknown): string | undefined =>
-    typeof value !== 'string' || value.trim() === '' ? `--${flag} needs ${what}` : undefined,
-  wholeNumber: (flag: string, min: number, max: number) => (value: unknown): string | undefined =>
-    Number.isInteger(value) && (value as number) >= min && (value as number) <= max ? undefined : `--${flag} must be a whole number from ${min} to ${max}, got ${value}`,
-  oneOf: (flag: string, choices: readonly string[]) => (value: unknown): string | undefined =>
-    choices.includes(value as string) ? undefined : `--${flag} must be one of ${choices.join(', ')}, got ${value}`,
+  folder:
+    (flag: string, what: string) =>
+    (value: unknown): string | undefined =>
+      typeof value !== 'string' || value.trim() === '' ? `--${flag} needs ${what}` : undefined,
+  wholeNumber:
+    (flag: string, min: number, max: number) =>
+    (value: unknown): string | undefined =>
+      Number.isInteger(value) && (value as number) >= min && (value as number) <= max
+        ? undefined
+        : `--${flag} must be a whole number from ${min} to ${max}, got ${value}`,
+  oneOf:
+    (flag: string, choices: readonly string[]) =>
+    (value: unknown): string | undefined =>
+      choices.includes(value as string) ? undefined : `--${flag} must be one of ${choices.join(', ')}, got ${value}`,
 };

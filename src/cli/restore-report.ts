@@ -13,8 +13,11 @@ import { formatDuration } from './progress.js';
 export function formatPlan(files: PlannedFile[]): string {
   const label = { run: 'run     ', retry: 'retry   ', skip: 'skip    ', conflict: 'conflict', refuse: 'refuse  ' } as const;
   const why = {
-    run: '', retry: '  (failed earlier)', skip: '  (finished earlier, same settings)',
-    conflict: '  (holds another scan\'s result; --force replaces it)', refuse: '  (an output would replace an input)',
+    run: '',
+    retry: '  (failed earlier)',
+    skip: '  (finished earlier, same settings)',
+    conflict: "  (holds another scan's result; --force replaces it)",
+    refuse: '  (an output would replace an input)',
   } as const;
   return files.map((f) => `${label[f.action]}  ${f.rel} -> ${f.outputs.image}${why[f.action]}`).join('\n');
 }
@@ -49,7 +52,9 @@ export function formatSummary(summary: RestoreSummary): string {
     if (summary.skipped) parts.push(`${summary.skipped} skipped (finished earlier)`);
     if (summary.failed.length) parts.push(`${summary.failed.length} failed`);
     if (summary.notRun) parts.push(`${summary.notRun} not run`);
-    lines.push(`kinhue restore${part}: ${parts.join(', ')} of ${summary.total} files in ${formatDuration(summary.seconds)} -> ${summary.outDir}`);
+    lines.push(
+      `kinhue restore${part}: ${parts.join(', ')} of ${summary.total} files in ${formatDuration(summary.seconds)} -> ${summary.outDir}`,
+    );
     if (summary.interrupted) lines.push('stopped early: run the same command again to finish the rest');
   }
   if (summary.failed.length) {

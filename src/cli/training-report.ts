@@ -4,7 +4,17 @@
  */
 import type { Argv } from 'yargs';
 import { UsageError } from '../errors.js';
-import { fit, FIT_OPTIONS, fitDefault, type BestSoFar, type Evaluation, type FitEvent, type FitMode, type FitOptions, type FitResult } from '../training/index.js';
+import {
+  fit,
+  FIT_OPTIONS,
+  fitDefault,
+  type BestSoFar,
+  type Evaluation,
+  type FitEvent,
+  type FitMode,
+  type FitOptions,
+  type FitResult,
+} from '../training/index.js';
 import { ExitCode } from './exit-codes.js';
 import { writeModelCard } from './model-card.js';
 import { formatDuration, Progress } from './progress.js';
@@ -25,11 +35,19 @@ export type FitArgs = { photos: string[] } & Record<string, unknown>;
 
 /** Adds a verb's option table, as {@link FIT_OPTIONS} lists it; the defaults are fit's, shown, not set here. */
 export function fitOptions<T>(yargs: Argv<T>, mode: FitMode): Argv<T & FitArgs> {
-  let table = yargs.positional('photos', { type: 'string', array: true, describe: 'colour photos: files and folders (searched recursively)' });
+  let table = yargs.positional('photos', {
+    type: 'string',
+    array: true,
+    describe: 'colour photos: files and folders (searched recursively)',
+  });
   for (const spec of FIT_OPTIONS) {
     if (!spec.verbs.includes(mode)) continue;
     const shown = spec.defaults?.[mode];
-    table = table.option(spec.flag, { type: spec.type, describe: spec.describe, ...(shown === undefined ? {} : { defaultDescription: String(shown) }) });
+    table = table.option(spec.flag, {
+      type: spec.type,
+      describe: spec.describe,
+      ...(shown === undefined ? {} : { defaultDescription: String(shown) }),
+    });
   }
   return table as unknown as Argv<T & FitArgs>;
 }
@@ -61,7 +79,8 @@ export function checkFitArgs(argv: Partial<FitArgs>, mode: FitMode, example: str
 export function fitOptionsFrom(argv: FitArgs, mode: FitMode): FitOptions {
   const options: FitOptions = { photos: argv.photos, out: String(argv.out), mode };
   for (const spec of FIT_OPTIONS) {
-    if (spec.verbs.includes(mode) && argv[spec.flag] !== undefined) (options as unknown as Record<string, unknown>)[spec.key] = argv[spec.flag];
+    if (spec.verbs.includes(mode) && argv[spec.flag] !== undefined)
+      (options as unknown as Record<string, unknown>)[spec.key] = argv[spec.flag];
   }
   return options;
 }
@@ -93,7 +112,11 @@ export async function runWithProgress(options: Omit<FitOptions, 'signal'>): Prom
         progress.update(event.done / event.total, `reading photos ${event.done}/${event.total}`, event.done === event.total);
         break;
       case 'features':
-        progress.update(event.done / event.total, `reading scenes with the backbone ${event.done}/${event.total}`, event.done + 1 === event.total);
+        progress.update(
+          event.done / event.total,
+          `reading scenes with the backbone ${event.done}/${event.total}`,
+          event.done + 1 === event.total,
+        );
         break;
       case 'data':
         progress.log(
@@ -184,15 +207,23 @@ export function summaryTable(result: FitResult): string {
   const widths = [11, 11, 15, 11, 14, 11];
   const line = (label: string, cells: string[]): string => label.padEnd(30) + cells.map((c, i) => c.padStart(widths[i])).join('');
   const row = (label: string, e: Evaluation): string =>
-    line(`  ${label}`, [e.ciede2000.toFixed(2), e.psnr.toFixed(2), e.colourfulness.toFixed(1), percent(e.rightHue), percent(e.falseColour), percent(e.leftGrey)]);
+    line(`  ${label}`, [
+      e.ciede2000.toFixed(2),
+      e.psnr.toFixed(2),
+      e.colourfulness.toFixed(1),
+      percent(e.rightHue),
+      percent(e.falseColour),
+      percent(e.leftGrey),
+    ]);
   const { grey, before, after, keptStep } = result.heldOut;
   const { validation } = result;
   const onValidation = `CIEDE2000 ${validation.before.ciede2000.toFixed(2)} at start, best ${validation.best.ciede2000.toFixed(2)} at step ${validation.bestStep} (grey ${validation.grey.ciede2000.toFixed(2)})`;
-  const chosen = result.photos.validation === 0
-    ? 'steps chosen on the held-out photos (a run from before the validation split): the figures below are not independent'
-    : result.options.keep === 'best'
-      ? `steps chosen on ${result.photos.validation} validation photos: ${onValidation}`
-      : `on the ${result.photos.validation} validation photos: ${onValidation}; the last weights are kept`;
+  const chosen =
+    result.photos.validation === 0
+      ? 'steps chosen on the held-out photos (a run from before the validation split): the figures below are not independent'
+      : result.options.keep === 'best'
+        ? `steps chosen on ${result.photos.validation} validation photos: ${onValidation}`
+        : `on the ${result.photos.validation} validation photos: ${onValidation}; the last weights are kept`;
   const checkpoint = result.checkpointKept
     ? `; checkpoint kept${result.stoppedBy === 'interrupted' ? ' for --resume' : ' (--keep-checkpoint)'}`
     : '; checkpoint removed (a finished run; --keep-checkpoint keeps it)';

@@ -210,14 +210,7 @@ export function bilateralUpsample(
  * In-place [1 2 1] / 4 blur along one axis of an interleaved array, ends clamped: `outer` blocks
  * `outerStride` apart, each a line of `count` cells `stride` apart, each cell `inner` contiguous values.
  */
-function blurAxis(
-  data: Float32Array,
-  outer: number,
-  outerStride: number,
-  count: number,
-  stride: number,
-  inner: number,
-): void {
+function blurAxis(data: Float32Array, outer: number, outerStride: number, count: number, stride: number, inner: number): void {
   if (count < 2) return;
   const prev = new Float32Array(inner);
   for (let o = 0; o < outer; o++) {

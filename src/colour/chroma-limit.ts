@@ -21,9 +21,15 @@ const SLACK = 1e-3;
 const [XN, , ZN] = D65_WHITE;
 const M = XYZ_TO_SRGB;
 // X/Xn, Y, Z/Zn straight to linear sRGB (white folded into the matrix).
-const N00 = M[0]! * XN, N01 = M[1]!, N02 = M[2]! * ZN;
-const N10 = M[3]! * XN, N11 = M[4]!, N12 = M[5]! * ZN;
-const N20 = M[6]! * XN, N21 = M[7]!, N22 = M[8]! * ZN;
+const N00 = M[0]! * XN,
+  N01 = M[1]!,
+  N02 = M[2]! * ZN;
+const N10 = M[3]! * XN,
+  N11 = M[4]!,
+  N12 = M[5]! * ZN;
+const N20 = M[6]! * XN,
+  N21 = M[7]!,
+  N22 = M[8]! * ZN;
 const F_EPS = 6 / 29;
 
 /** Exact test: (L*, a*, b*) inside sRGB, each linear channel within [-slack, 1 + slack]. */

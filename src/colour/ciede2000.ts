@@ -17,8 +17,7 @@ function hueAngle(b: number, ap: number): number {
  * @example
  * ciede2000(50, 2.6772, -79.7751, 50, 0, -82.7485); // 2.0425 (Sharma et al. 2005, pair 1)
  */
-export function ciede2000(L1: number, a1: number, b1: number, L2: number, a2: number, b2: number,
-  kL = 1, kC = 1, kH = 1): number {
+export function ciede2000(L1: number, a1: number, b1: number, L2: number, a2: number, b2: number, kL = 1, kC = 1, kH = 1): number {
   // Step 1: C', h'
   const C1 = Math.sqrt(a1 * a1 + b1 * b1);
   const C2 = Math.sqrt(a2 * a2 + b2 * b2);
@@ -51,11 +50,12 @@ export function ciede2000(L1: number, a1: number, b1: number, L2: number, a2: nu
     if (Math.abs(h1p - h2p) <= 180) hbarp /= 2;
     else hbarp = hbarp < 360 ? (hbarp + 360) / 2 : (hbarp - 360) / 2;
   }
-  const T = 1
-    - 0.17 * Math.cos((hbarp - 30) * DEG)
-    + 0.24 * Math.cos(2 * hbarp * DEG)
-    + 0.32 * Math.cos((3 * hbarp + 6) * DEG)
-    - 0.2 * Math.cos((4 * hbarp - 63) * DEG);
+  const T =
+    1 -
+    0.17 * Math.cos((hbarp - 30) * DEG) +
+    0.24 * Math.cos(2 * hbarp * DEG) +
+    0.32 * Math.cos((3 * hbarp + 6) * DEG) -
+    0.2 * Math.cos((4 * hbarp - 63) * DEG);
   const dTheta = 30 * Math.exp(-Math.pow((hbarp - 275) / 25, 2));
   const Cbarp7 = Math.pow(Cbarp, 7);
   const RC = 2 * Math.sqrt(Cbarp7 / (Cbarp7 + POW25_7));

@@ -22,9 +22,14 @@ export function colourfulness(data: PixelData, channels: 3 | 4): number {
   // Sums shifted by the first pixel's values keep the variance exact for near-constant images.
   const rg0 = (data[0] - data[1]) * scale;
   const yb0 = ((data[0] + data[1]) / 2 - data[2]) * scale;
-  let srg = 0, syb = 0, srg2 = 0, syb2 = 0;
+  let srg = 0,
+    syb = 0,
+    srg2 = 0,
+    syb2 = 0;
   for (let j = 0; j < data.length; j += channels) {
-    const r = data[j], g = data[j + 1], b = data[j + 2];
+    const r = data[j],
+      g = data[j + 1],
+      b = data[j + 2];
     const rg = (r - g) * scale - rg0;
     const yb = ((r + g) / 2 - b) * scale - yb0;
     srg += rg;
@@ -32,9 +37,11 @@ export function colourfulness(data: PixelData, channels: 3 | 4): number {
     srg2 += rg * rg;
     syb2 += yb * yb;
   }
-  const mrg = srg / n, myb = syb / n;
+  const mrg = srg / n,
+    myb = syb / n;
   const varRg = Math.max(0, srg2 / n - mrg * mrg);
   const varYb = Math.max(0, syb2 / n - myb * myb);
-  const meanRg = mrg + rg0, meanYb = myb + yb0;
+  const meanRg = mrg + rg0,
+    meanYb = myb + yb0;
   return Math.sqrt(varRg + varYb) + 0.3 * Math.sqrt(meanRg * meanRg + meanYb * meanYb);
 }

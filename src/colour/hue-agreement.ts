@@ -71,15 +71,22 @@ export function hueAgreement(result: LabPlanes, original: LabPlanes): HueAgreeme
     throw new RangeError(`hueAgreement: the two images differ in size (${n} and ${result.a.length} pixels)`);
   }
   if (n === 0) throw new RangeError('hueAgreement: the images are empty');
-  let coloured = 0, right = 0, grey = 0, falseColour = 0;
+  let coloured = 0,
+    right = 0,
+    grey = 0,
+    falseColour = 0;
   for (let i = 0; i < n; i++) {
-    const oa = original.a[i], ob = original.b[i], ra = result.a[i], rb = result.b[i];
+    const oa = original.a[i],
+      ob = original.b[i],
+      ra = result.a[i],
+      rb = result.b[i];
     const co = Math.sqrt(oa * oa + ob * ob);
     const cr = Math.sqrt(ra * ra + rb * rb);
     // Hue angles only where both are coloured enough to have one.
-    const hueOff = co >= NEAR_NEUTRAL_CHROMA && cr >= NEAR_NEUTRAL_CHROMA
-      ? hueDifference(Math.atan2(ob, oa) * DEGREES, Math.atan2(rb, ra) * DEGREES)
-      : NaN;
+    const hueOff =
+      co >= NEAR_NEUTRAL_CHROMA && cr >= NEAR_NEUTRAL_CHROMA
+        ? hueDifference(Math.atan2(ob, oa) * DEGREES, Math.atan2(rb, ra) * DEGREES)
+        : NaN;
     if (co >= CLEARLY_COLOURED_CHROMA) {
       coloured++;
       if (cr < NEAR_NEUTRAL_CHROMA) grey++;
@@ -103,7 +110,8 @@ export function hueAgreement(result: LabPlanes, original: LabPlanes): HueAgreeme
  * meanOfPresent([40, null, 60]); // { mean: 50, photos: 2 }
  */
 export function meanOfPresent(values: readonly (number | null | undefined)[]): { mean: number | null; photos: number } {
-  let sum = 0, count = 0;
+  let sum = 0,
+    count = 0;
   for (const v of values) {
     if (v === null || v === undefined || Number.isNaN(v)) continue;
     sum += v;

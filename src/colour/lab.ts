@@ -5,7 +5,13 @@
  */
 import { LAB_EPSILON, LAB_KAPPA, fastCbrt, labF, labFInverse, lightnessFromY, yFromLightness } from './cube-root.js';
 import {
-  SRGB8_TO_LINEAR, linearToSrgb, linearToSrgbClipped, quantiser16, quantiser8, srgb16ToLinearTable, srgbToLinear,
+  SRGB8_TO_LINEAR,
+  linearToSrgb,
+  linearToSrgbClipped,
+  quantiser16,
+  quantiser8,
+  srgb16ToLinearTable,
+  srgbToLinear,
   type Quantiser,
 } from './srgb.js';
 import { D65_WHITE, SRGB_TO_XYZ, XYZ_TO_SRGB, linearSrgbToXyz, xyzToLinearSrgb, type Triple } from './xyz.js';
@@ -22,13 +28,25 @@ export type PixelData = Uint8Array | Uint16Array | Float32Array;
 
 const [XN, , ZN] = D65_WHITE;
 // Linear sRGB straight to X/Xn, Y/Yn, Z/Zn: the white division folded into the matrix.
-const M00 = SRGB_TO_XYZ[0] / XN, M01 = SRGB_TO_XYZ[1] / XN, M02 = SRGB_TO_XYZ[2] / XN;
-const M10 = SRGB_TO_XYZ[3], M11 = SRGB_TO_XYZ[4], M12 = SRGB_TO_XYZ[5];
-const M20 = SRGB_TO_XYZ[6] / ZN, M21 = SRGB_TO_XYZ[7] / ZN, M22 = SRGB_TO_XYZ[8] / ZN;
+const M00 = SRGB_TO_XYZ[0] / XN,
+  M01 = SRGB_TO_XYZ[1] / XN,
+  M02 = SRGB_TO_XYZ[2] / XN;
+const M10 = SRGB_TO_XYZ[3],
+  M11 = SRGB_TO_XYZ[4],
+  M12 = SRGB_TO_XYZ[5];
+const M20 = SRGB_TO_XYZ[6] / ZN,
+  M21 = SRGB_TO_XYZ[7] / ZN,
+  M22 = SRGB_TO_XYZ[8] / ZN;
 // X/Xn, Y/Yn, Z/Zn straight back to linear sRGB.
-const N00 = XYZ_TO_SRGB[0] * XN, N01 = XYZ_TO_SRGB[1], N02 = XYZ_TO_SRGB[2] * ZN;
-const N10 = XYZ_TO_SRGB[3] * XN, N11 = XYZ_TO_SRGB[4], N12 = XYZ_TO_SRGB[5] * ZN;
-const N20 = XYZ_TO_SRGB[6] * XN, N21 = XYZ_TO_SRGB[7], N22 = XYZ_TO_SRGB[8] * ZN;
+const N00 = XYZ_TO_SRGB[0] * XN,
+  N01 = XYZ_TO_SRGB[1],
+  N02 = XYZ_TO_SRGB[2] * ZN;
+const N10 = XYZ_TO_SRGB[3] * XN,
+  N11 = XYZ_TO_SRGB[4],
+  N12 = XYZ_TO_SRGB[5] * ZN;
+const N20 = XYZ_TO_SRGB[6] * XN,
+  N21 = XYZ_TO_SRGB[7],
+  N22 = XYZ_TO_SRGB[8] * ZN;
 const EPS = LAB_EPSILON;
 const KAPPA = LAB_KAPPA;
 const F_EPS = 6 / 29;
@@ -41,7 +59,9 @@ const F_EPS = 6 / 29;
 export function xyzToLab(x: number, y: number, z: number): [number, number, number];
 export function xyzToLab<T extends Triple>(x: number, y: number, z: number, out: T): T;
 export function xyzToLab(x: number, y: number, z: number, out: Triple = [0, 0, 0]): Triple {
-  const fx = labF(x / XN), fy = labF(y), fz = labF(z / ZN);
+  const fx = labF(x / XN),
+    fy = labF(y),
+    fz = labF(z / ZN);
   out[0] = 116 * fy - 16;
   out[1] = 500 * (fx - fy);
   out[2] = 200 * (fy - fz);
@@ -147,12 +167,13 @@ function linearToLab(lr: number, lg: number, lb: number, L: Float32Array, a: Flo
   b[i] = 200 * (fy - fz);
 }
 
-function integerRgbToLab(data: Uint8Array | Uint16Array, channels: number, lin: Float64Array,
-  greyL: Float64Array, out: LabPlanes): void {
+function integerRgbToLab(data: Uint8Array | Uint16Array, channels: number, lin: Float64Array, greyL: Float64Array, out: LabPlanes): void {
   const { L, a, b } = out;
   const n = L.length;
   for (let i = 0, j = 0; i < n; i++, j += channels) {
-    const r = data[j], g = data[j + 1], bl = data[j + 2];
+    const r = data[j],
+      g = data[j + 1],
+      bl = data[j + 2];
     if (r === g && g === bl) {
       L[i] = greyL[r];
       a[i] = 0;
@@ -197,8 +218,10 @@ export function greyToLightness(data: PixelData, channels: 1 | 2 | 3 | 4): Float
   const L = new Float32Array(n);
   if (data instanceof Float32Array) {
     for (let i = 0, j = 0; i < n; i++, j += channels) {
-      const y = channels < 3 ? srgbToLinear(data[j])
-        : M10 * srgbToLinear(data[j]) + M11 * srgbToLinear(data[j + 1]) + M12 * srgbToLinear(data[j + 2]);
+      const y =
+        channels < 3
+          ? srgbToLinear(data[j])
+          : M10 * srgbToLinear(data[j]) + M11 * srgbToLinear(data[j + 1]) + M12 * srgbToLinear(data[j + 2]);
       L[i] = fastLightness(y);
     }
     return L;
@@ -211,7 +234,8 @@ export function greyToLightness(data: PixelData, channels: 1 | 2 | 3 | 4): Float
     if (channels < 3) {
       L[i] = greyL[r];
     } else {
-      const g = data[j + 1], b = data[j + 2];
+      const g = data[j + 1],
+        b = data[j + 2];
       L[i] = r === g && g === b ? greyL[r] : fastLightness(M10 * lin[r] + M11 * lin[g] + M12 * lin[b]);
     }
   }
@@ -237,7 +261,9 @@ function labToIntegerRgb(lab: LabPlanes, out: Uint8Array | Uint16Array, channels
   const { L, a, b } = lab;
   const n = L.length;
   const max = q.max;
-  const thresholds = q.thresholds, first = q.first, bins = q.bins;
+  const thresholds = q.thresholds,
+    first = q.first,
+    bins = q.bins;
   for (let i = 0, j = 0; i < n; i++, j += channels) {
     const l = L[i];
     const fy = (l + 16) / 116;

@@ -31,7 +31,8 @@ export function meanAbError(x: LabPlanes, y: LabPlanes): number {
   const n = samePlanes(x, y, 'meanAbError');
   let sum = 0;
   for (let i = 0; i < n; i++) {
-    const da = x.a[i] - y.a[i], db = x.b[i] - y.b[i];
+    const da = x.a[i] - y.a[i],
+      db = x.b[i] - y.b[i];
     sum += Math.sqrt(da * da + db * db);
   }
   return sum / n;

@@ -25,9 +25,15 @@ function invert3(m: readonly number[]): Matrix3 {
   const C = d * h - e * g;
   const det = a * A + b * B + c * C;
   return [
-    A / det, -(b * i - c * h) / det, (b * f - c * e) / det,
-    B / det, (a * i - c * g) / det, -(a * f - c * d) / det,
-    C / det, -(a * h - b * g) / det, (a * e - b * d) / det,
+    A / det,
+    -(b * i - c * h) / det,
+    (b * f - c * e) / det,
+    B / det,
+    (a * i - c * g) / det,
+    -(a * f - c * d) / det,
+    C / det,
+    -(a * h - b * g) / det,
+    (a * e - b * d) / det,
   ];
 }
 
@@ -38,11 +44,7 @@ function invert3(m: readonly number[]): Matrix3 {
  */
 function deriveRgbToXyz(): Matrix3 {
   const cols = PRIMARIES_XY.map(([x, y]) => [x / y, 1, (1 - x - y) / y]);
-  const p = [
-    cols[0][0], cols[1][0], cols[2][0],
-    cols[0][1], cols[1][1], cols[2][1],
-    cols[0][2], cols[1][2], cols[2][2],
-  ];
+  const p = [cols[0][0], cols[1][0], cols[2][0], cols[0][1], cols[1][1], cols[2][1], cols[0][2], cols[1][2], cols[2][2]];
   const pi = invert3(p);
   const [wx, wy, wz] = D65_WHITE;
   const s = [0, 1, 2].map((r) => pi[3 * r] * wx + pi[3 * r + 1] * wy + pi[3 * r + 2] * wz);

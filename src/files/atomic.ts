@@ -46,19 +46,25 @@ export function writeFailure(path: string, error: unknown): KinhueError {
   if (error instanceof KinhueError) return error;
   const code = (error as NodeJS.ErrnoException | undefined)?.code;
   const reason =
-    code === 'ENOENT' ? 'the output folder does not exist'
-    : code === 'ENOSPC' ? 'the disk is full'
-    : code === 'ENAMETOOLONG' ? 'the file name is too long for the file system'
-    : code === 'EACCES' || code === 'EPERM' || code === 'EROFS' ? 'no permission to write there'
-    : code === 'EISDIR' ? 'a folder of that name is in the way'
-    : `could not be written (${String((error as Error)?.message ?? error).split('\n')[0]})`;
+    code === 'ENOENT'
+      ? 'the output folder does not exist'
+      : code === 'ENOSPC'
+        ? 'the disk is full'
+        : code === 'ENAMETOOLONG'
+          ? 'the file name is too long for the file system'
+          : code === 'EACCES' || code === 'EPERM' || code === 'EROFS'
+            ? 'no permission to write there'
+            : code === 'EISDIR'
+              ? 'a folder of that name is in the way'
+              : `could not be written (${String((error as Error)?.message ?? error).split('\n')[0]})`;
   return new KinhueError(ErrorCodes.WRITE_FAILED, reason, {
     file: path,
-    hint: code === 'ENAMETOOLONG'
-      ? 'shorten the scan\'s name or its folders\' names, then run again'
-      : code === 'EISDIR'
-        ? 'move the folder out of the way or choose another output folder, then run again'
-        : 'check that the output folder exists, is writable and has free space, then run again',
+    hint:
+      code === 'ENAMETOOLONG'
+        ? "shorten the scan's name or its folders' names, then run again"
+        : code === 'EISDIR'
+          ? 'move the folder out of the way or choose another output folder, then run again'
+          : 'check that the output folder exists, is writable and has free space, then run again',
     cause: error,
   });
 }

@@ -88,14 +88,21 @@ function describeProblem(problem: WalkProblem): { message: string; hint: string 
   const code = problem.error.code;
   if (problem.kind === 'link') {
     return {
-      message: code === 'ELOOP' ? 'is a link that leads round in a loop' : code === 'ENOENT' ? 'is a link to a file or folder that does not exist' : `is a link that cannot be followed (${code})`,
+      message:
+        code === 'ELOOP'
+          ? 'is a link that leads round in a loop'
+          : code === 'ENOENT'
+            ? 'is a link to a file or folder that does not exist'
+            : `is a link that cannot be followed (${code})`,
       hint: 'fix or remove the link, then run again',
     };
   }
   const denied = code === 'EACCES' || code === 'EPERM';
   return {
-    message: `the folder cannot be read (${denied ? 'permission denied' : code ?? problem.error.message}); the scans in it were not searched`,
-    hint: denied ? 'give your user read permission on the folder, then run again' : 'check the folder and that the drive or share is available, then run again',
+    message: `the folder cannot be read (${denied ? 'permission denied' : (code ?? problem.error.message)}); the scans in it were not searched`,
+    hint: denied
+      ? 'give your user read permission on the folder, then run again'
+      : 'check the folder and that the drive or share is available, then run again',
   };
 }
 
@@ -126,7 +133,10 @@ export async function discoverInputs(inputs: string[], options: DiscoveryOptions
     const info = await stat(abs).catch((error: NodeJS.ErrnoException) => error);
     if (!(info instanceof Error) && info.isDirectory()) {
       if (await inOut(abs)) {
-        throw new UsageError(`the input folder ${input} is the output folder ${outDir} (or inside it), perhaps through a link\n${example}`, 'choose an --out folder outside your scans');
+        throw new UsageError(
+          `the input folder ${input} is the output folder ${outDir} (or inside it), perhaps through a link\n${example}`,
+          'choose an --out folder outside your scans',
+        );
       }
       roots.push(abs);
       if (out && (await isWithin(out, await identify(abs)))) outSkipped = true;
@@ -135,16 +145,27 @@ export async function discoverInputs(inputs: string[], options: DiscoveryOptions
       walkProblems.push(...walked.problems);
     } else if (!(info instanceof Error)) {
       if (await inOut(abs)) {
-        throw new UsageError(`the scan ${input} lies in the output folder ${outDir}, perhaps through a link; its result would replace it\n${example}`, 'choose an --out folder outside your scans');
+        throw new UsageError(
+          `the scan ${input} lies in the output folder ${outDir}, perhaps through a link; its result would replace it\n${example}`,
+          'choose an --out folder outside your scans',
+        );
       }
       roots.push(dirname(abs));
       add(abs, statId(info));
-    } else if (await lstat(abs).then(() => true, () => false)) {
+    } else if (
+      await lstat(abs).then(
+        () => true,
+        () => false,
+      )
+    ) {
       walkProblems.push({ path: abs, kind: 'link', error: info });
     } else if (isDynamicPattern(input)) {
       roots.push(globBase(input));
       const matches = await glob(input.split(sep).join('/'), { absolute: true, onlyFiles: true, dot: false, caseSensitiveMatch: false });
-      const images = matches.filter(hasImageExtension).map((m) => resolve(m)).sort();
+      const images = matches
+        .filter(hasImageExtension)
+        .map((m) => resolve(m))
+        .sort();
       if (images.length === 0) notes.push(`${input}: no image files matched`);
       for (const m of images) {
         const target = await stat(m).catch(() => undefined);

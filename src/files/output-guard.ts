@@ -12,10 +12,15 @@ import { identify, isWithin } from './identity.js';
 /** KH_OUTPUT_ON_INPUT: naming the output, the input it would replace, and what to do. */
 export class OutputOnInputError extends KinhueError {
   constructor(output: string, input: string, hint: string, message?: string) {
-    super(ErrorCodes.OUTPUT_ON_INPUT, message ?? `this output would replace the input ${input} (the same file, through a link or another path); kinhue never changes an input`, {
-      file: output,
-      hint,
-    });
+    super(
+      ErrorCodes.OUTPUT_ON_INPUT,
+      message ??
+        `this output would replace the input ${input} (the same file, through a link or another path); kinhue never changes an input`,
+      {
+        file: output,
+        hint,
+      },
+    );
     this.name = 'OutputOnInputError';
   }
 }
@@ -77,8 +82,12 @@ export class InputGuard {
     const folder = await identify(dirname(found.real));
     const beside = folder.id && this.byFolder.get(folder.id);
     if (beside) {
-      throw new OutputOnInputError(output, beside, this.hint,
-        `this output would be written into ${dirname(beside)}, the folder of the input ${beside} (through a link or another path); results go only into the output folder`);
+      throw new OutputOnInputError(
+        output,
+        beside,
+        this.hint,
+        `this output would be written into ${dirname(beside)}, the folder of the input ${beside} (through a link or another path); results go only into the output folder`,
+      );
     }
   }
 }

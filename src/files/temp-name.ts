@@ -36,7 +36,11 @@ let hostLabelCache: string | undefined;
  *   hostLabel(); // 'node07'
  */
 export function hostLabel(): string {
-  hostLabelCache ??= hostname().split('.')[0]!.replace(/[^A-Za-z0-9-]/g, '-').slice(0, 63) || 'host';
+  hostLabelCache ??=
+    hostname()
+      .split('.')[0]!
+      .replace(/[^A-Za-z0-9-]/g, '-')
+      .slice(0, 63) || 'host';
   return hostLabelCache;
 }
 
@@ -128,7 +132,10 @@ export async function removeTemporaryFiles(
   for (const name of names) {
     const owner = temporaryOwner(name);
     if (owner === undefined || !whose(owner, name)) continue;
-    await rm(join(folder, name), { force: true }).then(() => removed.push(name), () => undefined);
+    await rm(join(folder, name), { force: true }).then(
+      () => removed.push(name),
+      () => undefined,
+    );
   }
   return removed;
 }

@@ -41,7 +41,10 @@ export function levinAffinity(L: Float32Array, width: number, height: number): A
     for (let x = 0; x < width; x++) {
       const i = y * width + x;
       const centre = L[i]! / 100;
-      let sum = 0, sum2 = 0, count = 0, nearest = Infinity;
+      let sum = 0,
+        sum2 = 0,
+        count = 0,
+        nearest = Infinity;
       for (let dy = -1; dy <= 1; dy++) {
         const yy = y + dy;
         if (yy < 0 || yy >= height) continue;
@@ -63,8 +66,10 @@ export function levinAffinity(L: Float32Array, width: number, height: number): A
       spread[i] = Math.max(s, MIN_SPREAD);
     }
   }
-  const east = new Float32Array(n), south = new Float32Array(n);
-  const southEast = new Float32Array(n), southWest = new Float32Array(n);
+  const east = new Float32Array(n),
+    south = new Float32Array(n);
+  const southEast = new Float32Array(n),
+    southWest = new Float32Array(n);
   const weight = (i: number, j: number): number => {
     const d = (L[i]! - L[j]!) / 100;
     return Math.exp((-2 * d * d) / (spread[i]! + spread[j]!));
@@ -97,10 +102,14 @@ export function withPredictionEdges(graph: Affinity, a: Float32Array, b: Float32
   const { width, height } = graph;
   const k = 1 / (2 * scale * scale);
   const factor = (i: number, j: number): number => {
-    const da = a[i]! - a[j]!, db = b[i]! - b[j]!;
+    const da = a[i]! - a[j]!,
+      db = b[i]! - b[j]!;
     return Math.exp(-(da * da + db * db) * k);
   };
-  const east = graph.east.slice(), south = graph.south.slice(), southEast = graph.southEast.slice(), southWest = graph.southWest.slice();
+  const east = graph.east.slice(),
+    south = graph.south.slice(),
+    southEast = graph.southEast.slice(),
+    southWest = graph.southWest.slice();
   for (let y = 0; y < height; y++) {
     for (let x = 0; x < width; x++) {
       const i = y * width + x;
@@ -126,10 +135,15 @@ export function coarsenAffinity(fine: Affinity): Affinity {
   const cw = (width + 1) >> 1;
   const ch = (height + 1) >> 1;
   const n = cw * ch;
-  const east = new Float32Array(n), south = new Float32Array(n);
-  const southEast = new Float32Array(n), southWest = new Float32Array(n);
+  const east = new Float32Array(n),
+    south = new Float32Array(n);
+  const southEast = new Float32Array(n),
+    southWest = new Float32Array(n);
   const add = (x0: number, y0: number, x1: number, y1: number, w: number): void => {
-    let X0 = x0 >> 1, Y0 = y0 >> 1, X1 = x1 >> 1, Y1 = y1 >> 1;
+    let X0 = x0 >> 1,
+      Y0 = y0 >> 1,
+      X1 = x1 >> 1,
+      Y1 = y1 >> 1;
     if (X0 === X1 && Y0 === Y1) return;
     // Orient the edge forward (downwards, or rightwards within a row).
     if (Y1 < Y0 || (Y1 === Y0 && X1 < X0)) [X0, Y0, X1, Y1] = [X1, Y1, X0, Y0];

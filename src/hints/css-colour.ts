@@ -67,5 +67,14 @@ export function outOfRange(text: string): boolean {
  *   formatHex([47, 93, 58]); // '#2f5d3a'
  */
 export function formatHex(rgb: Rgb): string {
-  return '#' + rgb.map((v) => Math.round(Math.min(255, Math.max(0, v))).toString(16).padStart(2, '0')).join('');
+  return (
+    '#' +
+    rgb
+      .map((v) =>
+        Math.round(Math.min(255, Math.max(0, v)))
+          .toString(16)
+          .padStart(2, '0'),
+      )
+      .join('')
+  );
 }

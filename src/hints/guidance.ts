@@ -104,7 +104,11 @@ export async function readHints(path: string): Promise<Hints> {
   try {
     text = await readFile(path, 'utf8');
   } catch (error) {
-    throw new KinhueError(ErrorCodes.UNREADABLE, 'the hints file could not be read', { file: path, hint: 'check that it exists and is readable', cause: error });
+    throw new KinhueError(ErrorCodes.UNREADABLE, 'the hints file could not be read', {
+      file: path,
+      hint: 'check that it exists and is readable',
+      cause: error,
+    });
   }
   return parseHints(text, path);
 }
@@ -169,7 +173,10 @@ export async function prepareGuides(sources: GuidanceSources, width: number, hei
       hints = found.text !== null ? parseHints(found.text, found.path) : await readHints(found.path);
       const problem = checkHintsSize(hints, width, height);
       if (problem) {
-        throw new KinhueError(ErrorCodes.BAD_HINTS, problem, { file: found.path, hint: 'make the hints file for this scan with `kinhue hints <scan> --force`, or fix its "image" size' });
+        throw new KinhueError(ErrorCodes.BAD_HINTS, problem, {
+          file: found.path,
+          hint: 'make the hints file for this scan with `kinhue hints <scan> --force`, or fix its "image" size',
+        });
       }
       record.hints = { file: found.path, used: true, entries: hints.entries.length, placeholders: hints.placeholders };
       if (hints.entries.length === 0) hints = undefined;
@@ -180,7 +187,12 @@ export async function prepareGuides(sources: GuidanceSources, width: number, hei
     }
   }
   const reference = sources.reference ? await cachedReference(sources.reference) : undefined;
-  if (reference) record.reference = { files: reference.files, samples: reference.L.length, ...(reference.notes.length ? { notes: reference.notes } : {}) };
+  if (reference)
+    record.reference = {
+      files: reference.files,
+      samples: reference.L.length,
+      ...(reference.notes.length ? { notes: reference.notes } : {}),
+    };
   const guides: Guide[] = [];
   if (reference) guides.push(referenceGuide(reference));
   if (hints) guides.push(hintsGuide(hints, width, height, sources.priorWeight));

@@ -35,9 +35,11 @@ const STEPS = 20;
  *   chromaAt(95, 60, 0.5); // well under 60: a strong red cannot be that light
  */
 export function chromaAt(L: number, chroma: number, hue: number): number {
-  const ca = Math.cos(hue), cb = Math.sin(hue);
+  const ca = Math.cos(hue),
+    cb = Math.sin(hue);
   if (inSrgbGamut(L, chroma * ca, chroma * cb)) return chroma;
-  let lo = 0, hi = chroma;
+  let lo = 0,
+    hi = chroma;
   for (let k = 0; k < STEPS; k++) {
     const mid = (lo + hi) / 2;
     if (inSrgbGamut(L, mid * ca, mid * cb)) lo = mid;

@@ -39,19 +39,30 @@ export interface RasterisedHints {
  * @example
  *   const { constraints, adjustments } = rasteriseHints(hints, work.L, 512, 384, 4000, 3000);
  */
-export function rasteriseHints(hints: Hints, L: Float32Array, width: number, height: number, scanWidth: number, scanHeight: number): RasterisedHints {
+export function rasteriseHints(
+  hints: Hints,
+  L: Float32Array,
+  width: number,
+  height: number,
+  scanWidth: number,
+  scanHeight: number,
+): RasterisedHints {
   const n = width * height;
-  const a = new Float32Array(n), b = new Float32Array(n);
+  const a = new Float32Array(n),
+    b = new Float32Array(n);
   const grid = new FreeCells(width, height);
   // Hint coordinates -> working-grid coordinates (pixel centres at +0.5).
-  const sx = width / hints.width, sy = height / hints.height;
+  const sx = width / hints.width,
+    sy = height / hints.height;
   const adjustments: GamutAdjustment[] = [];
   // Where entries overlap the later one wins. Drawing from the last entry back and colouring only cells still
   // free gives that, and colours each cell once: the cost is bounded by the grid, not by entries x their area.
   for (let k = hints.entries.length - 1; k >= 0 && grid.painted < n; k--) {
     const entry = hints.entries[k]!;
     const lch = hintLch(entry.rgb);
-    let minChroma = lch.chroma, lo = Infinity, hi = -Infinity;
+    let minChroma = lch.chroma,
+      lo = Infinity,
+      hi = -Infinity;
     cover(entry, sx, sy, grid, (i) => {
       const Li = L[i]!;
       const c = chromaAt(Li, lch.chroma, lch.hue);
@@ -73,15 +84,18 @@ export function rasteriseHints(hints: Hints, L: Float32Array, width: number, hei
         usedChroma: round1(minChroma),
         lightness: [round1(lo), round1(hi)],
         usedInstead: instead,
-        message: `entry ${entry.number} (${entry.colour}): the scan's lightness there (L* ${round1(lo)} to ${round1(hi)}) `
-          + `cannot hold that colour's chroma of ${round1(lch.chroma)}; chroma was reduced to as little as ${round1(minChroma)}, `
-          + `the same hue, e.g. ${instead} at L* ${round1(mid)}`,
+        message:
+          `entry ${entry.number} (${entry.colour}): the scan's lightness there (L* ${round1(lo)} to ${round1(hi)}) ` +
+          `cannot hold that colour's chroma of ${round1(lch.chroma)}; chroma was reduced to as little as ${round1(minChroma)}, ` +
+          `the same hue, e.g. ${instead} at L* ${round1(mid)}`,
       });
     }
   }
   adjustments.reverse();
-  const scaled = hints.width === scanWidth && hints.height === scanHeight ? undefined
-    : `the hints were made for ${hints.width} x ${hints.height}; scaled to the scan's ${scanWidth} x ${scanHeight}`;
+  const scaled =
+    hints.width === scanWidth && hints.height === scanHeight
+      ? undefined
+      : `the hints were made for ${hints.width} x ${hints.height}; scaled to the scan's ${scanWidth} x ${scanHeight}`;
   return { constraints: { fixed: grid.fixed, a, b }, pixels: grid.painted, adjustments, ...(scaled ? { scaled } : {}) };
 }
 
@@ -91,7 +105,7 @@ export function rasteriseHints(hints: Hints, L: Float32Array, width: number, hei
  */
 export function checkHintsSize(hints: Hints, scanWidth: number, scanHeight: number): string | null {
   if (hints.width === scanWidth && hints.height === scanHeight) return null;
-  const ratio = (hints.width / hints.height) / (scanWidth / scanHeight);
+  const ratio = hints.width / hints.height / (scanWidth / scanHeight);
   if (Math.abs(ratio - 1) <= 0.01) return null;
   return `the hints were made for a ${hints.width} x ${hints.height} image but the scan is ${scanWidth} x ${scanHeight}`;
 }
@@ -106,7 +120,10 @@ class FreeCells {
   private readonly next: Int32Array;
   private readonly freeInRow: Int32Array;
 
-  constructor(readonly width: number, readonly height: number) {
+  constructor(
+    readonly width: number,
+    readonly height: number,
+  ) {
     this.fixed = new Uint8Array(width * height);
     // Row y's pointers live at y * (width + 1) + x; x = width is the row's end.
     this.next = new Int32Array((width + 1) * height);
@@ -155,16 +172,19 @@ function cover(entry: HintEntry, sx: number, sy: number, grid: FreeCells, paint:
   };
   const segments = pts.length === 1 ? [[pts[0]!, pts[0]!]] : pts.slice(1).map((p, k) => [pts[k]!, p]);
   for (const [p, q] of segments) {
-    const [px, py] = p!, [qx, qy] = q!;
+    const [px, py] = p!,
+      [qx, qy] = q!;
     const length = Math.hypot(qx - px, qy - py);
     const steps = Math.max(1, Math.ceil(length * 2));
     for (let k = 0; k <= steps; k++) {
-      const u = px + ((qx - px) * k) / steps, v = py + ((qy - py) * k) / steps;
+      const u = px + ((qx - px) * k) / steps,
+        v = py + ((qy - py) * k) / steps;
       take(Math.min(width - 1, Math.max(0, Math.floor(u))), Math.min(height - 1, Math.max(0, Math.floor(v))));
     }
     if (r <= 0) continue;
     const inside = (x: number, v: number): boolean => distanceToSegment(x + 0.5, v, px, py, qx, qy) <= r;
-    const y0 = Math.max(0, Math.floor(Math.min(py, qy) - r)), y1 = Math.min(height - 1, Math.ceil(Math.max(py, qy) + r));
+    const y0 = Math.max(0, Math.floor(Math.min(py, qy) - r)),
+      y1 = Math.min(height - 1, Math.ceil(Math.max(py, qy) + r));
     for (let y = y0; y <= y1; y++) {
       if (grid.rowFull(y)) continue;
       const span = rowSpan(y + 0.5, px, py, qx, qy, r, width, inside);
@@ -179,8 +199,16 @@ function cover(entry: HintEntry, sx: number, sy: number, grid: FreeCells, paint:
  * null. The covered shape is convex, so on one row it is one run: found from the path's point nearest the
  * row in height, then its ends by bisection.
  */
-function rowSpan(v: number, px: number, py: number, qx: number, qy: number, r: number, width: number,
-  inside: (x: number, v: number) => boolean): [number, number] | null {
+function rowSpan(
+  v: number,
+  px: number,
+  py: number,
+  qx: number,
+  qy: number,
+  r: number,
+  width: number,
+  inside: (x: number, v: number) => boolean,
+): [number, number] | null {
   let u: number;
   if (py !== qy && v >= Math.min(py, qy) && v <= Math.max(py, qy)) u = px + ((qx - px) * (v - py)) / (qy - py);
   else u = Math.abs(v - py) <= Math.abs(v - qy) ? px : qx;
@@ -188,7 +216,8 @@ function rowSpan(v: number, px: number, py: number, qx: number, qy: number, r: n
   const left = Math.min(width - 1, Math.max(0, Math.floor(u - 0.5)));
   const start = inside(left, v) ? left : left + 1 < width && inside(left + 1, v) ? left + 1 : -1;
   if (start < 0) return null;
-  let lo = 0, hi = start; // first inside column in [lo, hi]
+  let lo = 0,
+    hi = start; // first inside column in [lo, hi]
   while (lo < hi) {
     const mid = (lo + hi) >> 1;
     if (inside(mid, v)) hi = mid;
@@ -206,7 +235,8 @@ function rowSpan(v: number, px: number, py: number, qx: number, qy: number, r: n
 }
 
 function distanceToSegment(x: number, y: number, px: number, py: number, qx: number, qy: number): number {
-  const dx = qx - px, dy = qy - py;
+  const dx = qx - px,
+    dy = qy - py;
   const len2 = dx * dx + dy * dy;
   const t = len2 > 0 ? Math.max(0, Math.min(1, ((x - px) * dx + (y - py) * dy) / len2)) : 0;
   return Math.hypot(x - px - t * dx, y - py - t * dy);

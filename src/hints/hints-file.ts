@@ -100,12 +100,20 @@ export function parseHints(text: string, file: string): Hints {
   } catch (error) {
     const found = findJsonError(body);
     const where = found ? lineColumn(body, found.offset) : undefined;
-    throw bad(file, found && where ? `not valid JSON at line ${where.line}, column ${where.column}: ${found.problem}` : `not valid JSON (${(error as Error).message.slice(0, 200)})`,
-      'fix the JSON syntax (a missing comma or quote is the usual cause), or make a new file with `kinhue hints <scan> --force`');
+    throw bad(
+      file,
+      found && where
+        ? `not valid JSON at line ${where.line}, column ${where.column}: ${found.problem}`
+        : `not valid JSON (${(error as Error).message.slice(0, 200)})`,
+      'fix the JSON syntax (a missing comma or quote is the usual cause), or make a new file with `kinhue hints <scan> --force`',
+    );
   }
   if (typeof json !== 'object' || json === null || Array.isArray(json)) {
-    throw bad(file, 'a hints file is a JSON object with "format", "version", "image" and "entries"',
-      'make a starter file with `kinhue hints <scan>` and edit it');
+    throw bad(
+      file,
+      'a hints file is a JSON object with "format", "version", "image" and "entries"',
+      'make a starter file with `kinhue hints <scan>` and edit it',
+    );
   }
   const top = json as Record<string, unknown>;
   for (const key of Object.keys(top)) {
@@ -115,15 +123,21 @@ export function parseHints(text: string, file: string): Hints {
     throw bad(file, `"format" must be "${HINTS_FORMAT}"`, 'check that this is a kinhue hints file, or make one with `kinhue hints <scan>`');
   }
   if (top.version !== HINTS_VERSION) {
-    throw bad(file, `hints file version ${echo(top.version)} is not one this kinhue reads (it reads version ${HINTS_VERSION})`,
-      'use the kinhue version that wrote it, or make a new file with `kinhue hints <scan> --force`');
+    throw bad(
+      file,
+      `hints file version ${echo(top.version)} is not one this kinhue reads (it reads version ${HINTS_VERSION})`,
+      'use the kinhue version that wrote it, or make a new file with `kinhue hints <scan> --force`',
+    );
   }
   const image = top.image as Record<string, unknown> | undefined;
   const width = image?.width;
   const height = image?.height;
   if (!Number.isInteger(width) || !Number.isInteger(height) || (width as number) < 1 || (height as number) < 1) {
-    throw bad(file, '"image" must give the scan\'s size as whole pixels, {"width": W, "height": H}',
-      'copy the size from a starter file made by `kinhue hints <scan>`');
+    throw bad(
+      file,
+      '"image" must give the scan\'s size as whole pixels, {"width": W, "height": H}',
+      'copy the size from a starter file made by `kinhue hints <scan>`',
+    );
   }
   if (!Array.isArray(top.entries)) {
     throw bad(file, '"entries" must be a list (it may be empty)', 'write "entries": [ ... ] with one object per hint');
@@ -142,12 +156,17 @@ export function parseHints(text: string, file: string): Hints {
 function parseEntry(raw: unknown, number: number, width: number, height: number, file: string): HintEntry | null {
   const where = `entry ${number}`;
   if (typeof raw !== 'object' || raw === null || Array.isArray(raw)) {
-    throw bad(file, `${where} is not an object`, 'write each entry as {"x": .., "y": .., "colour": ".."} or {"points": [[x, y], ...], "colour": ".."}');
+    throw bad(
+      file,
+      `${where} is not an object`,
+      'write each entry as {"x": .., "y": .., "colour": ".."} or {"points": [[x, y], ...], "colour": ".."}',
+    );
   }
   const e = raw as Record<string, unknown>;
   for (const key of Object.keys(e)) {
     if (key === 'color') throw bad(file, `${where} has "color"`, 'this format spells it "colour"; rename the field');
-    if (!ENTRY_KEYS.has(key)) throw bad(file, `${where} has an unknown field ${echo(key)}`, `remove it; an entry may have ${[...ENTRY_KEYS].join(', ')}`);
+    if (!ENTRY_KEYS.has(key))
+      throw bad(file, `${where} has an unknown field ${echo(key)}`, `remove it; an entry may have ${[...ENTRY_KEYS].join(', ')}`);
   }
   if (typeof e.colour !== 'string') throw bad(file, `${where} has no "colour"`, `add one: ${COLOUR_HELP}`);
   const note = e.note === undefined ? undefined : String(e.note);
@@ -155,8 +174,11 @@ function parseEntry(raw: unknown, number: number, width: number, height: number,
   const rgb = parseCssColour(e.colour);
   if (!rgb) {
     if (outOfRange(e.colour)) {
-      throw bad(file, `${where}: colour ${echo(e.colour)} has a channel out of range`,
-        'give each channel from 0 to 255, or from 0% to 100%; kinhue does not clip colours it cannot show');
+      throw bad(
+        file,
+        `${where}: colour ${echo(e.colour)} has a channel out of range`,
+        'give each channel from 0 to 255, or from 0% to 100%; kinhue does not clip colours it cannot show',
+      );
     }
     throw bad(file, `${where}: colour ${echo(e.colour)} is not a colour kinhue reads`, COLOUR_HELP);
   }
@@ -164,21 +186,32 @@ function parseEntry(raw: unknown, number: number, width: number, height: number,
   let radius = 0;
   if (e.radius !== undefined) {
     if (!isNumber(e.radius) || e.radius < 0 || e.radius > Math.max(width, height)) {
-      throw bad(file, `${where}: radius ${echo(e.radius)} is not usable`, `give a radius in pixels of the scan, from 0 to ${Math.max(width, height)}`);
+      throw bad(
+        file,
+        `${where}: radius ${echo(e.radius)} is not usable`,
+        `give a radius in pixels of the scan, from 0 to ${Math.max(width, height)}`,
+      );
     }
     radius = e.radius;
   }
 
   const hasPoint = e.x !== undefined || e.y !== undefined;
   if (hasPoint === (e.points !== undefined)) {
-    throw bad(file, `${where} needs either "x" and "y" (a point) or "points" (a stroke), not ${hasPoint ? 'both' : 'neither'}`,
-      'write {"x": 120, "y": 340, ...} for a point or {"points": [[x, y], [x, y]], ...} for a stroke');
+    throw bad(
+      file,
+      `${where} needs either "x" and "y" (a point) or "points" (a stroke), not ${hasPoint ? 'both' : 'neither'}`,
+      'write {"x": 120, "y": 340, ...} for a point or {"points": [[x, y], [x, y]], ...} for a stroke',
+    );
   }
   const inside = (x: unknown, y: unknown, label: string): [number, number] => {
-    if (!isNumber(x) || !isNumber(y)) throw bad(file, `${where}: ${label} needs numeric x and y`, 'write coordinates as numbers, in pixels of the scan');
+    if (!isNumber(x) || !isNumber(y))
+      throw bad(file, `${where}: ${label} needs numeric x and y`, 'write coordinates as numbers, in pixels of the scan');
     if (x < 0 || y < 0 || x >= width || y >= height) {
-      throw bad(file, `${where}: ${label} (${x}, ${y}) lies outside the ${width} x ${height} image`,
-        `move it inside: x from 0 to ${width - 1}, y from 0 to ${height - 1} (pixels of the scan, origin top left)`);
+      throw bad(
+        file,
+        `${where}: ${label} (${x}, ${y}) lies outside the ${width} x ${height} image`,
+        `move it inside: x from 0 to ${width - 1}, y from 0 to ${height - 1} (pixels of the scan, origin top left)`,
+      );
     }
     return [x, y];
   };
@@ -190,7 +223,8 @@ function parseEntry(raw: unknown, number: number, width: number, height: number,
       throw bad(file, `${where}: "points" must be a non-empty list of [x, y] pairs`, 'write "points": [[x1, y1], [x2, y2], ...]');
     }
     points = e.points.map((p, k) => {
-      if (!Array.isArray(p) || p.length !== 2) throw bad(file, `${where}: point ${k + 1} of the stroke is not an [x, y] pair`, 'write each vertex as [x, y]');
+      if (!Array.isArray(p) || p.length !== 2)
+        throw bad(file, `${where}: point ${k + 1} of the stroke is not an [x, y] pair`, 'write each vertex as [x, y]');
       return inside(p[0], p[1], `point ${k + 1} of the stroke`);
     });
   }
@@ -216,22 +250,37 @@ export function starterHints(width: number, height: number, scan?: string): Hint
     ...(scan ? { scan } : {}),
     image: { width, height },
     entries: [
-      { x: px, y: py, colour: '', radius: r, note: 'a point: move x, y (pixels of the scan, origin top left) onto something whose colour you know, then set colour, e.g. "#2f5d3a" or "rgb(47, 93, 58)"; an empty colour is ignored' },
+      {
+        x: px,
+        y: py,
+        colour: '',
+        radius: r,
+        note: 'a point: move x, y (pixels of the scan, origin top left) onto something whose colour you know, then set colour, e.g. "#2f5d3a" or "rgb(47, 93, 58)"; an empty colour is ignored',
+      },
       { x: qx, y: qy, colour: '', radius: r, note: 'another point; delete entries you do not need' },
-      { points: [at(0.6, 0.2), at(0.7, 0.25), at(0.8, 0.2)], colour: '', radius: r, note: 'a stroke: a line through these points, painted with colour; radius is in pixels of the scan' },
+      {
+        points: [at(0.6, 0.2), at(0.7, 0.25), at(0.8, 0.2)],
+        colour: '',
+        radius: r,
+        note: 'a stroke: a line through these points, painted with colour; radius is in pixels of the scan',
+      },
     ],
   };
 }
 
 /** Prints a hints object as JSON with one entry per line, so people can edit it. */
 export function formatHints(json: HintsJson): string {
-  const value = (v: unknown): string =>
-    Array.isArray(v) ? `[${v.map(value).join(', ')}]` : JSON.stringify(v);
+  const value = (v: unknown): string => (Array.isArray(v) ? `[${v.map(value).join(', ')}]` : JSON.stringify(v));
   const entry = (e: Record<string, unknown>): string =>
-    `    { ${Object.entries(e).map(([k, v]) => `${JSON.stringify(k)}: ${value(v)}`).join(', ')} }`;
+    `    { ${Object.entries(e)
+      .map(([k, v]) => `${JSON.stringify(k)}: ${value(v)}`)
+      .join(', ')} }`;
   const head = Object.entries(json)
     .filter(([k]) => k !== 'entries')
-    .map(([k, v]) => `  ${JSON.stringify(k)}: ${k === 'image' ? `{ "width": ${json.image.width}, "height": ${json.image.height} }` : JSON.stringify(v)},`);
+    .map(
+      ([k, v]) =>
+        `  ${JSON.stringify(k)}: ${k === 'image' ? `{ "width": ${json.image.width}, "height": ${json.image.height} }` : JSON.stringify(v)},`,
+    );
   const body = json.entries.length ? `[\n${json.entries.map(entry).join(',\n')}\n  ]` : '[]';
   return `{\n${head.join('\n')}\n  "entries": ${body}\n}\n`;
 }

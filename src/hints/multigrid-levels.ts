@@ -45,10 +45,26 @@ export class GridLevel implements Level {
     for (let y = 0; y < h; y++) {
       for (let x = 0; x < w; x++) {
         const i = y * w + x;
-        let v = s.east[i]!; if (v) { diag[i] += v; diag[i + 1] += v; }
-        v = s.south[i]!; if (v) { diag[i] += v; diag[i + w] += v; }
-        v = s.southEast[i]!; if (v) { diag[i] += v; diag[i + w + 1] += v; }
-        v = s.southWest[i]!; if (v) { diag[i] += v; diag[i + w - 1] += v; }
+        let v = s.east[i]!;
+        if (v) {
+          diag[i] += v;
+          diag[i + 1] += v;
+        }
+        v = s.south[i]!;
+        if (v) {
+          diag[i] += v;
+          diag[i + w] += v;
+        }
+        v = s.southEast[i]!;
+        if (v) {
+          diag[i] += v;
+          diag[i + w + 1] += v;
+        }
+        v = s.southWest[i]!;
+        if (v) {
+          diag[i] += v;
+          diag[i + w - 1] += v;
+        }
       }
     }
     for (let i = 0; i < this.n; i++) if (!s.active[i]) diag[i] = 1;
@@ -78,26 +94,55 @@ export class GridLevel implements Level {
   multiply(pA: Float64Array, pB: Float64Array, qA: Float64Array, qB: Float64Array): [number, number] {
     const { width: w, height: h, east: E, south: S, southEast: SE, southWest: SW } = this.s;
     const { diag, active } = this;
-    let dotA = 0, dotB = 0;
+    let dotA = 0,
+      dotB = 0;
     for (let y = 0; y < h; y++) {
       const edgeRow = y === 0 || y === h - 1;
       for (let x = 0, i = y * w; x < w; x++, i++) {
-        if (!active[i]) { qA[i] = 0; qB[i] = 0; continue; }
+        if (!active[i]) {
+          qA[i] = 0;
+          qB[i] = 0;
+          continue;
+        }
         let sA: number, sB: number;
         if (edgeRow || x === 0 || x === w - 1) {
           sA = this.sum(pA, i, x, y);
           sB = this.sum(pB, i, x, y);
         } else {
-          const e0 = E[i]!, e1 = E[i - 1]!, s0 = S[i]!, s1 = S[i - w]!, d0 = SE[i]!, d1 = SE[i - w - 1]!, f0 = SW[i]!, f1 = SW[i - w + 1]!;
-          sA = e0 * pA[i + 1]! + e1 * pA[i - 1]! + s0 * pA[i + w]! + s1 * pA[i - w]!
-            + d0 * pA[i + w + 1]! + d1 * pA[i - w - 1]! + f0 * pA[i + w - 1]! + f1 * pA[i - w + 1]!;
-          sB = e0 * pB[i + 1]! + e1 * pB[i - 1]! + s0 * pB[i + w]! + s1 * pB[i - w]!
-            + d0 * pB[i + w + 1]! + d1 * pB[i - w - 1]! + f0 * pB[i + w - 1]! + f1 * pB[i - w + 1]!;
+          const e0 = E[i]!,
+            e1 = E[i - 1]!,
+            s0 = S[i]!,
+            s1 = S[i - w]!,
+            d0 = SE[i]!,
+            d1 = SE[i - w - 1]!,
+            f0 = SW[i]!,
+            f1 = SW[i - w + 1]!;
+          sA =
+            e0 * pA[i + 1]! +
+            e1 * pA[i - 1]! +
+            s0 * pA[i + w]! +
+            s1 * pA[i - w]! +
+            d0 * pA[i + w + 1]! +
+            d1 * pA[i - w - 1]! +
+            f0 * pA[i + w - 1]! +
+            f1 * pA[i - w + 1]!;
+          sB =
+            e0 * pB[i + 1]! +
+            e1 * pB[i - 1]! +
+            s0 * pB[i + w]! +
+            s1 * pB[i - w]! +
+            d0 * pB[i + w + 1]! +
+            d1 * pB[i - w - 1]! +
+            f0 * pB[i + w - 1]! +
+            f1 * pB[i - w + 1]!;
         }
         const d = diag[i]!;
-        const vA = d * pA[i]! - sA, vB = d * pB[i]! - sB;
-        qA[i] = vA; qB[i] = vB;
-        dotA += pA[i]! * vA; dotB += pB[i]! * vB;
+        const vA = d * pA[i]! - sA,
+          vB = d * pB[i]! - sB;
+        qA[i] = vA;
+        qB[i] = vB;
+        dotA += pA[i]! * vA;
+        dotB += pB[i]! * vB;
       }
     }
     return [dotA, dotB];
@@ -118,11 +163,32 @@ export class GridLevel implements Level {
           sA = this.sum(xA, i, px, y);
           sB = this.sum(xB, i, px, y);
         } else {
-          const e0 = E[i]!, e1 = E[i - 1]!, s0 = S[i]!, s1 = S[i - w]!, d0 = SE[i]!, d1 = SE[i - w - 1]!, f0 = SW[i]!, f1 = SW[i - w + 1]!;
-          sA = e0 * xA[i + 1]! + e1 * xA[i - 1]! + s0 * xA[i + w]! + s1 * xA[i - w]!
-            + d0 * xA[i + w + 1]! + d1 * xA[i - w - 1]! + f0 * xA[i + w - 1]! + f1 * xA[i - w + 1]!;
-          sB = e0 * xB[i + 1]! + e1 * xB[i - 1]! + s0 * xB[i + w]! + s1 * xB[i - w]!
-            + d0 * xB[i + w + 1]! + d1 * xB[i - w - 1]! + f0 * xB[i + w - 1]! + f1 * xB[i - w + 1]!;
+          const e0 = E[i]!,
+            e1 = E[i - 1]!,
+            s0 = S[i]!,
+            s1 = S[i - w]!,
+            d0 = SE[i]!,
+            d1 = SE[i - w - 1]!,
+            f0 = SW[i]!,
+            f1 = SW[i - w + 1]!;
+          sA =
+            e0 * xA[i + 1]! +
+            e1 * xA[i - 1]! +
+            s0 * xA[i + w]! +
+            s1 * xA[i - w]! +
+            d0 * xA[i + w + 1]! +
+            d1 * xA[i - w - 1]! +
+            f0 * xA[i + w - 1]! +
+            f1 * xA[i - w + 1]!;
+          sB =
+            e0 * xB[i + 1]! +
+            e1 * xB[i - 1]! +
+            s0 * xB[i + w]! +
+            s1 * xB[i - w]! +
+            d0 * xB[i + w + 1]! +
+            d1 * xB[i - w - 1]! +
+            f0 * xB[i + w - 1]! +
+            f1 * xB[i - w + 1]!;
         }
         const inv = 1 / diag[i]!;
         xA[i] = (bA[i]! + sA) * inv;
@@ -133,19 +199,45 @@ export class GridLevel implements Level {
 
   neighbours(i: number, index: Int32Array, weight: Float64Array): number {
     const { width: w, height: h, east: E, south: S, southEast: SE, southWest: SW } = this.s;
-    const x = i % w, y = (i - x) / w;
-    let k = 0, v = 0;
-    if (x < w - 1 && (v = E[i]!) > 0) { index[k] = i + 1; weight[k++] = v; }
-    if (x > 0 && (v = E[i - 1]!) > 0) { index[k] = i - 1; weight[k++] = v; }
+    const x = i % w,
+      y = (i - x) / w;
+    let k = 0,
+      v = 0;
+    if (x < w - 1 && (v = E[i]!) > 0) {
+      index[k] = i + 1;
+      weight[k++] = v;
+    }
+    if (x > 0 && (v = E[i - 1]!) > 0) {
+      index[k] = i - 1;
+      weight[k++] = v;
+    }
     if (y < h - 1) {
-      if ((v = S[i]!) > 0) { index[k] = i + w; weight[k++] = v; }
-      if (x < w - 1 && (v = SE[i]!) > 0) { index[k] = i + w + 1; weight[k++] = v; }
-      if (x > 0 && (v = SW[i]!) > 0) { index[k] = i + w - 1; weight[k++] = v; }
+      if ((v = S[i]!) > 0) {
+        index[k] = i + w;
+        weight[k++] = v;
+      }
+      if (x < w - 1 && (v = SE[i]!) > 0) {
+        index[k] = i + w + 1;
+        weight[k++] = v;
+      }
+      if (x > 0 && (v = SW[i]!) > 0) {
+        index[k] = i + w - 1;
+        weight[k++] = v;
+      }
     }
     if (y > 0) {
-      if ((v = S[i - w]!) > 0) { index[k] = i - w; weight[k++] = v; }
-      if (x > 0 && (v = SE[i - w - 1]!) > 0) { index[k] = i - w - 1; weight[k++] = v; }
-      if (x < w - 1 && (v = SW[i - w + 1]!) > 0) { index[k] = i - w + 1; weight[k++] = v; }
+      if ((v = S[i - w]!) > 0) {
+        index[k] = i - w;
+        weight[k++] = v;
+      }
+      if (x > 0 && (v = SE[i - w - 1]!) > 0) {
+        index[k] = i - w - 1;
+        weight[k++] = v;
+      }
+      if (x < w - 1 && (v = SW[i - w + 1]!) > 0) {
+        index[k] = i - w + 1;
+        weight[k++] = v;
+      }
     }
     return k;
   }
@@ -164,18 +256,29 @@ export class SparseLevel implements Level {
 
   multiply(pA: Float64Array, pB: Float64Array, qA: Float64Array, qB: Float64Array): [number, number] {
     const { start, column, weight, diag, active } = this;
-    let dotA = 0, dotB = 0;
+    let dotA = 0,
+      dotB = 0;
     for (let i = 0; i < this.n; i++) {
-      if (!active[i]) { qA[i] = 0; qB[i] = 0; continue; }
-      let sA = 0, sB = 0;
+      if (!active[i]) {
+        qA[i] = 0;
+        qB[i] = 0;
+        continue;
+      }
+      let sA = 0,
+        sB = 0;
       for (let k = start[i]!; k < start[i + 1]!; k++) {
-        const j = column[k]!, v = weight[k]!;
-        sA += v * pA[j]!; sB += v * pB[j]!;
+        const j = column[k]!,
+          v = weight[k]!;
+        sA += v * pA[j]!;
+        sB += v * pB[j]!;
       }
       const d = diag[i]!;
-      const vA = d * pA[i]! - sA, vB = d * pB[i]! - sB;
-      qA[i] = vA; qB[i] = vB;
-      dotA += pA[i]! * vA; dotB += pB[i]! * vB;
+      const vA = d * pA[i]! - sA,
+        vB = d * pB[i]! - sB;
+      qA[i] = vA;
+      qB[i] = vB;
+      dotA += pA[i]! * vA;
+      dotB += pB[i]! * vB;
     }
     return [dotA, dotB];
   }
@@ -185,10 +288,13 @@ export class SparseLevel implements Level {
     for (let m = 0; m < n; m++) {
       const i = forward ? m : n - 1 - m;
       if (!active[i]) continue;
-      let sA = bA[i]!, sB = bB[i]!;
+      let sA = bA[i]!,
+        sB = bB[i]!;
       for (let k = start[i]!; k < start[i + 1]!; k++) {
-        const j = column[k]!, v = weight[k]!;
-        sA += v * xA[j]!; sB += v * xB[j]!;
+        const j = column[k]!,
+          v = weight[k]!;
+        sA += v * xA[j]!;
+        sB += v * xB[j]!;
       }
       const inv = 1 / diag[i]!;
       xA[i] = sA * inv;

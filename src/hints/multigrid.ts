@@ -26,7 +26,8 @@ const COARSEST_NODES = 400;
 function aggregate(level: Level): { group: Int32Array; count: number } {
   const { n, active } = level;
   const group = new Int32Array(n).fill(-1);
-  const index = new Int32Array(4096), weight = new Float64Array(4096);
+  const index = new Int32Array(4096),
+    weight = new Float64Array(4096);
   let count = 0;
   const alone: number[] = [];
   for (let i = 0; i < n; i++) {
@@ -37,26 +38,39 @@ function aggregate(level: Level): { group: Int32Array; count: number } {
     // Add the strongest free strong neighbours, up to the group size.
     let size = 1;
     for (; size < GROUP; size++) {
-      let best = -1, bestWeight = STRENGTH * strongest;
+      let best = -1,
+        bestWeight = STRENGTH * strongest;
       for (let e = 0; e < k; e++) {
         const j = index[e]!;
-        if (active[j] && group[j] === -1 && j !== i && weight[e]! >= bestWeight && weight[e]! > 0) { best = j; bestWeight = weight[e]!; }
+        if (active[j] && group[j] === -1 && j !== i && weight[e]! >= bestWeight && weight[e]! > 0) {
+          best = j;
+          bestWeight = weight[e]!;
+        }
       }
       if (best < 0) break;
       group[best] = count;
     }
-    if (size === 1) { alone.push(i); group[i] = -2; continue; }
+    if (size === 1) {
+      alone.push(i);
+      group[i] = -2;
+      continue;
+    }
     group[i] = count++;
   }
   // A node whose neighbours were all taken joins the group it is most strongly joined to, if that link is
   // strong (so no group reaches across an edge); otherwise it stays alone.
   for (const i of alone) {
     const k = level.neighbours(i, index, weight);
-    let best = -1, bestWeight = 0, strongest = 0;
+    let best = -1,
+      bestWeight = 0,
+      strongest = 0;
     for (let e = 0; e < k; e++) {
       strongest = Math.max(strongest, weight[e]!);
       const g = group[index[e]!]!;
-      if (g >= 0 && weight[e]! > bestWeight) { best = g; bestWeight = weight[e]!; }
+      if (g >= 0 && weight[e]! > bestWeight) {
+        best = g;
+        bestWeight = weight[e]!;
+      }
     }
     group[i] = best >= 0 && bestWeight >= STRENGTH * strongest ? best : count++;
   }
@@ -70,16 +84,20 @@ function coarsen(level: Level, group: Int32Array, count: number): SparseLevel {
   const first = new Int32Array(count + 1);
   for (let i = 0; i < n; i++) if (group[i]! >= 0) first[group[i]! + 1]++;
   for (let g = 0; g < count; g++) first[g + 1] += first[g]!;
-  const fill = first.slice(0, count), members = new Int32Array(first[count]!);
+  const fill = first.slice(0, count),
+    members = new Int32Array(first[count]!);
   for (let i = 0; i < n; i++) if (group[i]! >= 0) members[fill[group[i]!]++] = i;
 
-  const index = new Int32Array(4096), weight = new Float64Array(4096);
-  const mark = new Int32Array(count).fill(-1), slot = new Int32Array(count);
+  const index = new Int32Array(4096),
+    weight = new Float64Array(4096);
+  const mark = new Int32Array(count).fill(-1),
+    slot = new Int32Array(count);
   const start = new Int32Array(count + 1);
   // Each coarse entry comes from at least one fine edge, so the fine edge count bounds the storage.
   let bound = 0;
   for (let i = 0; i < n; i++) if (group[i]! >= 0) bound += level.neighbours(i, index, weight);
-  const column = new Int32Array(bound), values = new Float64Array(bound);
+  const column = new Int32Array(bound),
+    values = new Float64Array(bound);
   let used = 0;
   const diag = new Float64Array(count);
   for (let g = 0; g < count; g++) {
@@ -92,8 +110,16 @@ function coarsen(level: Level, group: Int32Array, count: number): SparseLevel {
       for (let e = 0; e < k; e++) {
         const h = group[index[e]!]!;
         if (h < 0) continue;
-        if (h === g) { d -= weight[e]!; continue; }
-        if (mark[h] !== g) { mark[h] = g; slot[h] = used; column[used] = h; values[used++] = 0; }
+        if (h === g) {
+          d -= weight[e]!;
+          continue;
+        }
+        if (mark[h] !== g) {
+          mark[h] = g;
+          slot[h] = used;
+          column[used] = h;
+          values[used++] = 0;
+        }
         values[slot[h]!] += weight[e]!;
       }
     }
@@ -107,7 +133,9 @@ function coarsen(level: Level, group: Int32Array, count: number): SparseLevel {
 function factor(level: Level): Float64Array {
   const n = level.n;
   const a = new Float64Array(n * n);
-  const unit = new Float64Array(n), column = new Float64Array(n), spare = new Float64Array(n);
+  const unit = new Float64Array(n),
+    column = new Float64Array(n),
+    spare = new Float64Array(n);
   for (let j = 0; j < n; j++) {
     unit.fill(0);
     unit[j] = 1;
@@ -153,7 +181,14 @@ export class MultigridSolver {
   private readonly levels: Level[];
   private readonly groups: Int32Array[] = [];
   private readonly coarsest: Float64Array;
-  private readonly scratch: Array<{ xA: Float64Array; xB: Float64Array; bA: Float64Array; bB: Float64Array; rA: Float64Array; rB: Float64Array }>;
+  private readonly scratch: Array<{
+    xA: Float64Array;
+    xB: Float64Array;
+    bA: Float64Array;
+    bB: Float64Array;
+    rA: Float64Array;
+    rB: Float64Array;
+  }>;
 
   constructor(system: GridSystem) {
     this.levels = [new GridLevel(system)];
@@ -167,8 +202,12 @@ export class MultigridSolver {
     }
     this.coarsest = factor(this.levels[this.levels.length - 1]!);
     this.scratch = this.levels.map((l) => ({
-      xA: new Float64Array(l.n), xB: new Float64Array(l.n), bA: new Float64Array(l.n), bB: new Float64Array(l.n),
-      rA: new Float64Array(l.n), rB: new Float64Array(l.n),
+      xA: new Float64Array(l.n),
+      xB: new Float64Array(l.n),
+      bA: new Float64Array(l.n),
+      bB: new Float64Array(l.n),
+      rA: new Float64Array(l.n),
+      rB: new Float64Array(l.n),
     }));
   }
 
@@ -183,7 +222,11 @@ export class MultigridSolver {
     if (k === this.levels.length - 1) {
       choleskySolve(this.coarsest, l.n, bA, xA);
       choleskySolve(this.coarsest, l.n, bB, xB);
-      for (let i = 0; i < l.n; i++) if (!l.active[i]) { xA[i] = 0; xB[i] = 0; }
+      for (let i = 0; i < l.n; i++)
+        if (!l.active[i]) {
+          xA[i] = 0;
+          xB[i] = 0;
+        }
       return;
     }
     xA.fill(0);
@@ -197,12 +240,18 @@ export class MultigridSolver {
     c.bB.fill(0);
     for (let i = 0; i < l.n; i++) {
       const g = group[i]!;
-      if (g >= 0) { c.bA[g] += bA[i]! - rA[i]!; c.bB[g] += bB[i]! - rB[i]!; }
+      if (g >= 0) {
+        c.bA[g] += bA[i]! - rA[i]!;
+        c.bB[g] += bB[i]! - rB[i]!;
+      }
     }
     this.cycle(k + 1, c.bA, c.bB, c.xA, c.xB);
     for (let i = 0; i < l.n; i++) {
       const g = group[i]!;
-      if (g >= 0) { xA[i] += c.xA[g]!; xB[i] += c.xB[g]!; }
+      if (g >= 0) {
+        xA[i] += c.xA[g]!;
+        xB[i] += c.xB[g]!;
+      }
     }
     l.sweep(xA, xB, bA, bB, false);
   }
@@ -214,45 +263,80 @@ export class MultigridSolver {
   solve(bA: Float64Array, bB: Float64Array, xA: Float64Array, xB: Float64Array, tolerance: number, maxIterations: number): SolveReport {
     const l = this.levels[0]!;
     const n = l.n;
-    const rA = new Float64Array(n), rB = new Float64Array(n), zA = new Float64Array(n), zB = new Float64Array(n);
-    const pA = new Float64Array(n), pB = new Float64Array(n), qA = new Float64Array(n), qB = new Float64Array(n);
+    const rA = new Float64Array(n),
+      rB = new Float64Array(n),
+      zA = new Float64Array(n),
+      zB = new Float64Array(n);
+    const pA = new Float64Array(n),
+      pB = new Float64Array(n),
+      qA = new Float64Array(n),
+      qB = new Float64Array(n);
     l.multiply(xA, xB, rA, rB);
-    let normA = 0, normB = 0, rrA = 0, rrB = 0;
+    let normA = 0,
+      normB = 0,
+      rrA = 0,
+      rrB = 0;
     for (let i = 0; i < n; i++) {
-      if (!l.active[i]) { rA[i] = 0; rB[i] = 0; continue; }
+      if (!l.active[i]) {
+        rA[i] = 0;
+        rB[i] = 0;
+        continue;
+      }
       rA[i] = bA[i]! - rA[i]!;
       rB[i] = bB[i]! - rB[i]!;
-      normA += bA[i]! * bA[i]!; normB += bB[i]! * bB[i]!;
-      rrA += rA[i]! * rA[i]!; rrB += rB[i]! * rB[i]!;
+      normA += bA[i]! * bA[i]!;
+      normB += bB[i]! * bB[i]!;
+      rrA += rA[i]! * rA[i]!;
+      rrB += rB[i]! * rB[i]!;
     }
-    const stopA = tolerance * tolerance * normA, stopB = tolerance * tolerance * normB;
+    const stopA = tolerance * tolerance * normA,
+      stopB = tolerance * tolerance * normB;
     const converged = (): boolean => rrA <= stopA && rrB <= stopB;
     let iterations = 0;
     if (!converged()) {
       this.cycle(0, rA, rB, zA, zB);
       pA.set(zA);
       pB.set(zB);
-      let rzA = 0, rzB = 0;
-      for (let i = 0; i < n; i++) { rzA += rA[i]! * zA[i]!; rzB += rB[i]! * zB[i]!; }
+      let rzA = 0,
+        rzB = 0;
+      for (let i = 0; i < n; i++) {
+        rzA += rA[i]! * zA[i]!;
+        rzB += rB[i]! * zB[i]!;
+      }
       while (iterations < maxIterations && !converged()) {
         iterations++;
         const [pqA, pqB] = l.multiply(pA, pB, qA, qB);
         // A channel already solved (or with nothing to do) keeps still: its step length is 0.
-        const alphaA = pqA > 0 && rrA > stopA ? rzA / pqA : 0, alphaB = pqB > 0 && rrB > stopB ? rzB / pqB : 0;
-        rrA = 0; rrB = 0;
+        const alphaA = pqA > 0 && rrA > stopA ? rzA / pqA : 0,
+          alphaB = pqB > 0 && rrB > stopB ? rzB / pqB : 0;
+        rrA = 0;
+        rrB = 0;
         for (let i = 0; i < n; i++) {
-          xA[i] += alphaA * pA[i]!; xB[i] += alphaB * pB[i]!;
-          const vA = rA[i]! - alphaA * qA[i]!, vB = rB[i]! - alphaB * qB[i]!;
-          rA[i] = vA; rB[i] = vB;
-          rrA += vA * vA; rrB += vB * vB;
+          xA[i] += alphaA * pA[i]!;
+          xB[i] += alphaB * pB[i]!;
+          const vA = rA[i]! - alphaA * qA[i]!,
+            vB = rB[i]! - alphaB * qB[i]!;
+          rA[i] = vA;
+          rB[i] = vB;
+          rrA += vA * vA;
+          rrB += vB * vB;
         }
         if (converged()) break;
         this.cycle(0, rA, rB, zA, zB);
-        let nextA = 0, nextB = 0;
-        for (let i = 0; i < n; i++) { nextA += rA[i]! * zA[i]!; nextB += rB[i]! * zB[i]!; }
-        const betaA = rzA > 0 ? nextA / rzA : 0, betaB = rzB > 0 ? nextB / rzB : 0;
-        rzA = nextA; rzB = nextB;
-        for (let i = 0; i < n; i++) { pA[i] = zA[i]! + betaA * pA[i]!; pB[i] = zB[i]! + betaB * pB[i]!; }
+        let nextA = 0,
+          nextB = 0;
+        for (let i = 0; i < n; i++) {
+          nextA += rA[i]! * zA[i]!;
+          nextB += rB[i]! * zB[i]!;
+        }
+        const betaA = rzA > 0 ? nextA / rzA : 0,
+          betaB = rzB > 0 ? nextB / rzB : 0;
+        rzA = nextA;
+        rzB = nextB;
+        for (let i = 0; i < n; i++) {
+          pA[i] = zA[i]! + betaA * pA[i]!;
+          pB[i] = zB[i]! + betaB * pB[i]!;
+        }
       }
     }
     const residual = Math.max(normA > 0 ? Math.sqrt(rrA / normA) : 0, normB > 0 ? Math.sqrt(rrB / normB) : 0);

@@ -73,9 +73,14 @@ export function propagateHints(input: PropagationInput, hints: HintConstraints, 
   const graph = withPredictionEdges(levinAffinity(input.L, w, h), input.a, input.b, options.predictionEdges ?? 0);
   // The prior's total weight over the image, spread per pixel, so hints act alike at any working size.
   const lambda = (options.priorWeight ?? DEFAULT_PRIOR_WEIGHT) / n;
-  const east = new Float64Array(n), south = new Float64Array(n), southEast = new Float64Array(n), southWest = new Float64Array(n);
-  const extra = new Float64Array(n), active = new Uint8Array(n);
-  const bA = new Float64Array(n), bB = new Float64Array(n);
+  const east = new Float64Array(n),
+    south = new Float64Array(n),
+    southEast = new Float64Array(n),
+    southWest = new Float64Array(n);
+  const extra = new Float64Array(n),
+    active = new Uint8Array(n);
+  const bA = new Float64Array(n),
+    bB = new Float64Array(n);
   for (let i = 0; i < n; i++) {
     if (hints.fixed[i]) continue;
     active[i] = 1;
@@ -86,8 +91,12 @@ export function propagateHints(input: PropagationInput, hints: HintConstraints, 
   }
   // An edge to a hinted pixel becomes a pull towards the hint: diagonal term plus right-hand side.
   const link = (i: number, j: number, v: number, store: Float64Array): void => {
-    const fi = hints.fixed[i], fj = hints.fixed[j];
-    if (!fi && !fj) { store[i] = v; return; }
+    const fi = hints.fixed[i],
+      fj = hints.fixed[j];
+    if (!fi && !fj) {
+      store[i] = v;
+      return;
+    }
     if (fi && fj) return;
     const [free, held] = fi ? [j, i] : [i, j];
     extra[free] += v;
@@ -106,11 +115,21 @@ export function propagateHints(input: PropagationInput, hints: HintConstraints, 
     }
   }
   const solver = new MultigridSolver({ width: w, height: h, east, south, southEast, southWest, extra, active });
-  const xA = Float64Array.from(input.a), xB = Float64Array.from(input.b);
-  for (let i = 0; i < n; i++) if (hints.fixed[i]) { xA[i] = 0; xB[i] = 0; }
+  const xA = Float64Array.from(input.a),
+    xB = Float64Array.from(input.b);
+  for (let i = 0; i < n; i++)
+    if (hints.fixed[i]) {
+      xA[i] = 0;
+      xB[i] = 0;
+    }
   const report = solver.solve(bA, bB, xA, xB, options.tolerance ?? 1e-3, options.maxIterations ?? 100);
-  const a = Float32Array.from(xA), b = Float32Array.from(xB);
-  for (let i = 0; i < n; i++) if (hints.fixed[i]) { a[i] = hints.a[i]!; b[i] = hints.b[i]!; }
+  const a = Float32Array.from(xA),
+    b = Float32Array.from(xB);
+  for (let i = 0; i < n; i++)
+    if (hints.fixed[i]) {
+      a[i] = hints.a[i]!;
+      b[i] = hints.b[i]!;
+    }
   return { a, b, iterations: report.iterations, residual: report.residual };
 }
 
@@ -123,17 +142,35 @@ export function propagateHints(input: PropagationInput, hints: HintConstraints, 
  * @example
  *   const smooth = smoothColour(L, a, b, 512, 384, 0.05);
  */
-export function smoothColour(L: Float32Array, a: Float32Array, b: Float32Array, width: number, height: number, strength: number): { a: Float32Array; b: Float32Array } {
+export function smoothColour(
+  L: Float32Array,
+  a: Float32Array,
+  b: Float32Array,
+  width: number,
+  height: number,
+  strength: number,
+): { a: Float32Array; b: Float32Array } {
   const n = width * height;
   const g = levinAffinity(L, width, height);
   const extra = new Float64Array(n).fill(strength);
-  const bA = new Float64Array(n), bB = new Float64Array(n);
-  for (let i = 0; i < n; i++) { bA[i] = strength * a[i]!; bB[i] = strength * b[i]!; }
+  const bA = new Float64Array(n),
+    bB = new Float64Array(n);
+  for (let i = 0; i < n; i++) {
+    bA[i] = strength * a[i]!;
+    bB[i] = strength * b[i]!;
+  }
   const solver = new MultigridSolver({
-    width, height, east: Float64Array.from(g.east), south: Float64Array.from(g.south),
-    southEast: Float64Array.from(g.southEast), southWest: Float64Array.from(g.southWest), extra, active: new Uint8Array(n).fill(1),
+    width,
+    height,
+    east: Float64Array.from(g.east),
+    south: Float64Array.from(g.south),
+    southEast: Float64Array.from(g.southEast),
+    southWest: Float64Array.from(g.southWest),
+    extra,
+    active: new Uint8Array(n).fill(1),
   });
-  const xA = Float64Array.from(a), xB = Float64Array.from(b);
+  const xA = Float64Array.from(a),
+    xB = Float64Array.from(b);
   solver.solve(bA, bB, xA, xB, 1e-3, 100);
   return { a: Float32Array.from(xA), b: Float32Array.from(xB) };
 }

@@ -82,7 +82,12 @@ export function skinWeights(L: Float32Array, width: number, height: number, face
     const box = { x0, y0, w: Math.min(width, Math.ceil(cx + rx)) - x0, h: Math.min(height, Math.ceil(cy + ry)) - y0 };
     if (box.w <= 0 || box.h <= 0) continue;
     const ellipse = (x: number, y: number): number => Math.hypot((x + 0.5 - cx) / rx, (y + 0.5 - cy) / ry);
-    const cost = edgeCost(L, width, box, (x, y) => ellipse(x, y) <= ELLIPSE.core && Math.abs(L[y * width + x]! - middle) <= LIGHTNESS_SPREAD);
+    const cost = edgeCost(
+      L,
+      width,
+      box,
+      (x, y) => ellipse(x, y) <= ELLIPSE.core && Math.abs(L[y * width + x]! - middle) <= LIGHTNESS_SPREAD,
+    );
     for (let y = 0; y < box.h; y++) {
       for (let x = 0; x < box.w; x++) {
         const e = ellipse(box.x0 + x, box.y0 + y);

@@ -33,10 +33,14 @@ export async function writeStarterHints(scan: string, options: StarterOptions = 
   const path = options.out ?? hintsCandidates(scan).at(-1)!;
   await (await InputGuard.of([scan], { hint: 'name another --out file for the hints' })).check(path);
   if (!options.force) {
-    const exists = await access(path).then(() => true, () => false);
+    const exists = await access(path).then(
+      () => true,
+      () => false,
+    );
     if (exists) {
       throw new KinhueError(ErrorCodes.WRITE_FAILED, 'a hints file is already there', {
-        file: path, hint: 'edit it, or add --force to replace it with a new starter file',
+        file: path,
+        hint: 'edit it, or add --force to replace it with a new starter file',
       });
     }
   }

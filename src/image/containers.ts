@@ -95,11 +95,7 @@ function riffChunk(fourcc: string, data: Buffer): Buffer {
  * Adds an EXIF chunk to a WebP file, switching a simple-format file to the extended format (VP8X)
  * when needed. The chunk goes before any XMP chunk, the order RFC 9649 gives.
  */
-export function webpWithExif(
-  webp: Buffer,
-  tiff: Buffer,
-  canvas: { width: number; height: number; alpha: boolean },
-): Buffer {
+export function webpWithExif(webp: Buffer, tiff: Buffer, canvas: { width: number; height: number; alpha: boolean }): Buffer {
   if (webp.subarray(0, 4).toString('latin1') !== 'RIFF' || webp.subarray(8, 12).toString('latin1') !== 'WEBP') {
     throw new Error('not a WebP stream');
   }

@@ -140,7 +140,10 @@ async function decodePixels(
   let samples = samplesFromBuffer(data, depth);
   if (grey && channels >= 3) {
     // A grey profile turned grey into RGB; fold it back to one channel (libvips' own luminance).
-    const folded = await sharp(samples, { raw: { width: info.width, height: info.height, channels: channels as 3 | 4 }, ...sharpLimit(maxPixels) })
+    const folded = await sharp(samples, {
+      raw: { width: info.width, height: info.height, channels: channels as 3 | 4 },
+      ...sharpLimit(maxPixels),
+    })
       .toColourspace(depth === 16 ? 'grey16' : 'b-w')
       .raw({ depth: depth === 16 ? 'ushort' : 'uchar' })
       .toBuffer({ resolveWithObject: true });

@@ -107,14 +107,18 @@ export async function encodeBuffer(pixels: Pixels, options: EncodeOptions): Prom
   const { format } = options;
   const warnings: string[] = [];
   const depth: BitDepth = pixels.depth === 16 && supports16Bit(format) ? 16 : 8;
-  if (pixels.depth === 16 && depth === 8) warnings.push(`${format.toUpperCase()} holds 8 bits per sample; 16-bit pixels were rounded to 8 bits`);
+  if (pixels.depth === 16 && depth === 8)
+    warnings.push(`${format.toUpperCase()} holds 8 bits per sample; 16-bit pixels were rounded to 8 bits`);
   const px = depth === pixels.depth ? pixels : to8Bit(pixels);
   const colour = colourChannels(px);
 
   let profile: Buffer | undefined;
   if (options.icc) {
     if (iccFitsChannels(options.icc, colour)) profile = options.icc;
-    else warnings.push(`the source's ${iccColourSpace(options.icc) ?? 'unreadable'} ICC profile does not fit ${colour === 1 ? 'grey' : 'colour'} output; written as sRGB without a profile`);
+    else
+      warnings.push(
+        `the source's ${iccColourSpace(options.icc) ?? 'unreadable'} ICC profile does not fit ${colour === 1 ? 'grey' : 'colour'} output; written as sRGB without a profile`,
+      );
   }
 
   const encode = async (profileFile?: string): Promise<Buffer> => {
@@ -139,9 +143,11 @@ export async function encodeBuffer(pixels: Pixels, options: EncodeOptions): Prom
     else if (format === 'tiff') warnings.push('TIFF output carries no EXIF block (libvips cannot write one); EXIF not carried over');
     else {
       const withExif =
-        format === 'jpeg' ? jpegWithExif(data, tiff)
-        : format === 'png' ? pngWithExif(data, tiff)
-        : webpWithExif(data, tiff, { width: px.width, height: px.height, alpha: hasAlpha(px) });
+        format === 'jpeg'
+          ? jpegWithExif(data, tiff)
+          : format === 'png'
+            ? pngWithExif(data, tiff)
+            : webpWithExif(data, tiff, { width: px.width, height: px.height, alpha: hasAlpha(px) });
       if (withExif) {
         data = withExif;
         exifEmbedded = true;

@@ -18,15 +18,19 @@ function firstLine(message: string): string {
 export function unreadable(file: string, error: unknown): InputError {
   const code = (error as NodeJS.ErrnoException | undefined)?.code;
   const reason =
-    code === 'ENOENT' ? 'file not found'
-    : code === 'EISDIR' ? 'is a folder, not an image file'
-    : code === 'EACCES' || code === 'EPERM' ? 'permission denied'
-    : `cannot be read (${code ?? firstLine(String((error as Error)?.message ?? error))})`;
+    code === 'ENOENT'
+      ? 'file not found'
+      : code === 'EISDIR'
+        ? 'is a folder, not an image file'
+        : code === 'EACCES' || code === 'EPERM'
+          ? 'permission denied'
+          : `cannot be read (${code ?? firstLine(String((error as Error)?.message ?? error))})`;
   return new InputError(ErrorCodes.UNREADABLE, reason, {
     file,
-    hint: code === 'EACCES' || code === 'EPERM'
-      ? 'give your user read permission on the file, then run again'
-      : 'check the path and that the drive or share is available, then run again',
+    hint:
+      code === 'EACCES' || code === 'EPERM'
+        ? 'give your user read permission on the file, then run again'
+        : 'check the path and that the drive or share is available, then run again',
     cause: error,
   });
 }

@@ -156,17 +156,25 @@ export function classifyTone(lab: LabPlanes): ToneReport {
   const { count, meanA, meanB } = first;
   if (count === 0) {
     return {
-      kind: 'grey', tint: { a: 0, b: 0 }, spread: 0, hue: 0, chroma95: 0, hueConcentration: 0,
-      toneChroma95: 0, offCurve: 0, outliers: 0, curveTolerance: OFF_CURVE_DISTANCE, offHue: 0,
+      kind: 'grey',
+      tint: { a: 0, b: 0 },
+      spread: 0,
+      hue: 0,
+      chroma95: 0,
+      hueConcentration: 0,
+      toneChroma95: 0,
+      offCurve: 0,
+      outliers: 0,
+      curveTolerance: OFF_CURVE_DISTANCE,
+      offHue: 0,
     };
   }
   const tintChroma = Math.hypot(meanA, meanB);
   const hue = (Math.atan2(meanB, meanA) * 180) / Math.PI;
   const curve = aroundCurve(lab, Math.max(1, Math.floor(n / CURVE_SAMPLES)), first);
 
-  const noiseSigma = curve.neighbours > 0
-    ? percentile(curve.neighbourHist, curve.neighbours, NOISE_QUANTILE) / NEIGHBOUR_QUANTILE_PER_SIGMA
-    : 0;
+  const noiseSigma =
+    curve.neighbours > 0 ? percentile(curve.neighbourHist, curve.neighbours, NOISE_QUANTILE) / NEIGHBOUR_QUANTILE_PER_SIGMA : 0;
   const curveTolerance = Math.min(MAX_CURVE_TOLERANCE, Math.max(OFF_CURVE_DISTANCE, NOISE_MULTIPLE * noiseSigma));
   const report: ToneReport = {
     kind: 'colour',
@@ -214,10 +222,17 @@ function overall(lab: LabPlanes, stride: number): Overall {
   const { L, a, b } = lab;
   const n = a.length;
   const chromaHist = new Uint32Array(HIST_BINS + 1);
-  const curveA = new Float64Array(L_BINS), curveB = new Float64Array(L_BINS), curveN = new Float64Array(L_BINS);
-  let count = 0, sumA = 0, sumB = 0, sumSq = 0, sumC = 0;
+  const curveA = new Float64Array(L_BINS),
+    curveB = new Float64Array(L_BINS),
+    curveN = new Float64Array(L_BINS);
+  let count = 0,
+    sumA = 0,
+    sumB = 0,
+    sumSq = 0,
+    sumC = 0;
   for (let i = 0; i < n; i += stride) {
-    const ai = a[i]!, bi = b[i]!;
+    const ai = a[i]!,
+      bi = b[i]!;
     const sq = ai * ai + bi * bi;
     const c = Math.sqrt(sq);
     sumA += ai;
@@ -253,12 +268,15 @@ function aroundCurve(lab: LabPlanes, stride: number, first: Overall) {
   const neighbourHist = new Uint32Array(HIST_BINS + 1);
   const curveChromaHist = new Uint32Array(HIST_BINS + 1);
   const hueChromaHist = new Uint32Array(HUE_BINS * HUE_CHROMA_BINS);
-  let count = 0, neighbours = 0;
+  let count = 0,
+    neighbours = 0;
   for (let i = 0; i < n; i += stride) {
     count++;
-    const ai = a[i]!, bi = b[i]!;
+    const ai = a[i]!,
+      bi = b[i]!;
     const k = lightnessBin(L[i]!);
-    const ea = ai - curveA[k]!, eb = bi - curveB[k]!;
+    const ea = ai - curveA[k]!,
+      eb = bi - curveB[k]!;
     offHist[histBin(norm(ea, eb))]++;
     curveChromaHist[histBin(norm(curveA[k]!, curveB[k]!))]++;
     const j = i + NEIGHBOUR_STEP;
@@ -288,15 +306,20 @@ function offFamily(hueChromaHist: Uint32Array, minChroma: number): number {
   }
   const binDegrees = 360 / HUE_BINS;
   const window = Math.round(17.5 / binDegrees);
-  let peak = 0, best = -1;
+  let peak = 0,
+    best = -1;
   for (let h = 0; h < HUE_BINS; h++) {
     let sum = 0;
     for (let d = -window; d <= window; d++) sum += hues[(h + d + HUE_BINS) % HUE_BINS]!;
-    if (sum > best) { best = sum; peak = h; }
+    if (sum > best) {
+      best = sum;
+      peak = h;
+    }
   }
   if (best <= 0) return 0;
   const half = Math.round(HUE_FAMILY_DEGREES / 2 / binDegrees);
-  let x = 0, y = 0;
+  let x = 0,
+    y = 0;
   for (let d = -half; d <= half; d++) {
     const h = (peak + d + HUE_BINS) % HUE_BINS;
     const angle = ((h + 0.5) * 2 * Math.PI) / HUE_BINS;

@@ -26,13 +26,15 @@ export interface ProvenanceFields {
 }
 
 function escapeXml(text: string): string {
-  return text
-    .replace(/&/g, '&amp;')
-    .replace(/</g, '&lt;')
-    .replace(/>/g, '&gt;')
-    .replace(/"/g, '&quot;')
-    // XML 1.0 forbids most control characters; drop them rather than write an unreadable packet.
-    .replace(/[\u0000-\u0008\u000b\u000c\u000e-\u001f]/g, '');
+  return (
+    text
+      .replace(/&/g, '&amp;')
+      .replace(/</g, '&lt;')
+      .replace(/>/g, '&gt;')
+      .replace(/"/g, '&quot;')
+      // XML 1.0 forbids most control characters; drop them rather than write an unreadable packet.
+      .replace(/[\u0000-\u0008\u000b\u000c\u000e-\u001f]/g, '')
+  );
 }
 
 /** The default dc:description for an output made from `sourceFile`. */
@@ -58,9 +60,7 @@ export function provenanceXmp(fields: ProvenanceFields): string {
     .filter(([key]) => /^[A-Za-z][A-Za-z0-9]*$/.test(key))
     .map(([key, value]) => `\n    <kinhue:${key}>${escapeXml(String(value))}</kinhue:${key}>`)
     .join('');
-  const hash = fields.derivedFromHash
-    ? `\n    <kinhue:sourceSha256>${escapeXml(fields.derivedFromHash)}</kinhue:sourceSha256>`
-    : '';
+  const hash = fields.derivedFromHash ? `\n    <kinhue:sourceSha256>${escapeXml(fields.derivedFromHash)}</kinhue:sourceSha256>` : '';
   const body = `<x:xmpmeta xmlns:x="adobe:ns:meta/">
  <rdf:RDF xmlns:rdf="http://www.w3.org/1999/02/22-rdf-syntax-ns#">
   <rdf:Description rdf:about=""

@@ -94,10 +94,13 @@ export const BACKBONE_MISSING_HINT = `a model folder with a backbone holds ${BAC
  */
 export function checkBackboneFiles(topology: Uint8Array, weights: Uint8Array, expected: BackboneRecord, dir: string): void {
   if (expected.topologySha256 !== sha256(topology) || expected.weightsSha256 !== sha256(weights)) {
-    throw new ModelError(`${BACKBONE_TOPOLOGY_FILE} or ${BACKBONE_WEIGHTS_FILE} does not match the SHA-256 recorded in the model: the backbone is damaged or was replaced`, {
-      file: dir,
-      hint: 'restore the folder from where it came (for the shipped model: reinstall kinhue), or train or tune it again',
-    });
+    throw new ModelError(
+      `${BACKBONE_TOPOLOGY_FILE} or ${BACKBONE_WEIGHTS_FILE} does not match the SHA-256 recorded in the model: the backbone is damaged or was replaced`,
+      {
+        file: dir,
+        hint: 'restore the folder from where it came (for the shipped model: reinstall kinhue), or train or tune it again',
+      },
+    );
   }
 }
 
@@ -130,7 +133,10 @@ export async function loadBackbone(dir: string, expected?: BackboneRecord): Prom
  */
 export async function backboneFrom(topologyText: Uint8Array, weights: Uint8Array, name = BACKBONE_NAME): Promise<Backbone> {
   const record: BackboneRecord = { name, topologySha256: sha256(topologyText), weightsSha256: sha256(weights) };
-  const json = JSON.parse(Buffer.from(topologyText).toString('utf8')) as { modelTopology: object; weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[] };
+  const json = JSON.parse(Buffer.from(topologyText).toString('utf8')) as {
+    modelTopology: object;
+    weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[];
+  };
   const weightData = weights.buffer.slice(weights.byteOffset, weights.byteOffset + weights.byteLength) as ArrayBuffer;
   const graph = await tf.loadGraphModel(
     tf.io.fromMemory({ modelTopology: json.modelTopology, weightSpecs: json.weightsManifest.flatMap((g) => g.weights), weightData }),
@@ -163,7 +169,14 @@ export function backboneFeatures(backbone: Backbone, L: Float32Array, width: num
   }
   const [local8, local16, global] = tf.tidy(() => {
     const outs = runGraph(backbone, tf.tensor4d(input, [1, 3, n, n]), BACKBONE_OUTPUTS) as tf.Tensor4D[];
-    const [stage8, classes8, stage16, stage32, classes16, classes32] = outs as [tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D, tf.Tensor4D];
+    const [stage8, classes8, stage16, stage32, classes16, classes32] = outs as [
+      tf.Tensor4D,
+      tf.Tensor4D,
+      tf.Tensor4D,
+      tf.Tensor4D,
+      tf.Tensor4D,
+      tf.Tensor4D,
+    ];
     const hwc = (t: tf.Tensor4D): tf.Tensor3D => tf.transpose(t, [0, 2, 3, 1]).squeeze([0]) as tf.Tensor3D;
     const l8 = tf.concat([hwc(stage8), hwc(classes8)], 2);
     const l16 = hwc(stage16);

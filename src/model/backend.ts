@@ -116,7 +116,10 @@ function preferredByEnvironment(): BackendName | undefined {
   const value = process.env[BACKEND_ENV];
   if (value === undefined || value === '') return undefined;
   if (!(BACKEND_NAMES as readonly string[]).includes(value)) {
-    throw new UsageError(`${BACKEND_ENV}=${value.slice(0, 40)} names no backend kinhue knows`, `set it to one of ${BACKEND_NAMES.join(', ')}, or unset it`);
+    throw new UsageError(
+      `${BACKEND_ENV}=${value.slice(0, 40)} names no backend kinhue knows`,
+      `set it to one of ${BACKEND_NAMES.join(', ')}, or unset it`,
+    );
   }
   return value as BackendName;
 }

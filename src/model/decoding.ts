@@ -80,8 +80,7 @@ export function decodingTable(bins: AbBins): DecodingTable {
  */
 export function leastCiede2000(logits: tf.Tensor2D, bins: AbBins, classWeights: ArrayLike<number>): tf.Tensor2D {
   const table = decodingTable(bins);
-  const corrected =
-    classWeights.length === bins.count ? tf.sub(logits, tf.log(tf.tensor1d(Float32Array.from(classWeights)))) : logits;
+  const corrected = classWeights.length === bins.count ? tf.sub(logits, tf.log(tf.tensor1d(Float32Array.from(classWeights)))) : logits;
   const risk = tf.matMul(tf.softmax(corrected), tf.tensor2d(table.difference, [bins.count, table.count]));
   const choice = tf.argMin(risk, 1);
   const candidates = tf.stack([tf.tensor1d(table.a), tf.tensor1d(table.b)], 1);

@@ -136,7 +136,12 @@ export function binHistogram(a: Float32Array, b: Float32Array, bins: AbBins, cou
  * @example
  * const w = rebalanceWeights(counts); // rare (saturated) bins get weights above 1
  */
-export function rebalanceWeights(freq: ArrayLike<number>, lambda = REBALANCE_LAMBDA, sigma = SOFT_SIGMA, bins: AbBins = abBins()): Float32Array {
+export function rebalanceWeights(
+  freq: ArrayLike<number>,
+  lambda = REBALANCE_LAMBDA,
+  sigma = SOFT_SIGMA,
+  bins: AbBins = abBins(),
+): Float32Array {
   const q = bins.count;
   if (freq.length !== q) throw new RangeError(`rebalanceWeights: ${freq.length} frequencies for ${q} bins`);
   let total = 0;

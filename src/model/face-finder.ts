@@ -89,7 +89,10 @@ export async function loadFaceFinder(dir = FACE_FINDER_DIR): Promise<FaceFinder>
     }),
   );
   const [topology, weights] = files as [Buffer, Buffer];
-  const json = JSON.parse(topology.toString('utf8')) as { modelTopology: object; weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[] };
+  const json = JSON.parse(topology.toString('utf8')) as {
+    modelTopology: object;
+    weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[];
+  };
   const weightData = weights.buffer.slice(weights.byteOffset, weights.byteOffset + weights.byteLength) as ArrayBuffer;
   const graph = await tf.loadGraphModel(
     tf.io.fromMemory({ modelTopology: json.modelTopology, weightSpecs: json.weightsManifest.flatMap((g) => g.weights), weightData }),

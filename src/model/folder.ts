@@ -90,8 +90,10 @@ async function readSet(dir: string, shown: string): Promise<ModelFiles> {
   const topologySha256 = sha256(topology);
   const warnings: string[] = [];
   if (meta.topologySha256 === undefined) {
-    warnings.push(`${shown}: ${METADATA_FILE} predates the ${TOPOLOGY_FILE} hash, so the network's layout was not checked; ` +
-      'tune or train the model again with this kinhue to record it');
+    warnings.push(
+      `${shown}: ${METADATA_FILE} predates the ${TOPOLOGY_FILE} hash, so the network's layout was not checked; ` +
+        'tune or train the model again with this kinhue to record it',
+    );
   } else if (topologySha256 !== meta.topologySha256) {
     throw new ModelError(`${TOPOLOGY_FILE} does not match the SHA-256 in ${METADATA_FILE}: the network's layout was edited or replaced`, {
       file: join(shown, TOPOLOGY_FILE),
@@ -99,9 +101,14 @@ async function readSet(dir: string, shown: string): Promise<ModelFiles> {
     });
   }
   if (!meta.backbone) return { meta, weights, topology, topologySha256, warnings };
-  const backboneFile = async (name: string): Promise<Buffer> => readFile(join(dir, name)).catch((error: unknown) => {
-    throw new ModelError(`the model's backbone could not be read: ${name} is missing or unreadable`, { file: shown, hint: BACKBONE_MISSING_HINT, cause: error });
-  });
+  const backboneFile = async (name: string): Promise<Buffer> =>
+    readFile(join(dir, name)).catch((error: unknown) => {
+      throw new ModelError(`the model's backbone could not be read: ${name} is missing or unreadable`, {
+        file: shown,
+        hint: BACKBONE_MISSING_HINT,
+        cause: error,
+      });
+    });
   const backbone = { topology: await backboneFile(BACKBONE_TOPOLOGY_FILE), weights: await backboneFile(BACKBONE_WEIGHTS_FILE) };
   checkBackboneFiles(backbone.topology, backbone.weights, meta.backbone, shown);
   return { meta, weights, topology, topologySha256, warnings, backbone };
@@ -130,9 +137,14 @@ async function stagingFolders(dir: string): Promise<string[]> {
 export async function readModelFiles(dir: string): Promise<ModelFiles> {
   const abs = resolve(dir);
   const info = await stat(abs).catch((error: unknown) => {
-    throw new ModelError('model folder not found', { file: dir, hint: 'check the path, or leave the model option out to use the shipped model', cause: error });
+    throw new ModelError('model folder not found', {
+      file: dir,
+      hint: 'check the path, or leave the model option out to use the shipped model',
+      cause: error,
+    });
   });
-  if (!info.isDirectory()) throw new ModelError('a model is a folder, this is a file', { file: dir, hint: `pass the folder that holds ${METADATA_FILE}` });
+  if (!info.isDirectory())
+    throw new ModelError('a model is a folder, this is a file', { file: dir, hint: `pass the folder that holds ${METADATA_FILE}` });
   try {
     return await readSet(abs, dir);
   } catch (error) {
@@ -200,12 +212,21 @@ export async function tidyModelFolder(dir: string): Promise<void> {
     return pid !== undefined && pid !== process.pid && !alive(pid);
   });
   if (dead.length === 0) return;
-  const folderWhole = await readSet(dir, dir).then(() => true, () => false);
+  const folderWhole = await readSet(dir, dir).then(
+    () => true,
+    () => false,
+  );
   if (!folderWhole) {
     for (const staged of await stagingFolders(dir)) {
       if (!dead.some((name) => join(dir, name) === staged)) continue;
       const names = await readdir(staged).catch(() => [] as string[]);
-      if (!(await readSet(staged, dir).then(() => true, () => false))) continue;
+      if (
+        !(await readSet(staged, dir).then(
+          () => true,
+          () => false,
+        ))
+      )
+        continue;
       for (const name of FILES) if (names.includes(name)) await place(staged, dir, name);
       break;
     }

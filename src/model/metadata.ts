@@ -92,7 +92,13 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
     });
   }
   const bins = m.bins as Record<string, unknown> | undefined;
-  if (!bins || typeof bins.count !== 'number' || typeof bins.grid !== 'number' || !isNumberArray(bins.a, bins.count) || !isNumberArray(bins.b, bins.count)) {
+  if (
+    !bins ||
+    typeof bins.count !== 'number' ||
+    typeof bins.grid !== 'number' ||
+    !isNumberArray(bins.a, bins.count) ||
+    !isNumberArray(bins.b, bins.count)
+  ) {
     fail(dir, `${METADATA_FILE} has no valid a*b* bins`);
   }
   if (typeof m.temperature !== 'number' || !(m.temperature > 0)) fail(dir, `${METADATA_FILE} has no valid temperature`);
@@ -134,7 +140,8 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
 function parseBackbone(json: unknown, dir: string): BackboneRecord {
   const r = json as Record<string, unknown> | null;
   const hex = (v: unknown): v is string => typeof v === 'string' && /^[0-9a-f]{64}$/.test(v);
-  if (!r || typeof r.name !== 'string' || !hex(r.topologySha256) || !hex(r.weightsSha256)) fail(dir, `${METADATA_FILE} describes its backbone incompletely`);
+  if (!r || typeof r.name !== 'string' || !hex(r.topologySha256) || !hex(r.weightsSha256))
+    fail(dir, `${METADATA_FILE} describes its backbone incompletely`);
   return { name: r.name, topologySha256: r.topologySha256, weightsSha256: r.weightsSha256 };
 }
 

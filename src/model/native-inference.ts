@@ -34,7 +34,7 @@ interface NetworkSession {
 const networks = new WeakMap<tf.LayersModel, NetworkSession>();
 const graphs = new WeakMap<tf.GraphModel, { session: OnnxSession; input: string; outputs: string }>();
 
-const RUN_ON_TFJS = 'set KINHUE_BACKEND=wasm to run it on TensorFlow.js, and report the model to kinhue\'s maintainers';
+const RUN_ON_TFJS = "set KINHUE_BACKEND=wasm to run it on TensorFlow.js, and report the model to kinhue's maintainers";
 
 function networkSession(network: tf.LayersModel): NetworkSession {
   const weights = network.weights.map((w) => w.read().dataId);
@@ -47,7 +47,12 @@ function networkSession(network: tf.LayersModel): NetworkSession {
   } catch (error) {
     throw new ModelError(`the network cannot run on ONNX Runtime: ${(error as Error).message}`, { hint: RUN_ON_TFJS, cause: error });
   }
-  const made = { weights, session, inputs: network.inputs.map((t) => t.sourceLayer.name), output: `${network.outputs[0]!.sourceLayer.name}:nhwc` };
+  const made = {
+    weights,
+    session,
+    inputs: network.inputs.map((t) => t.sourceLayer.name),
+    output: `${network.outputs[0]!.sourceLayer.name}:nhwc`,
+  };
   networks.set(network, made);
   return made;
 }
@@ -88,7 +93,11 @@ export function runGraph(model: GraphModelFiles, input: tf.Tensor, outputs: read
       const json = JSON.parse(Buffer.from(model.topology).toString('utf8')) as GraphModelJson;
       const placeholder = json.modelTopology.node.find((n) => n.op === 'Placeholder');
       if (!placeholder) throw new Error('the graph has no input');
-      made = { session: new OnnxSession(graphModelToOnnx(json, model.weights, outputs)), input: placeholder.name, outputs: outputs.join('\n') };
+      made = {
+        session: new OnnxSession(graphModelToOnnx(json, model.weights, outputs)),
+        input: placeholder.name,
+        outputs: outputs.join('\n'),
+      };
     } catch (error) {
       throw new ModelError(`the backbone cannot run on ONNX Runtime: ${(error as Error).message}`, { hint: RUN_ON_TFJS, cause: error });
     }

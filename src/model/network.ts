@@ -172,11 +172,13 @@ function layerScale(model: tf.LayersModel, name: string, probe: number): number 
     const convs = model.layers.filter((l) => l.getClassName() === 'Conv2D');
     const probeModel = tf.model({ inputs: model.inputs, outputs: convs.map((l) => l.output as tf.SymbolicTensor) });
     const outs = tf.tidy(() => {
-      const r = probeModel.predict(model.inputs.map((input) => {
-        const channels = input.shape.at(-1) as number;
-        const side = input.name.startsWith(NETWORK_INPUTS[0]) ? probe : input.name.startsWith(NETWORK_INPUTS[1]) ? probe / 8 : probe / 16;
-        return tf.zeros([1, side, side, channels]);
-      }));
+      const r = probeModel.predict(
+        model.inputs.map((input) => {
+          const channels = input.shape.at(-1) as number;
+          const side = input.name.startsWith(NETWORK_INPUTS[0]) ? probe : input.name.startsWith(NETWORK_INPUTS[1]) ? probe / 8 : probe / 16;
+          return tf.zeros([1, side, side, channels]);
+        }),
+      );
       return (Array.isArray(r) ? r : [r]).map((t) => t.shape[1] as number);
     });
     scales = new Map(convs.map((l, i) => [l.name, probe / outs[i]]));

@@ -17,11 +17,7 @@ export interface OnnxTensor {
 }
 
 /** An attribute value, tagged so that 1 (an int) and 1.0 (a float) stay apart. */
-export type OnnxAttribute =
-  | { int: number }
-  | { float: number }
-  | { string: string }
-  | { ints: number[] };
+export type OnnxAttribute = { int: number } | { float: number } | { string: string } | { ints: number[] };
 
 export interface OnnxNode {
   op: string;

@@ -129,7 +129,12 @@ export function graphModelToOnnx(json: GraphModelJson, weightData: Uint8Array, o
       case 'SplitV': {
         const sizes = constant(node, 1);
         const outs = sizes.map((_, k) => (k === 0 ? name : `${name}:${k}`));
-        add({ op: 'Split', inputs: [value(inputs[0]!), int64(`${name}/sizes`, sizes)], outputs: outs, attributes: { axis: { int: constant(node, 2)[0]! } } });
+        add({
+          op: 'Split',
+          inputs: [value(inputs[0]!), int64(`${name}/sizes`, sizes)],
+          outputs: outs,
+          attributes: { axis: { int: constant(node, 2)[0]! } },
+        });
         return;
       }
       case 'Pad':
@@ -153,7 +158,11 @@ export function graphModelToOnnx(json: GraphModelJson, weightData: Uint8Array, o
           name,
           inputs: ['', filter],
           outputs: [],
-          attributes: { strides: { ints: at(a.strides?.list?.i) }, dilations: { ints: at(a.dilations?.list?.i) }, auto_pad: { string: autoPad(node) } },
+          attributes: {
+            strides: { ints: at(a.strides?.list?.i) },
+            dilations: { ints: at(a.dilations?.list?.i) },
+            auto_pad: { string: autoPad(node) },
+          },
         });
         return;
       }
@@ -164,19 +173,26 @@ export function graphModelToOnnx(json: GraphModelJson, weightData: Uint8Array, o
           op: 'MaxPool',
           inputs: [''],
           outputs: [],
-          attributes: { kernel_shape: { ints: at(a.ksize?.list?.i) }, strides: { ints: at(a.strides?.list?.i) }, auto_pad: { string: autoPad(node) } },
+          attributes: {
+            kernel_shape: { ints: at(a.ksize?.list?.i) },
+            strides: { ints: at(a.strides?.list?.i) },
+            auto_pad: { string: autoPad(node) },
+          },
         });
         return;
       }
       case 'ResizeBilinear': {
         // Always channels-last in TensorFlow; the output size is a constant [height, width].
         const transform = a.align_corners?.b ? 'align_corners' : a.half_pixel_centers?.b ? 'half_pixel' : 'asymmetric';
-        channelsFirst({ ...node, attr: { ...a, data_format: { s: btoa('NHWC') } } }, {
-          op: 'Resize',
-          inputs: ['', '', '', int64(`${name}/sizes`, constant(node, 1))],
-          outputs: [],
-          attributes: { mode: { string: 'linear' }, coordinate_transformation_mode: { string: transform }, axes: { ints: [2, 3] } },
-        });
+        channelsFirst(
+          { ...node, attr: { ...a, data_format: { s: btoa('NHWC') } } },
+          {
+            op: 'Resize',
+            inputs: ['', '', '', int64(`${name}/sizes`, constant(node, 1))],
+            outputs: [],
+            attributes: { mode: { string: 'linear' }, coordinate_transformation_mode: { string: transform }, axes: { ints: [2, 3] } },
+          },
+        );
         return;
       }
       default:
@@ -221,7 +237,8 @@ function readConstants(json: GraphModelJson, weightData: Uint8Array): Map<string
   const tensors = tf.io.decodeWeights(buffer, specs);
   const out = new Map<string, Constant>();
   for (const [name, t] of Object.entries(tensors)) {
-    if (t.dtype !== 'float32' && t.dtype !== 'int32') throw new OnnxExportError(`constant ${name} is ${t.dtype}; the export knows float32 and int32`);
+    if (t.dtype !== 'float32' && t.dtype !== 'int32')
+      throw new OnnxExportError(`constant ${name} is ${t.dtype}; the export knows float32 and int32`);
     out.set(name, { dims: t.shape, data: t.dataSync() as Float32Array | Int32Array });
     t.dispose();
   }

@@ -43,7 +43,7 @@ export function networkToOnnx(network: tf.LayersModel): Uint8Array {
   const graph: OnnxGraph = { name: network.name, nodes: [], initializers: [], inputs: [], outputs: [] };
   /** ONNX value (channels-first) of each symbolic tensor, by its id. */
   const values = new Map<number, string>();
-  const valueOf = (t: tf.SymbolicTensor): string => {
+  const onnxValueOf = (t: tf.SymbolicTensor): string => {
     const v = values.get(t.id);
     if (v === undefined) throw new OnnxExportError(`the network's tensor ${t.name} is used before it is made`);
     return v;
@@ -55,7 +55,8 @@ export function networkToOnnx(network: tf.LayersModel): Uint8Array {
     if (!(EXPORTED as readonly string[]).includes(kind)) {
       throw new OnnxExportError(`layer ${layer.name} is a ${kind}, which the ONNX export does not know (it knows ${EXPORTED.join(', ')})`);
     }
-    if (layer.inboundNodes.length !== 1) throw new OnnxExportError(`layer ${layer.name} is applied ${layer.inboundNodes.length} times; the export expects once`);
+    if (layer.inboundNodes.length !== 1)
+      throw new OnnxExportError(`layer ${layer.name} is applied ${layer.inboundNodes.length} times; the export expects once`);
     const inbound = layer.inboundNodes[0]!;
     const output = layer.name;
     if (kind === 'InputLayer') {
@@ -65,7 +66,7 @@ export function networkToOnnx(network: tf.LayersModel): Uint8Array {
       values.set(inbound.outputTensors[0]!.id, output + ':nchw');
       continue;
     }
-    const inputs = inbound.inputTensors.map(valueOf);
+    const inputs = inbound.inputTensors.map(onnxValueOf);
     const config = layer.getConfig() as Record<string, unknown>;
     if (config.dataFormat !== undefined && config.dataFormat !== 'channelsLast') {
       throw new OnnxExportError(`layer ${layer.name} is ${String(config.dataFormat)}; the export expects channelsLast`);
@@ -83,7 +84,8 @@ export function networkToOnnx(network: tf.LayersModel): Uint8Array {
       }
       case 'UpSampling2D': {
         const size = config.size as number[];
-        if ((config.interpolation ?? 'nearest') !== 'nearest') throw new OnnxExportError(`layer ${layer.name} upsamples by ${String(config.interpolation)}; the export knows nearest`);
+        if ((config.interpolation ?? 'nearest') !== 'nearest')
+          throw new OnnxExportError(`layer ${layer.name} upsamples by ${String(config.interpolation)}; the export knows nearest`);
         const scales = `${layer.name}/scales`;
         graph.initializers.push({ name: scales, dims: [4], type: 'float32', data: Float32Array.from([1, 1, size[0]!, size[1]!]) });
         // TensorFlow.js repeats each value: source index floor(i / size), ONNX's asymmetric nearest with floor.
@@ -91,7 +93,11 @@ export function networkToOnnx(network: tf.LayersModel): Uint8Array {
           op: 'Resize',
           inputs: [inputs[0]!, '', scales],
           outputs: [output],
-          attributes: { mode: { string: 'nearest' }, coordinate_transformation_mode: { string: 'asymmetric' }, nearest_mode: { string: 'floor' } },
+          attributes: {
+            mode: { string: 'nearest' },
+            coordinate_transformation_mode: { string: 'asymmetric' },
+            nearest_mode: { string: 'floor' },
+          },
         });
         break;
       }
@@ -105,7 +111,7 @@ export function networkToOnnx(network: tf.LayersModel): Uint8Array {
   for (const out of network.outputs) {
     const name = out.sourceLayer.name;
     graph.outputs.push({ name: `${name}:nhwc`, shape: ['batch', 'height', 'width', out.shape.at(-1) as number] });
-    add({ op: 'Transpose', inputs: [valueOf(out)], outputs: [`${name}:nhwc`], attributes: { perm: { ints: TO_NHWC } } });
+    add({ op: 'Transpose', inputs: [onnxValueOf(out)], outputs: [`${name}:nhwc`], attributes: { perm: { ints: TO_NHWC } } });
   }
   return encodeOnnxModel(graph);
 }
@@ -123,12 +129,18 @@ function convolution(layer: tf.layers.Layer, config: ConvConfig, input: string, 
         for (let o = 0; o < co; o++) oihw[((o * ci + i) * kh + y) * kw + x] = k[((y * kw + x) * ci + i) * co + o]!;
   const tensors: OnnxTensor[] = [{ name: `${layer.name}/kernel`, dims: [co, ci, kh, kw], type: 'float32', data: oihw }];
   if (config.useBias !== false) {
-    tensors.push({ name: `${layer.name}/bias`, dims: [co], type: 'float32', data: Float32Array.from(weights[1]!.dataSync() as Float32Array) });
+    tensors.push({
+      name: `${layer.name}/bias`,
+      dims: [co],
+      type: 'float32',
+      data: Float32Array.from(weights[1]!.dataSync() as Float32Array),
+    });
   }
   graph.initializers.push(...tensors);
   const dilation = typeof config.dilationRate === 'number' ? [config.dilationRate, config.dilationRate] : (config.dilationRate ?? [1, 1]);
   const activation = config.activation ?? 'linear';
-  if (activation !== 'linear' && activation !== 'relu') throw new OnnxExportError(`layer ${layer.name} has activation ${activation}; the export knows relu and linear`);
+  if (activation !== 'linear' && activation !== 'relu')
+    throw new OnnxExportError(`layer ${layer.name} has activation ${activation}; the export knows relu and linear`);
   const convOut = activation === 'relu' ? `${output}/conv` : output;
   graph.nodes.push({
     op: 'Conv',

@@ -106,7 +106,13 @@ export function onnxRuntimeVersion(): string | undefined {
   if (!ort) return undefined;
   try {
     const probe = new OnnxSession(
-      encodeOnnxModel({ name: 'probe', nodes: [{ op: 'Relu', inputs: ['x'], outputs: ['y'] }], initializers: [], inputs: [{ name: 'x', shape: [2] }], outputs: [{ name: 'y', shape: [2] }] }),
+      encodeOnnxModel({
+        name: 'probe',
+        nodes: [{ op: 'Relu', inputs: ['x'], outputs: ['y'] }],
+        initializers: [],
+        inputs: [{ name: 'x', shape: [2] }],
+        outputs: [{ name: 'y', shape: [2] }],
+      }),
       1,
     );
     const [y] = probe.run({ x: { data: Float32Array.from([-1, 2]), dims: [2] } }, ['y']);

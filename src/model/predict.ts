@@ -108,7 +108,8 @@ export function predict(
   const oh = Math.ceil(height / OUTPUT_STRIDE);
   const q = bins.count;
   const input = toNetworkInput(pw === width && ph === height ? L : padPlane(L, width, height, pw, ph));
-  const borrowed = network.inputs.length > 1 ? borrowedFor(L, width, height, pw, ph, options.features, options.backbone ?? own.backbone) : undefined;
+  const borrowed =
+    network.inputs.length > 1 ? borrowedFor(L, width, height, pw, ph, options.features, options.backbone ?? own.backbone) : undefined;
   const pooling = options.pooling ?? own.pooling;
   const raw = tf.tidy(() => {
     const logits = runNetwork(network, networkInputs(input, 1, ph, pw, borrowed));
@@ -140,14 +141,29 @@ export function predict(
 }
 
 /** The backbone's inputs for a picture padded from width x height to pw x ph (the padding repeats the edge). */
-function borrowedFor(L: Float32Array, width: number, height: number, pw: number, ph: number, features?: BackboneFeatures, backbone?: Backbone) {
+function borrowedFor(
+  L: Float32Array,
+  width: number,
+  height: number,
+  pw: number,
+  ph: number,
+  features?: BackboneFeatures,
+  backbone?: Backbone,
+) {
   if (!features && !backbone) throw new RangeError('predict: this network reads a backbone, and none was given');
   const f = features ?? backboneFeatures(backbone!, L, width, height);
   return borrowedInputs(f, { x: 0, y: 0, width: pw / width, height: ph / height }, pw, ph);
 }
 
 /** Log of the region-pooled distributions of `logits` ([pixels, q] over a width x height grid). */
-function pooledLogits(logits: tf.Tensor2D, q: number, guide: Float32Array, width: number, height: number, settings: PoolingSettings): tf.Tensor2D {
+function pooledLogits(
+  logits: tf.Tensor2D,
+  q: number,
+  guide: Float32Array,
+  width: number,
+  height: number,
+  settings: PoolingSettings,
+): tf.Tensor2D {
   // Read outside tf.tidy: tidy walks what it returns looking for tensors, a million-element array index by index.
   const softmax = tf.softmax(logits);
   const probabilities = softmax.dataSync() as Float32Array;

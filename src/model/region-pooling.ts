@@ -53,7 +53,7 @@ export function poolRegions(
   const feedback = new Float32Array(Math.max(width, height));
   for (let k = 0; k < ITERATIONS; k++) {
     // The spatial sigma of each iteration, so that the iterations together give sigma_s (equation 14).
-    const sigma = settings.spatial * Math.sqrt(3) * Math.pow(2, ITERATIONS - k - 1) / Math.sqrt(Math.pow(4, ITERATIONS) - 1);
+    const sigma = (settings.spatial * Math.sqrt(3) * Math.pow(2, ITERATIONS - k - 1)) / Math.sqrt(Math.pow(4, ITERATIONS) - 1);
     const a = Math.exp(-Math.SQRT2 / sigma);
     for (let y = 0; y < height; y++) {
       for (let x = 1; x < width; x++) feedback[x] = Math.pow(a, dx[y * width + x]!);

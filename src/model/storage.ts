@@ -69,8 +69,10 @@ export async function saveModel(
   meta: ModelMetadataInput = {},
   backbone?: Backbone,
 ): Promise<ModelMetadata> {
-  if ((network.inputs.length > 1) !== Boolean(backbone)) {
-    throw new RangeError(`saveModel: a network with ${network.inputs.length} inputs ${backbone ? 'takes no backbone' : 'needs its backbone'}`);
+  if (network.inputs.length > 1 !== Boolean(backbone)) {
+    throw new RangeError(
+      `saveModel: a network with ${network.inputs.length} inputs ${backbone ? 'takes no backbone' : 'needs its backbone'}`,
+    );
   }
   const bins = meta.bins ?? abBins();
   const outChannels = (network.outputs[0].shape as number[]).at(-1);
@@ -143,7 +145,12 @@ export async function loadModel(dir: string): Promise<KinhueModel> {
       cause: error,
     });
   }
-  const bins: AbBins = { a: Float32Array.from(meta.bins.a), b: Float32Array.from(meta.bins.b), count: meta.bins.count, grid: meta.bins.grid };
+  const bins: AbBins = {
+    a: Float32Array.from(meta.bins.a),
+    b: Float32Array.from(meta.bins.b),
+    count: meta.bins.count,
+    grid: meta.bins.grid,
+  };
   const outChannels = (network.outputs[0].shape as number[]).at(-1);
   if (outChannels !== bins.count) {
     network.dispose();
@@ -153,13 +160,23 @@ export async function loadModel(dir: string): Promise<KinhueModel> {
     });
   }
   // The backbone comes from the bytes checked with the rest, which may be a staged set (see folder.ts).
-  const backbone = meta.backbone && files.backbone ? await backboneFrom(files.backbone.topology, files.backbone.weights, meta.backbone.name) : undefined;
-  if ((network.inputs.length > 1) !== Boolean(backbone)) {
+  const backbone =
+    meta.backbone && files.backbone ? await backboneFrom(files.backbone.topology, files.backbone.weights, meta.backbone.name) : undefined;
+  if (network.inputs.length > 1 !== Boolean(backbone)) {
     network.dispose();
     throw new ModelError(`${TOPOLOGY_FILE} and ${METADATA_FILE} disagree on whether the network reads a backbone`, {
       file: dir,
       hint: 'restore the folder from where it came, or train or tune it again',
     });
   }
-  return { network, meta, bins, classWeights: Float32Array.from(meta.classWeights), dir: abs, topologySha256, warnings, ...(backbone ? { backbone } : {}) };
+  return {
+    network,
+    meta,
+    bins,
+    classWeights: Float32Array.from(meta.classWeights),
+    dir: abs,
+    topologySha256,
+    warnings,
+    ...(backbone ? { backbone } : {}),
+  };
 }

@@ -135,7 +135,8 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
   }
 
   function applyGradients(grads: (Float32Array | null)[]): void {
-    if (grads.length !== slots.length) throw new RangeError(`trainer.applyGradients: ${grads.length} gradients for ${slots.length} weights`);
+    if (grads.length !== slots.length)
+      throw new RangeError(`trainer.applyGradients: ${grads.length} gradients for ${slots.length} weights`);
     const t = steps + 1;
     const correct1 = 1 - Math.pow(beta1, t);
     const correct2 = 1 - Math.pow(beta2, t);
@@ -143,7 +144,8 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
       slots.forEach((slot, i) => {
         const g = grads[i];
         if (!g) return;
-        if (g.length !== slot.m.size) throw new RangeError(`trainer.applyGradients: ${g.length} values for ${slot.name}, expected ${slot.m.size}`);
+        if (g.length !== slot.m.size)
+          throw new RangeError(`trainer.applyGradients: ${g.length} values for ${slot.name}, expected ${slot.m.size}`);
         adam(slot, tf.tensor(g, slot.m.shape), correct1, correct2);
       });
     });
@@ -165,7 +167,7 @@ export function createTrainer(network: tf.LayersModel, options: TrainerOptions):
 
   function setState(state: TrainerState): void {
     if (state.beta1 !== beta1 || state.beta2 !== beta2 || state.epsilon !== epsilon) {
-      throw new RangeError('trainer.setState: the saved Adam settings differ from this trainer\'s');
+      throw new RangeError("trainer.setState: the saved Adam settings differ from this trainer's");
     }
     if (state.moments.length !== slots.length) {
       throw new RangeError(`trainer.setState: the state has ${state.moments.length} weights, this network trains ${slots.length}`);
@@ -241,7 +243,9 @@ function lossFunction(
   borrowed: BorrowedInputs | undefined,
 ): () => tf.Scalar {
   if (network.inputs.length !== (borrowed ? NETWORK_INPUTS.length : 1)) {
-    throw new RangeError(`the network reads ${network.inputs.length === 1 ? 'L* alone' : "the backbone's features beside L*"}, but the batch ${borrowed ? 'carries' : 'lacks'} them`);
+    throw new RangeError(
+      `the network reads ${network.inputs.length === 1 ? 'L* alone' : "the backbone's features beside L*"}, but the batch ${borrowed ? 'carries' : 'lacks'} them`,
+    );
   }
   const x = networkInputs(toNetworkInput(L), n, h, w, borrowed);
   const target = tf.tensor4d(targets.target, [n, targets.height, targets.width, q]);
@@ -321,7 +325,13 @@ export function createGradientComputer(network: tf.LayersModel, options: Gradien
  * @example
  * const x = networkInputs(toNetworkInput(L), 1, 384, 512, borrowed);
  */
-export function networkInputs(input: Float32Array, n: number, h: number, w: number, borrowed?: BorrowedInputs): tf.Tensor4D | tf.Tensor4D[] {
+export function networkInputs(
+  input: Float32Array,
+  n: number,
+  h: number,
+  w: number,
+  borrowed?: BorrowedInputs,
+): tf.Tensor4D | tf.Tensor4D[] {
   const lightness = tf.tensor4d(input, [n, h, w, 1]);
   if (!borrowed) return lightness;
   const C = BACKBONE_CHANNELS;

@@ -94,15 +94,37 @@ function conv2DBackpropFilter(args: { inputs: tf.NamedTensorInfoMap; backend: tf
     temps.push(src);
   }
   if (top > 0 || left > 0 || bottom > 0 || right > 0) {
-    src = run('PadV2', backend, { x: src }, { paddings: [[0, 0], [top, Math.max(0, bottom)], [left, Math.max(0, right)], [0, 0]], constantValue: 0 });
+    src = run(
+      'PadV2',
+      backend,
+      { x: src },
+      {
+        paddings: [
+          [0, 0],
+          [top, Math.max(0, bottom)],
+          [left, Math.max(0, right)],
+          [0, 0],
+        ],
+        constantValue: 0,
+      },
+    );
     temps.push(src);
   }
   const xT = run('Transpose', backend, { x: src }, { perm: [3, 1, 2, 0] });
   release(backend, ...temps);
   const dyT = run('Transpose', backend, { x: dy }, { perm: [1, 2, 0, 3] });
-  const prod = run('Conv2D', backend, { x: xT, filter: dyT }, {
-    strides: [1, 1], pad: 'valid', dataFormat: 'NHWC', dilations: [sh, sw], dimRoundingMode: undefined,
-  });
+  const prod = run(
+    'Conv2D',
+    backend,
+    { x: xT, filter: dyT },
+    {
+      strides: [1, 1],
+      pad: 'valid',
+      dataFormat: 'NHWC',
+      dilations: [sh, sw],
+      dimRoundingMode: undefined,
+    },
+  );
   release(backend, xT, dyT);
   const out = run('Transpose', backend, { x: prod }, { perm: [1, 2, 0, 3] });
   release(backend, prod);
@@ -141,18 +163,49 @@ function makeConv2DBackpropInput(original: tf.KernelFunc) {
     let dz = dy;
     if (sh > 1 || sw > 1) {
       const r1 = run('Reshape', backend, { x: dy }, { shape: [n * ho, wo, 1, co] });
-      const p1 = run('PadV2', backend, { x: r1 }, { paddings: [[0, 0], [0, 0], [0, sw - 1], [0, 0]], constantValue: 0 });
+      const p1 = run(
+        'PadV2',
+        backend,
+        { x: r1 },
+        {
+          paddings: [
+            [0, 0],
+            [0, 0],
+            [0, sw - 1],
+            [0, 0],
+          ],
+          constantValue: 0,
+        },
+      );
       const r2 = run('Reshape', backend, { x: p1 }, { shape: [n, ho, 1, wo * sw * co] });
-      const p2 = run('PadV2', backend, { x: r2 }, { paddings: [[0, 0], [0, 0], [0, sh - 1], [0, 0]], constantValue: 0 });
+      const p2 = run(
+        'PadV2',
+        backend,
+        { x: r2 },
+        {
+          paddings: [
+            [0, 0],
+            [0, 0],
+            [0, sh - 1],
+            [0, 0],
+          ],
+          constantValue: 0,
+        },
+      );
       dz = run('Reshape', backend, { x: p2 }, { shape: [n, ho * sh, wo * sw, co] });
       release(backend, r1, p1, r2, p2);
       temps.push(dz);
     }
     if (padBottom < 0 || padRight < 0) {
-      const cut = run('Slice', backend, { x: dz }, {
-        begin: [0, 0, 0, 0],
-        size: [n, ho * sh + Math.min(0, padBottom), wo * sw + Math.min(0, padRight), co],
-      });
+      const cut = run(
+        'Slice',
+        backend,
+        { x: dz },
+        {
+          begin: [0, 0, 0, 0],
+          size: [n, ho * sh + Math.min(0, padBottom), wo * sw + Math.min(0, padRight), co],
+        },
+      );
       temps.push(cut);
       dz = cut;
       padBottom = Math.max(0, padBottom);
@@ -161,13 +214,23 @@ function makeConv2DBackpropInput(original: tf.KernelFunc) {
     const flipped = run('Reverse', backend, { x: filter }, { dims: [0, 1] });
     const swapped = run('Transpose', backend, { x: flipped }, { perm: [0, 1, 3, 2] });
     release(backend, flipped);
-    const out = run('Conv2D', backend, { x: dz, filter: swapped }, {
-      strides: [1, 1],
-      pad: [[0, 0], [padTop, padBottom], [padLeft, padRight], [0, 0]],
-      dataFormat: 'NHWC',
-      dilations: [1, 1],
-      dimRoundingMode: undefined,
-    });
+    const out = run(
+      'Conv2D',
+      backend,
+      { x: dz, filter: swapped },
+      {
+        strides: [1, 1],
+        pad: [
+          [0, 0],
+          [padTop, padBottom],
+          [padLeft, padRight],
+          [0, 0],
+        ],
+        dataFormat: 'NHWC',
+        dilations: [1, 1],
+        dimRoundingMode: undefined,
+      },
+    );
     release(backend, swapped, ...temps);
     return out;
   };

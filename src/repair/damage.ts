@@ -151,7 +151,10 @@ function drawPolyline(s: Stroke, w: number, h: number, p: number[], width: numbe
   const half = width / 2;
   const reach = half + soft + 1;
   for (let k = 0; k + 3 < p.length; k += 2) {
-    const ax = p[k]!, ay = p[k + 1]!, bx = p[k + 2]!, by = p[k + 3]!;
+    const ax = p[k]!,
+      ay = p[k + 1]!,
+      bx = p[k + 2]!,
+      by = p[k + 3]!;
     grow(s, Math.min(ax, bx) - reach, Math.min(ay, by) - reach, Math.max(ax, bx) + reach, Math.max(ay, by) + reach);
     const dx = bx - ax;
     const dy = by - ay;
@@ -187,7 +190,8 @@ function grow(s: Stroke, x0: number, y0: number, x1: number, y1: number): void {
 
 function poisson(rng: Random, mean: number): number {
   // Knuth's method for small means; a normal approximation beyond (common practice).
-  if (mean > 30) return Math.max(0, Math.round(mean + Math.sqrt(mean) * Math.sqrt(-2 * Math.log(1 - rng.next())) * Math.cos(2 * Math.PI * rng.next())));
+  if (mean > 30)
+    return Math.max(0, Math.round(mean + Math.sqrt(mean) * Math.sqrt(-2 * Math.log(1 - rng.next())) * Math.cos(2 * Math.PI * rng.next())));
   const limit = Math.exp(-mean);
   let k = 0;
   let p = rng.next();

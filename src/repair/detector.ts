@@ -106,7 +106,7 @@ export function detectDamage(L: Float32Array, w: number, h: number, settings: De
           const q = yy * w + xx;
           if (mask[q]) continue;
           const r = response[q]!;
-          if ((r > 0) === sign && Math.abs(r) >= Math.max(growFloor, settings.growRatio * threshold[q]!)) {
+          if (r > 0 === sign && Math.abs(r) >= Math.max(growFloor, settings.growRatio * threshold[q]!)) {
             mask[q] = 1;
             stack.push(q);
           }

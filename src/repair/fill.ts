@@ -10,7 +10,11 @@
  * @example
  *   const out = keepUnmasked(scan, candidate, mask); // out[i] === scan[i] wherever mask[i] === 0
  */
-export function keepUnmasked<T extends Float32Array | Uint8Array | Uint16Array>(original: T, repaired: ArrayLike<number>, mask: Uint8Array): T {
+export function keepUnmasked<T extends Float32Array | Uint8Array | Uint16Array>(
+  original: T,
+  repaired: ArrayLike<number>,
+  mask: Uint8Array,
+): T {
   if (original.length !== mask.length || repaired.length !== mask.length) {
     throw new RangeError(`keepUnmasked: ${original.length} original, ${repaired.length} repaired and ${mask.length} mask values`);
   }

@@ -21,7 +21,10 @@ export interface DetectionFigures {
 export function detectionFigures(found: Uint8Array, truth: Uint8Array, w: number, h: number, tolerance = 2): DetectionFigures {
   const nearTruth = dilateMask(truth, w, h, tolerance);
   const nearFound = dilateMask(found, w, h, tolerance);
-  let f = 0, fRight = 0, t = 0, tFound = 0;
+  let f = 0,
+    fRight = 0,
+    t = 0,
+    tFound = 0;
   for (let i = 0; i < truth.length; i++) {
     if (found[i]) {
       f++;
@@ -37,7 +40,10 @@ export function detectionFigures(found: Uint8Array, truth: Uint8Array, w: number
 
 /** Sums of detection counts over many pictures, for pooled figures. */
 export function poolDetection(items: DetectionFigures[]): DetectionFigures {
-  let right = 0, found = 0, hit = 0, damaged = 0;
+  let right = 0,
+    found = 0,
+    hit = 0,
+    damaged = 0;
   for (const d of items) {
     right += d.precision * d.found;
     found += d.found;
@@ -49,7 +55,8 @@ export function poolDetection(items: DetectionFigures[]): DetectionFigures {
 
 /** Squared error of `estimate` against `truth` summed over the masked pixels, with their count. */
 export function maskedSquaredError(estimate: Float32Array, truth: Float32Array, mask: Uint8Array): { sum: number; count: number } {
-  let sum = 0, count = 0;
+  let sum = 0,
+    count = 0;
   for (let i = 0; i < mask.length; i++) {
     if (!mask[i]) continue;
     const d = estimate[i]! - truth[i]!;
@@ -75,7 +82,8 @@ export interface ChangeFigures {
 
 /** How much a repair changed a picture that had nothing to repair. */
 export function changeFigures(before: Float32Array, after: Float32Array): ChangeFigures {
-  let changed = 0, sum = 0;
+  let changed = 0,
+    sum = 0;
   for (let i = 0; i < before.length; i++) {
     const d = Math.abs(after[i]! - before[i]!);
     if (d > 0) changed++;

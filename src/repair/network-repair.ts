@@ -37,7 +37,10 @@ export interface NetworkRepair {
  *   const { mask, filled } = networkRepair(L, width, height, await loadRepairModel());
  */
 export function networkRepair(
-  L: Float32Array, w: number, h: number, model: RepairModel,
+  L: Float32Array,
+  w: number,
+  h: number,
+  model: RepairModel,
   options: { threshold?: number; detection?: RepairModel['meta']['detection'] } = {},
 ): NetworkRepair {
   const threshold = options.threshold ?? model.meta.threshold;
@@ -77,7 +80,13 @@ export function networkRepair(
  * The network's damage probability and undamaged L* on the given 32-pixel blocks (numbered row by row;
  * all blocks when none are given). Outside them: probability 0 and the input's L*.
  */
-export function networkPlanes(L: Float32Array, w: number, h: number, model: RepairModel, blocks?: number[]): { probability: Float32Array; lightness: Float32Array } {
+export function networkPlanes(
+  L: Float32Array,
+  w: number,
+  h: number,
+  model: RepairModel,
+  blocks?: number[],
+): { probability: Float32Array; lightness: Float32Array } {
   const bw = Math.ceil(w / BLOCK);
   const list = blocks ?? Array.from({ length: bw * Math.ceil(h / BLOCK) }, (_, i) => i);
   const probability = new Float32Array(w * h);

@@ -18,7 +18,15 @@ export const REPAIR_MULTIPLE = 4;
 export function createRepairNetwork(seed = 1): tf.LayersModel {
   let next = seed;
   const conv = (name: string, filters: number, stride = 1) =>
-    tf.layers.conv2d({ name, filters, kernelSize: 3, strides: stride, padding: 'same', activation: 'relu', kernelInitializer: tf.initializers.heNormal({ seed: next++ }) });
+    tf.layers.conv2d({
+      name,
+      filters,
+      kernelSize: 3,
+      strides: stride,
+      padding: 'same',
+      activation: 'relu',
+      kernelInitializer: tf.initializers.heNormal({ seed: next++ }),
+    });
   const apply = (layer: tf.layers.Layer, x: tf.SymbolicTensor | tf.SymbolicTensor[]) => layer.apply(x) as tf.SymbolicTensor;
   const up = (name: string, x: tf.SymbolicTensor) => apply(tf.layers.upSampling2d({ name, size: [2, 2] }), x);
   const join = (name: string, parts: tf.SymbolicTensor[]) => apply(tf.layers.concatenate({ name }), parts);
@@ -30,7 +38,10 @@ export function createRepairNetwork(seed = 1): tf.LayersModel {
   x = apply(conv('enc3b', 24), x);
   x = apply(conv('dec2', 16), join('dec2_join', [up('dec2_up', x), half]));
   x = apply(conv('dec1', 12), join('dec1_join', [up('dec1_up', x), full, input]));
-  const out = apply(tf.layers.conv2d({ name: 'repair', filters: 2, kernelSize: 1, kernelInitializer: tf.initializers.glorotUniform({ seed: next++ }) }), x);
+  const out = apply(
+    tf.layers.conv2d({ name: 'repair', filters: 2, kernelSize: 1, kernelInitializer: tf.initializers.glorotUniform({ seed: next++ }) }),
+    x,
+  );
   return tf.model({ inputs: input, outputs: out, name: 'kinhue-repair' });
 }
 

@@ -48,7 +48,11 @@ export interface RepairModel {
  * @example
  *   await saveRepairModel(net, 'models/kinhue-repair', { name: 'kinhue-repair', threshold: 0.5, training: { steps: 900 } });
  */
-export async function saveRepairModel(network: tf.LayersModel, dir: string, meta: Pick<RepairModelMeta, 'name' | 'threshold' | 'fill' | 'detection' | 'training'>): Promise<RepairModelMeta> {
+export async function saveRepairModel(
+  network: tf.LayersModel,
+  dir: string,
+  meta: Pick<RepairModelMeta, 'name' | 'threshold' | 'fill' | 'detection' | 'training'>,
+): Promise<RepairModelMeta> {
   let artifacts: tf.io.ModelArtifacts | undefined;
   await network.save({
     save: async (a: tf.io.ModelArtifacts) => {
@@ -63,7 +67,13 @@ export async function saveRepairModel(network: tf.LayersModel, dir: string, meta
     modelTopology: artifacts.modelTopology,
     weightsManifest: [{ paths: [WEIGHTS], weights: artifacts.weightSpecs }],
   });
-  const full: RepairModelMeta = { format: 'kinhue-repair', version: 1, ...meta, weightsSha256: sha256(weights), topologySha256: sha256(topology) };
+  const full: RepairModelMeta = {
+    format: 'kinhue-repair',
+    version: 1,
+    ...meta,
+    weightsSha256: sha256(weights),
+    topologySha256: sha256(topology),
+  };
   await mkdir(dir, { recursive: true });
   await writeFileAtomic(join(dir, WEIGHTS), weights);
   await writeFileAtomic(join(dir, TOPOLOGY), topology);
@@ -79,9 +89,10 @@ export async function saveRepairModel(network: tf.LayersModel, dir: string, meta
 export async function loadRepairModel(dir: string = DEFAULT_REPAIR_MODEL_DIR): Promise<RepairModel> {
   const abs = resolve(dir);
   const hint = 'restore the folder from where it came, or rebuild it with npm run train:repair';
-  const read = (name: string) => readFile(join(abs, name)).catch((cause: unknown) => {
-    throw new ModelError(`the repair model has no readable ${name}`, { file: join(dir, name), hint, cause });
-  });
+  const read = (name: string) =>
+    readFile(join(abs, name)).catch((cause: unknown) => {
+      throw new ModelError(`the repair model has no readable ${name}`, { file: join(dir, name), hint, cause });
+    });
   const [metaText, topologyText, weights] = await Promise.all([read(REPAIR_META_FILE), read(TOPOLOGY), read(WEIGHTS)]);
   let meta: RepairModelMeta;
   try {
@@ -89,16 +100,35 @@ export async function loadRepairModel(dir: string = DEFAULT_REPAIR_MODEL_DIR): P
   } catch (cause) {
     throw new ModelError(`${REPAIR_META_FILE} is not JSON`, { file: join(dir, REPAIR_META_FILE), hint, cause });
   }
-  if (meta.format !== 'kinhue-repair' || (meta.fill !== 'network' && meta.fill !== 'median') || (meta.detection !== 'network' && meta.detection !== 'confirmed') || !(meta.threshold > 0 && meta.threshold < 1)) {
-    throw new ModelError(`${REPAIR_META_FILE} does not describe a kinhue repair model (format, fill, detection and threshold)`, { file: join(dir, REPAIR_META_FILE), hint });
+  if (
+    meta.format !== 'kinhue-repair' ||
+    (meta.fill !== 'network' && meta.fill !== 'median') ||
+    (meta.detection !== 'network' && meta.detection !== 'confirmed') ||
+    !(meta.threshold > 0 && meta.threshold < 1)
+  ) {
+    throw new ModelError(`${REPAIR_META_FILE} does not describe a kinhue repair model (format, fill, detection and threshold)`, {
+      file: join(dir, REPAIR_META_FILE),
+      hint,
+    });
   }
   if (sha256(weights) !== meta.weightsSha256 || sha256(topologyText) !== meta.topologySha256) {
-    throw new ModelError(`${WEIGHTS} or ${TOPOLOGY} does not match the SHA-256 in ${REPAIR_META_FILE} (damaged or edited)`, { file: dir, hint });
+    throw new ModelError(`${WEIGHTS} or ${TOPOLOGY} does not match the SHA-256 in ${REPAIR_META_FILE} (damaged or edited)`, {
+      file: dir,
+      hint,
+    });
   }
-  const topology = JSON.parse(topologyText.toString('utf8')) as { modelTopology: object; weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[] };
+  const topology = JSON.parse(topologyText.toString('utf8')) as {
+    modelTopology: object;
+    weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[];
+  };
   const buffer = weights.buffer.slice(weights.byteOffset, weights.byteOffset + weights.byteLength) as ArrayBuffer;
   const network = await tf.loadLayersModel({
-    load: async () => ({ modelTopology: topology.modelTopology, weightSpecs: topology.weightsManifest.flatMap((g) => g.weights), weightData: buffer, format: 'layers-model' }),
+    load: async () => ({
+      modelTopology: topology.modelTopology,
+      weightSpecs: topology.weightsManifest.flatMap((g) => g.weights),
+      weightData: buffer,
+      format: 'layers-model',
+    }),
   });
   return { network, meta, dir: abs };
 }

@@ -57,7 +57,11 @@ const TRAINING_DAMAGE = 700;
 export async function repairPhotoSplit(folder: string): Promise<{ train: string[]; holdout: string[] }> {
   const abs = resolve(folder);
   const names = (await readdir(abs)).filter((n) => IMAGE.has(extname(n).toLowerCase())).sort();
-  const split = splitHoldout(names.map((n) => ({ file: join(abs, n) })), 0.1, 1);
+  const split = splitHoldout(
+    names.map((n) => ({ file: join(abs, n) })),
+    0.1,
+    1,
+  );
   return { train: split.train.map((f) => f.file), holdout: split.holdout.map((f) => f.file) };
 }
 
@@ -89,11 +93,24 @@ export async function trainRepairModel(
   let lastSave = started;
   const budget = (options.minutes ?? Infinity) * 60_000;
   const record = (step: number) => ({
-    photos: photos.length, heldOut: split.holdout.length, steps: step, crop, batch, seed,
-    learningRate: options.learningRate ?? 2e-3, damagePerMegapixel: TRAINING_DAMAGE, minutes: Number(((performance.now() - started) / 60_000).toFixed(1)),
+    photos: photos.length,
+    heldOut: split.holdout.length,
+    steps: step,
+    crop,
+    batch,
+    seed,
+    learningRate: options.learningRate ?? 2e-3,
+    damagePerMegapixel: TRAINING_DAMAGE,
+    minutes: Number(((performance.now() - started) / 60_000).toFixed(1)),
   });
   const save = async (step: number): Promise<RepairModelMeta> => {
-    const meta = await saveRepairModel(network, options.out, { name: 'kinhue-repair', threshold: 0.5, fill: 'network', detection: 'network', training: record(step) });
+    const meta = await saveRepairModel(network, options.out, {
+      name: 'kinhue-repair',
+      threshold: 0.5,
+      fill: 'network',
+      detection: 'network',
+      training: record(step),
+    });
     onEvent({ type: 'saved', step, dir: options.out });
     lastSave = performance.now();
     return meta;
@@ -134,11 +151,26 @@ export async function trainRepairModel(
       return values;
     });
     step++;
-    onEvent({ type: 'step', step, loss: losses[0]!, maskLoss: losses[1]!, fillLoss: losses[2]!, seconds: (performance.now() - started) / 1000 });
+    onEvent({
+      type: 'step',
+      step,
+      loss: losses[0]!,
+      maskLoss: losses[1]!,
+      fillLoss: losses[2]!,
+      seconds: (performance.now() - started) / 1000,
+    });
     if (performance.now() - lastSave > (options.saveMinutes ?? 5) * 60_000) await save(step);
   }
-  const chosen = chooseRepairSettings({ network, meta: { ...placeholderMeta, training: {} }, dir: options.out }, photos.slice(-VALIDATION_PHOTOS), seed);
-  const meta = await saveRepairModel(network, options.out, { name: 'kinhue-repair', ...chosen.settings, training: { ...record(step), choice: chosen.figures } });
+  const chosen = chooseRepairSettings(
+    { network, meta: { ...placeholderMeta, training: {} }, dir: options.out },
+    photos.slice(-VALIDATION_PHOTOS),
+    seed,
+  );
+  const meta = await saveRepairModel(network, options.out, {
+    name: 'kinhue-repair',
+    ...chosen.settings,
+    training: { ...record(step), choice: chosen.figures },
+  });
   onEvent({ type: 'saved', step, dir: options.out });
   return { steps: step, seconds: (performance.now() - started) / 1000, meta };
 }
@@ -147,13 +179,25 @@ export async function trainRepairModel(
 export const VALIDATION_PHOTOS = 12;
 
 const placeholderMeta: RepairModelMeta = {
-  format: 'kinhue-repair', version: 1, name: 'kinhue-repair', weightsSha256: '', topologySha256: '', threshold: 0.5, fill: 'network', detection: 'network', training: {},
+  format: 'kinhue-repair',
+  version: 1,
+  name: 'kinhue-repair',
+  weightsSha256: '',
+  topologySha256: '',
+  threshold: 0.5,
+  fill: 'network',
+  detection: 'network',
+  training: {},
 };
 
 /** Detection modes and thresholds tried when a run ends. */
 const CHOICES: Array<Pick<RepairModelMeta, 'detection' | 'threshold'>> = [
-  { detection: 'network', threshold: 0.5 }, { detection: 'network', threshold: 0.7 }, { detection: 'network', threshold: 0.85 },
-  { detection: 'confirmed', threshold: 0.3 }, { detection: 'confirmed', threshold: 0.5 }, { detection: 'confirmed', threshold: 0.7 },
+  { detection: 'network', threshold: 0.5 },
+  { detection: 'network', threshold: 0.7 },
+  { detection: 'network', threshold: 0.85 },
+  { detection: 'confirmed', threshold: 0.3 },
+  { detection: 'confirmed', threshold: 0.5 },
+  { detection: 'confirmed', threshold: 0.7 },
 ];
 
 /**
@@ -162,7 +206,11 @@ const CHOICES: Array<Pick<RepairModelMeta, 'detection' | 'threshold'>> = [
  * undamaged and grainy (kinhue's own weighing: one percent of a clean scan changed costs 0.1 of F1), and
  * the fill (network or median) with the higher PSNR on the true mask.
  */
-export function chooseRepairSettings(model: RepairModel, photos: Photo[], seed: number): {
+export function chooseRepairSettings(
+  model: RepairModel,
+  photos: Photo[],
+  seed: number,
+): {
   settings: Pick<RepairModelMeta, 'detection' | 'threshold' | 'fill'>;
   figures: Record<string, number | string>;
 } {
@@ -176,11 +224,13 @@ export function chooseRepairSettings(model: RepairModel, photos: Photo[], seed: 
   let best: { score: number; choice: (typeof CHOICES)[number]; f1: number; changed: number } | undefined;
   for (const choice of CHOICES) {
     const found = cases.map(({ p, damaged }) =>
-      detectionFigures(networkRepair(damaged.L, p.width, p.height, model, choice).mask, damaged.mask, p.width, p.height, 2));
+      detectionFigures(networkRepair(damaged.L, p.width, p.height, model, choice).mask, damaged.mask, p.width, p.height, 2),
+    );
     const pooled = poolDetection(found);
     const f1 = pooled.precision + pooled.recall > 0 ? (2 * pooled.precision * pooled.recall) / (pooled.precision + pooled.recall) : 0;
     let changed = 0;
-    for (const { p, clean } of cases) changed += networkRepair(clean, p.width, p.height, model, choice).mask.reduce((s, m) => s + m, 0) / (p.width * p.height);
+    for (const { p, clean } of cases)
+      changed += networkRepair(clean, p.width, p.height, model, choice).mask.reduce((s, m) => s + m, 0) / (p.width * p.height);
     changed /= cases.length;
     const score = f1 - 10 * changed;
     if (!best || score > best.score) best = { score, choice, f1, changed };
@@ -197,7 +247,11 @@ export function chooseRepairSettings(model: RepairModel, photos: Photo[], seed: 
   return {
     settings: { ...best!.choice, fill },
     figures: {
-      photos: photos.length, f1: round(best!.f1), changedShare: round(best!.changed), networkFillPsnr: round(psnrOf(net)), medianFillPsnr: round(psnrOf(median)),
+      photos: photos.length,
+      f1: round(best!.f1),
+      changedShare: round(best!.changed),
+      networkFillPsnr: round(psnrOf(net)),
+      medianFillPsnr: round(psnrOf(median)),
     },
   };
 }

@@ -75,7 +75,10 @@ export function repairScan(px: Pixels, options: ScanRepairOptions = {}): ScanRep
       values.push(filled[i]!);
       at.push(top * w + i);
     }
-    const grey = lightnessToGrey(Float32Array.from(values), px.depth === 16 ? new Uint16Array(values.length) : new Uint8Array(values.length));
+    const grey = lightnessToGrey(
+      Float32Array.from(values),
+      px.depth === 16 ? new Uint16Array(values.length) : new Uint8Array(values.length),
+    );
     for (let k = 0; k < at.length; k++) {
       const p = at[k]!;
       mask[p] = 1;

@@ -40,22 +40,30 @@ export function histogramSvg(fractions: readonly number[]): string {
   const peak = Math.max(...fractions, 1e-9);
   const barWidth = WIDTH / bins;
   const plot = HEIGHT - AXIS;
-  const bars = fractions.map((f, i) => {
-    const h = Math.max(f > 0 ? 1 : 0, (f / peak) * (plot - 2));
-    const lo = (i / bins).toFixed(1), hi = ((i + 1) / bins).toFixed(1);
-    const shade = barShade((i + 0.5) / bins);
-    return `<rect x="${(i * barWidth + 1).toFixed(1)}" y="${(plot - h).toFixed(1)}" width="${(barWidth - 2).toFixed(1)}" ` +
-      `height="${h.toFixed(1)}" fill="${shade}"><title>confidence ${lo} to ${hi}: ${(f * 100).toFixed(1)}% of pixels</title></rect>`;
-  }).join('');
-  return `<svg class="hist" role="img" viewBox="0 0 ${WIDTH} ${HEIGHT}" width="${WIDTH}" height="${HEIGHT}" ` +
+  const bars = fractions
+    .map((f, i) => {
+      const h = Math.max(f > 0 ? 1 : 0, (f / peak) * (plot - 2));
+      const lo = (i / bins).toFixed(1),
+        hi = ((i + 1) / bins).toFixed(1);
+      const shade = barShade((i + 0.5) / bins);
+      return (
+        `<rect x="${(i * barWidth + 1).toFixed(1)}" y="${(plot - h).toFixed(1)}" width="${(barWidth - 2).toFixed(1)}" ` +
+        `height="${h.toFixed(1)}" fill="${shade}"><title>confidence ${lo} to ${hi}: ${(f * 100).toFixed(1)}% of pixels</title></rect>`
+      );
+    })
+    .join('');
+  return (
+    `<svg class="hist" role="img" viewBox="0 0 ${WIDTH} ${HEIGHT}" width="${WIDTH}" height="${HEIGHT}" ` +
     `aria-label="confidence distribution">${bars}` +
     `<line x1="0" y1="${plot + 0.5}" x2="${WIDTH}" y2="${plot + 0.5}" stroke="#8a8f98" stroke-width="1"/>` +
-    `<text x="0" y="${HEIGHT - 2}">unsure</text><text x="${WIDTH}" y="${HEIGHT - 2}" text-anchor="end">sure</text></svg>`;
+    `<text x="0" y="${HEIGHT - 2}">unsure</text><text x="${WIDTH}" y="${HEIGHT - 2}" text-anchor="end">sure</text></svg>`
+  );
 }
 
 /** Bar colour: a warm ochre for low confidence through to a calm teal for high. */
 function barShade(t: number): string {
-  const from = [196, 120, 52], to = [44, 122, 123];
+  const from = [196, 120, 52],
+    to = [44, 122, 123];
   const c = from.map((v, k) => Math.round(v + (to[k] - v) * t));
   return `rgb(${c[0]},${c[1]},${c[2]})`;
 }

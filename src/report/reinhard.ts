@@ -70,7 +70,8 @@ export function reinhardTransfer(source: LabPlanes, target: LabStatistics, optio
   for (const name of channels) {
     const c = CHANNELS.indexOf(name);
     const plane = out[name];
-    const ms = stats.mean[c], mt = target.mean[c];
+    const ms = stats.mean[c],
+      mt = target.mean[c];
     if (stats.sd[c] < 1e-6) {
       plane.fill(mt);
       continue;

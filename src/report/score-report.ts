@@ -126,12 +126,22 @@ const COLUMNS = [
 
 function figureCells(f: ScoreFigures): string[] {
   return [
-    formatFigure(f.psnr, 2), formatFigure(f.ciede2000, 2), formatFigure(f.abError, 2), formatFigure(f.colourfulness, 1),
-    formatFigure(f.rightHue, 1), formatFigure(f.falseColour, 1), formatFigure(f.leftGrey, 1),
+    formatFigure(f.psnr, 2),
+    formatFigure(f.ciede2000, 2),
+    formatFigure(f.abError, 2),
+    formatFigure(f.colourfulness, 1),
+    formatFigure(f.rightHue, 1),
+    formatFigure(f.falseColour, 1),
+    formatFigure(f.leftGrey, 1),
   ];
 }
 
-function block(name: string, originalColourfulness: number, figures: Record<string, ScoreFigures>, methods: readonly ScoreMethod[]): (string[] | TableSpan)[] {
+function block(
+  name: string,
+  originalColourfulness: number,
+  figures: Record<string, ScoreFigures>,
+  methods: readonly ScoreMethod[],
+): (string[] | TableSpan)[] {
   return [
     { span: name },
     ['  original', '', '', '', formatFigure(originalColourfulness, 1)],
@@ -160,27 +170,43 @@ export function formatScoreTable(report: ScoreReport): string {
   const parts: string[] = [];
   if (rows.length) {
     parts.push(renderTable(COLUMNS, rows));
-    parts.push('Higher is better: PSNR, right hue. Lower is better: CIEDE2000, a*b* error, false colour, left grey.\n' +
-      "Colourfulness: closer to the original's is better.");
+    parts.push(
+      'Higher is better: PSNR, right hue. Lower is better: CIEDE2000, a*b* error, false colour, left grey.\n' +
+        "Colourfulness: closer to the original's is better.",
+    );
   } else {
     parts.push('No photo could be scored.');
   }
   if (report.verdicts.length && average) {
     parts.push(
       `Verdict (averages of ${average.photos} photo${average.photos === 1 ? '' : 's'}; under ${CIEDE2000_MARGIN} CIEDE2000 ` +
-        `or ${RIGHT_HUE_MARGIN} points of right hue is no difference):\n` + report.verdicts.map((v) => `  ${v.text}`).join('\n'),
+        `or ${RIGHT_HUE_MARGIN} points of right hue is no difference):\n` +
+        report.verdicts.map((v) => `  ${v.text}`).join('\n'),
     );
   }
   if (report.failures.length) {
-    parts.push(`Not scored (${report.failures.length}):\n` + report.failures.map((f) => `  ${f.file}: ${f.message}${f.hint ? `\n    next step: ${f.hint}` : ''}`).join('\n'));
+    parts.push(
+      `Not scored (${report.failures.length}):\n` +
+        report.failures.map((f) => `  ${f.file}: ${f.message}${f.hint ? `\n    next step: ${f.hint}` : ''}`).join('\n'),
+    );
   }
   if (report.notes.length) parts.push(report.notes.map((n) => `- ${n}`).join('\n'));
   return parts.join('\n\n');
 }
 
 const CSV_HEADER = [
-  'photo', 'method', 'model', 'psnr_db', 'ciede2000_mean', 'ab_error_mean', 'colourfulness', 'right_hue_pct', 'false_colour_pct',
-  'left_grey_pct', 'original_colourfulness', 'original_clearly_coloured_pct',
+  'photo',
+  'method',
+  'model',
+  'psnr_db',
+  'ciede2000_mean',
+  'ab_error_mean',
+  'colourfulness',
+  'right_hue_pct',
+  'false_colour_pct',
+  'left_grey_pct',
+  'original_colourfulness',
+  'original_clearly_coloured_pct',
 ];
 
 /**
@@ -195,7 +221,20 @@ export function scoreToCsv(report: ScoreReport): string {
   const rows = (name: string, original: number, coloured: number | null, figures: Record<string, ScoreFigures>) =>
     report.methods.map((m) => {
       const f = figures[m.id];
-      return [name, m.label, m.model ?? '', num(f.psnr), f.ciede2000, f.abError, f.colourfulness, f.rightHue, f.falseColour, f.leftGrey, original, coloured];
+      return [
+        name,
+        m.label,
+        m.model ?? '',
+        num(f.psnr),
+        f.ciede2000,
+        f.abError,
+        f.colourfulness,
+        f.rightHue,
+        f.falseColour,
+        f.leftGrey,
+        original,
+        coloured,
+      ];
     });
   const body = report.photos.flatMap((p) => rows(p.file, p.originalColourfulness, p.clearlyColoured, p.figures));
   if (report.average) body.push(...rows('(average)', report.average.originalColourfulness, null, report.average.figures));
@@ -209,6 +248,11 @@ export function scoreToCsv(report: ScoreReport): string {
  * process.stdout.write(scoreToJson(report));
  */
 export function scoreToJson(report: ScoreReport): string {
-  return JSON.stringify(report, (_key, value: unknown) =>
-    typeof value === 'number' && !Number.isFinite(value) ? (value === Infinity ? 'inf' : null) : value, 2) + '\n';
+  return (
+    JSON.stringify(
+      report,
+      (_key, value: unknown) => (typeof value === 'number' && !Number.isFinite(value) ? (value === Infinity ? 'inf' : null) : value),
+      2,
+    ) + '\n'
+  );
 }

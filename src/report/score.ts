@@ -7,7 +7,15 @@
 import { mkdir, readdir } from 'node:fs/promises';
 import { join, relative } from 'node:path';
 import {
-  clearlyColouredShare, colourfulness, hueAgreement, labToSrgb, meanAbError, meanCiede2000, psnr, srgbToLab, type LabPlanes,
+  clearlyColouredShare,
+  colourfulness,
+  hueAgreement,
+  labToSrgb,
+  meanAbError,
+  meanCiede2000,
+  psnr,
+  srgbToLab,
+  type LabPlanes,
 } from '../colour/index.js';
 import { colouriseLightness } from '../batch/index.js';
 import { ErrorCodes, InputError, KinhueError } from '../errors.js';
@@ -17,7 +25,14 @@ import { DEFAULT_MODEL_DIR, initBackend, loadFaceFinder, loadModel, type KinhueM
 import { VERSION } from '../version.js';
 import { labStatistics, reinhardTransfer, type LabStatistics } from './reinhard.js';
 import {
-  HUE_FIGURES_NOTE, averageFigures, scoreToCsv, scoreToJson, type PhotoScore, type ScoreFailure, type ScoreFigures, type ScoreMethod,
+  HUE_FIGURES_NOTE,
+  averageFigures,
+  scoreToCsv,
+  scoreToJson,
+  type PhotoScore,
+  type ScoreFailure,
+  type ScoreFigures,
+  type ScoreMethod,
   type ScoreReport,
 } from './score-report.js';
 import { recordedRebalance, trainingColourFor } from './training-colour.js';
@@ -46,9 +61,7 @@ export interface ScoreOptions {
 }
 
 /** Progress while scoring. */
-export type ScoreEvent =
-  | { type: 'photo'; done: number; total: number; file: string }
-  | { type: 'failed'; failure: ScoreFailure };
+export type ScoreEvent = { type: 'photo'; done: number; total: number; file: string } | { type: 'failed'; failure: ScoreFailure };
 
 const EXAMPLE = 'Example usage: kinhue score demo-photos/originals --model models/kinhue-base';
 
@@ -73,7 +86,10 @@ function rgb8(pixels: Pixels, file: string): Uint8Array {
 }
 
 /** Decodes one original and checks it is a colour photo. */
-async function readOriginal(file: string, maxPixels?: number): Promise<{ rgb: Uint8Array; lab: LabPlanes; width: number; height: number; toned?: string }> {
+async function readOriginal(
+  file: string,
+  maxPixels?: number,
+): Promise<{ rgb: Uint8Array; lab: LabPlanes; width: number; height: number; toned?: string }> {
   const { pixels } = await decodeImage(file, { maxPixels });
   const rgb = rgb8(pixels, file);
   const lab = srgbToLab(rgb, 3);
@@ -112,9 +128,13 @@ function failureOf(file: string, error: KinhueError): ScoreFailure {
 /** Pooled a*b* statistics of the photos, for models that record no training colour (one extra decode each). */
 async function pooledStatistics(files: { path: string }[], maxPixels?: number): Promise<LabStatistics> {
   let n = 0;
-  const sum = [0, 0, 0], squares = [0, 0, 0];
+  const sum = [0, 0, 0],
+    squares = [0, 0, 0];
   for (const { path } of files) {
-    const lab = await readOriginal(path, maxPixels).then((o) => o.lab, () => undefined);
+    const lab = await readOriginal(path, maxPixels).then(
+      (o) => o.lab,
+      () => undefined,
+    );
     if (!lab) continue;
     const s = labStatistics(lab);
     const m = lab.L.length;
@@ -133,7 +153,9 @@ async function pooledStatistics(files: { path: string }[], maxPixels?: number): 
 /** Short, distinct labels for the models: their names, with the folder added where two names clash. */
 function modelLabels(models: KinhueModel[]): string[] {
   const names = models.map((m) => m.meta.name);
-  return models.map((m, i) => (names.indexOf(names[i]) !== names.lastIndexOf(names[i]) ? `${names[i]} (${relative('.', m.dir) || m.dir})` : names[i]));
+  return models.map((m, i) =>
+    names.indexOf(names[i]) !== names.lastIndexOf(names[i]) ? `${names[i]} (${relative('.', m.dir) || m.dir})` : names[i],
+  );
 }
 
 /**
@@ -148,7 +170,10 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
   const files = discovered.files;
   const dirs = options.models?.length ? options.models : [DEFAULT_MODEL_DIR];
   if (options.out) {
-    const guard = await InputGuard.of(files.map((f) => f.path), { hint: 'choose an --out folder that is not a photo or model folder, nor a link to one' });
+    const guard = await InputGuard.of(
+      files.map((f) => f.path),
+      { hint: 'choose an --out folder that is not a photo or model folder, nor a link to one' },
+    );
     for (const dir of dirs) for (const name of await readdir(dir).catch(() => [] as string[])) await guard.add(join(dir, name));
     for (const name of [SCORE_CSV, SCORE_JSON]) await guard.check(join(options.out, name));
   }
@@ -173,7 +198,13 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
         model: model.dir,
         target: trainingColourFor(model.meta.classWeights, model.bins, () => pooled!, recordedRebalance(model.meta.training)),
       });
-      methods.push({ id: `model:${i + 1}`, label: `model ${labels[i]}`, kind: 'model', model: model.dir, weightsHash: model.meta.weightsSha256 });
+      methods.push({
+        id: `model:${i + 1}`,
+        label: `model ${labels[i]}`,
+        kind: 'model',
+        model: model.dir,
+        weightsHash: model.meta.weightsSha256,
+      });
     });
 
     const photos: PhotoScore[] = [];
@@ -194,11 +225,22 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
           } else {
             const model = modelOf.get(method.id)!;
             const workSize = options.workSize ?? model.meta.workingSize;
-            const { a, b } = await colouriseLightness(lab.L, width, height, model, { workSize, temperature: options.temperature, faceFinder });
+            const { a, b } = await colouriseLightness(lab.L, width, height, model, {
+              workSize,
+              temperature: options.temperature,
+              faceFinder,
+            });
             figures[method.id] = measure({ L: lab.L, a, b }, original);
           }
         }
-        photos.push({ file: rel, width, height, originalColourfulness: colourfulness(original.rgb, 3), clearlyColoured: clearlyColouredShare(lab), figures });
+        photos.push({
+          file: rel,
+          width,
+          height,
+          originalColourfulness: colourfulness(original.rgb, 3),
+          clearlyColoured: clearlyColouredShare(lab),
+          figures,
+        });
         if (original.toned) toned.push(`${rel} (${original.toned})`);
       } catch (error) {
         if (!(error instanceof KinhueError)) throw error;
@@ -216,9 +258,16 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
       'Figures compare the 8-bit sRGB rendering of each result with the original rounded to 8 bits; averages count each photo once (PSNR averaged in dB).',
       `Models run as restore runs them: at ${options.workSize ? `a working size of ${options.workSize} px` : "each model's own working size"} (long side), colour carried to full size edge-aware${options.skin === false ? ', without the skin prior' : ', faces found given a skin hue'}.`,
       `${HUE_FIGURES_NOTE} Averages of right hue and left grey skip photos with no clearly coloured pixel.`,
-      'Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper\'s l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target\'s mean colour everywhere.',
-      ...transfer.map((m) => `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`),
-      ...(toned.length ? [`Colour of a single hue, as in a toned monochrome print: ${toned.join(', ')}. Scored; check these are colour photographs, not tinted prints.`] : []),
+      "Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper's l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target's mean colour everywhere.",
+      ...transfer.map(
+        (m) =>
+          `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`,
+      ),
+      ...(toned.length
+        ? [
+            `Colour of a single hue, as in a toned monochrome print: ${toned.join(', ')}. Scored; check these are colour photographs, not tinted prints.`,
+          ]
+        : []),
       ...discovered.notes,
     ];
     return {
@@ -251,7 +300,9 @@ export async function writeScoreFiles(report: ScoreReport, dir: string): Promise
     await mkdir(dir, { recursive: true });
   } catch (error) {
     throw new KinhueError(ErrorCodes.WRITE_FAILED, 'the output folder could not be made', {
-      file: dir, hint: 'choose a folder you can write to', cause: error,
+      file: dir,
+      hint: 'choose a folder you can write to',
+      cause: error,
     });
   }
   const csv = join(dir, SCORE_CSV);
@@ -260,4 +311,3 @@ export async function writeScoreFiles(report: ScoreReport, dir: string): Promise
   await writeFileAtomic(json, scoreToJson(report));
   return { csv, json };
 }
-

@@ -63,8 +63,10 @@ function img(image: SheetImage | undefined, alt: string, cls: string): string {
 function confidenceBadge(mean: number | undefined): string {
   if (mean === undefined || Number.isNaN(mean)) return '<span class="badge">no confidence map</span>';
   const pct = Math.round(mean * 100);
-  return `<span class="badge meter" title="mean confidence over all pixels">mean confidence <b>${mean.toFixed(2)}</b>` +
-    `<span class="track"><span class="fill" style="width:${pct}%"></span></span></span>`;
+  return (
+    `<span class="badge meter" title="mean confidence over all pixels">mean confidence <b>${mean.toFixed(2)}</b>` +
+    `<span class="track"><span class="fill" style="width:${pct}%"></span></span></span>`
+  );
 }
 
 function detailsTable(rows: [string, string][], label: string): string {
@@ -80,45 +82,56 @@ function keyFacts(rows: [string, string][] | undefined): string {
 
 function doneCard(p: SheetPhoto, index: number): string {
   const name = escapeHtml(p.name);
-  const compare = p.scan && p.result
-    ? p.repaired
-      // Two views stacked in the first column: scan against the result, and against the repaired scan.
-      ? `<div class="viewers">${compareView(p.scan, p.result, `scan ${p.name}`, `colourised ${p.name}`, 'result')}` +
-        `${compareView(p.scan, p.repaired, `scan ${p.name}`, `repaired ${p.name}`, 'repaired')}</div>`
-      : compareView(p.scan, p.result, `scan ${p.name}`, `colourised ${p.name}`, 'result')
-    : '<div class="viewer missing">no comparison: the scan or the result is not there</div>';
-  return `<article class="photo" data-status="done" data-name="${name}" data-order="${index}" ` +
+  const compare =
+    p.scan && p.result
+      ? p.repaired
+        ? // Two views stacked in the first column: scan against the result, and against the repaired scan.
+          `<div class="viewers">${compareView(p.scan, p.result, `scan ${p.name}`, `colourised ${p.name}`, 'result')}` +
+          `${compareView(p.scan, p.repaired, `scan ${p.name}`, `repaired ${p.name}`, 'repaired')}</div>`
+        : compareView(p.scan, p.result, `scan ${p.name}`, `colourised ${p.name}`, 'result')
+      : '<div class="viewer missing">no comparison: the scan or the result is not there</div>';
+  return (
+    `<article class="photo" data-status="done" data-name="${name}" data-order="${index}" ` +
     `data-confidence="${p.meanConfidence ?? ''}">` +
     `<header><h2>${name}</h2>${confidenceBadge(p.meanConfidence)}</header>` +
     `<div class="body">${compare}<div class="side">` +
     `<div class="trio${p.repairMask ? ' four' : ''}"><figure>${img(p.scan, `scan ${p.name}`, 'thumb')}<figcaption>scan</figcaption></figure>` +
     `<figure>${img(p.result, `colourised ${p.name}`, 'thumb')}<figcaption>result</figcaption></figure>` +
     `<figure>${img(p.confidence, `confidence map of ${p.name}`, 'thumb')}<figcaption>confidence (white = sure)</figcaption></figure>` +
-    (p.repairMask ? `<figure>${img(p.repairMask, `repair mask of ${p.name}`, 'thumb')}<figcaption>repaired (white = replaced)</figcaption></figure>` : '') +
+    (p.repairMask
+      ? `<figure>${img(p.repairMask, `repair mask of ${p.name}`, 'thumb')}<figcaption>repaired (white = replaced)</figcaption></figure>`
+      : '') +
     `</div>` +
     `<div class="chart">${p.histogram ? `<div><div class="label">pixels by confidence</div>${histogramSvg(p.histogram)}</div>` : ''}` +
     `${keyFacts(p.facts)}</div>` +
-    detailsTable(p.details, 'provenance record') + `</div></div></article>`;
+    detailsTable(p.details, 'provenance record') +
+    `</div></div></article>`
+  );
 }
 
 /** A before/after view with a divider to drag: the scan on the left of it, `after` on the right. */
 function compareView(scan: SheetImage, after: SheetImage, scanAlt: string, afterAlt: string, afterTag: string): string {
-  return `<div class="viewer"><div class="compare" data-compare>` +
+  return (
+    `<div class="viewer"><div class="compare" data-compare>` +
     `${img(after, afterAlt, 'after')}` +
     `<div class="before-clip">${img(scan, scanAlt, 'before')}</div>` +
     `<div class="divider"></div>` +
     `<input type="range" min="0" max="100" value="50" aria-label="move the divider between scan and ${afterTag}">` +
-    `<span class="tag left">scan</span><span class="tag right">${afterTag}</span></div></div>`;
+    `<span class="tag left">scan</span><span class="tag right">${afterTag}</span></div></div>`
+  );
 }
 
 function failedCard(p: SheetPhoto, index: number): string {
   const name = escapeHtml(p.name);
   const e = p.error ?? { message: 'failed (no message recorded)' };
-  return `<article class="photo failed" data-status="failed" data-name="${name}" data-order="${index}" data-confidence="">` +
+  return (
+    `<article class="photo failed" data-status="failed" data-name="${name}" data-order="${index}" data-confidence="">` +
     `<header><h2>${name}</h2><span class="badge bad">${p.damaged ? 'damaged record' : 'failed'}${e.code ? ` &middot; ${escapeHtml(e.code)}` : ''}</span></header>` +
     `<p class="message">${escapeHtml(e.message)}</p>` +
     (e.hint ? `<p class="hint">next step: ${escapeHtml(e.hint)}</p>` : '') +
-    detailsTable(p.details, 'details') + `</article>`;
+    detailsTable(p.details, 'details') +
+    `</article>`
+  );
 }
 
 /**
@@ -132,7 +145,8 @@ export function renderSheetHtml(data: SheetData): string {
   const failed = data.photos.filter((p) => p.status === 'failed');
   const confidences = done.map((p) => p.meanConfidence).filter((c): c is number => c !== undefined && !Number.isNaN(c));
   const overall = confidences.length ? confidences.reduce((s, c) => s + c, 0) / confidences.length : undefined;
-  const ordered = [...done].sort((x, y) => (x.meanConfidence ?? 2) - (y.meanConfidence ?? 2) || x.name.localeCompare(y.name))
+  const ordered = [...done]
+    .sort((x, y) => (x.meanConfidence ?? 2) - (y.meanConfidence ?? 2) || x.name.localeCompare(y.name))
     .concat([...failed].sort((x, y) => x.name.localeCompare(y.name)));
   const cards = ordered.map((p, i) => (p.status === 'done' ? doneCard(p, i) : failedCard(p, i))).join('\n');
   const facts = [
@@ -140,7 +154,9 @@ export function renderSheetHtml(data: SheetData): string {
     ...(overall === undefined ? [] : [['mean confidence', overall.toFixed(2)]]),
     ...data.facts,
     ['sheet made', data.generated],
-  ].map(([k, v]) => `<div><dt>${escapeHtml(k)}</dt><dd>${escapeHtml(v)}</dd></div>`).join('');
+  ]
+    .map(([k, v]) => `<div><dt>${escapeHtml(k)}</dt><dd>${escapeHtml(v)}</dd></div>`)
+    .join('');
   return `<!DOCTYPE html>
 <html lang="en">
 <head>

@@ -8,19 +8,43 @@ type Kind = 'string' | 'number' | 'object' | 'array' | 'string-or-null' | 'numbe
 
 /** Dotted paths into ProvenanceRecord and the type each must have. */
 const NEEDED: [string, Kind][] = [
-  ['kinhue', 'string'], ['statement', 'string'], ['created', 'string'],
-  ['source', 'object'], ['source.path', 'string'], ['source.relative', 'string'], ['source.bytes', 'number'], ['source.sha256', 'string'],
-  ['source.format', 'string'], ['source.width', 'number'], ['source.height', 'number'], ['source.bitDepth', 'number'],
+  ['kinhue', 'string'],
+  ['statement', 'string'],
+  ['created', 'string'],
+  ['source', 'object'],
+  ['source.path', 'string'],
+  ['source.relative', 'string'],
+  ['source.bytes', 'number'],
+  ['source.sha256', 'string'],
+  ['source.format', 'string'],
+  ['source.width', 'number'],
+  ['source.height', 'number'],
+  ['source.bitDepth', 'number'],
   ['source.channels', 'number'],
-  ['tone', 'object'], ['tone.kind', 'string'], ['tone.tint', 'object'], ['tone.tint.a', 'number'], ['tone.tint.b', 'number'],
+  ['tone', 'object'],
+  ['tone.kind', 'string'],
+  ['tone.tint', 'object'],
+  ['tone.tint.a', 'number'],
+  ['tone.tint.b', 'number'],
   ['tone.name', 'string-or-null'],
-  ['result', 'object'], ['result.image', 'string'], ['result.format', 'string'], ['result.bitDepth', 'number'],
+  ['result', 'object'],
+  ['result.image', 'string'],
+  ['result.format', 'string'],
+  ['result.bitDepth', 'number'],
   ['result.confidenceMap', 'string-or-null'],
-  ['model', 'object'], ['model.name', 'string'], ['model.weightsSha256', 'string'],
-  ['settings', 'object'], ['settings.workSize', 'number'], ['settings.temperature', 'number'], ['settings.format', 'string'],
+  ['model', 'object'],
+  ['model.name', 'string'],
+  ['model.weightsSha256', 'string'],
+  ['settings', 'object'],
+  ['settings.workSize', 'number'],
+  ['settings.temperature', 'number'],
+  ['settings.format', 'string'],
   ['settings.quality', 'number-or-null'],
-  ['backend', 'string'], ['meanConfidence', 'number'],
-  ['timings', 'object'], ['timings.total', 'number'], ['timings.model', 'number'],
+  ['backend', 'string'],
+  ['meanConfidence', 'number'],
+  ['timings', 'object'],
+  ['timings.total', 'number'],
+  ['timings.model', 'number'],
   ['warnings', 'array'],
 ];
 
@@ -54,10 +78,13 @@ export function recordDamage(record: unknown): string | undefined {
   const problems: string[] = [];
   for (const [path, kind] of NEEDED) {
     if (problems.some((p) => path.startsWith(`${p}.`))) continue;
-    const value = path.split('.').reduce<unknown>((at, key) => (kindOf(at) === 'object' ? (at as Record<string, unknown>)[key] : undefined), record);
+    const value = path
+      .split('.')
+      .reduce<unknown>((at, key) => (kindOf(at) === 'object' ? (at as Record<string, unknown>)[key] : undefined), record);
     if (!fits(value, kind)) problems.push(path);
   }
   if (problems.length === 0) return undefined;
-  const listed = problems.length > LISTED ? `${problems.slice(0, LISTED).join(', ')} and ${problems.length - LISTED} more` : problems.join(', ');
+  const listed =
+    problems.length > LISTED ? `${problems.slice(0, LISTED).join(', ')} and ${problems.length - LISTED} more` : problems.join(', ');
   return `missing or wrong ${listed}`;
 }

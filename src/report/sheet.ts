@@ -49,7 +49,10 @@ const BROWSER_FORMATS = new Set(['.jpg', '.jpeg', '.jpe', '.png', '.webp', '.gif
 const HISTOGRAM_BINS = 10;
 
 async function exists(path: string): Promise<boolean> {
-  return stat(path).then((s) => s.isFile(), () => false);
+  return stat(path).then(
+    (s) => s.isFile(),
+    () => false,
+  );
 }
 
 /**
@@ -69,7 +72,10 @@ async function previewUri(pixels: Pixels, size: number): Promise<string> {
   const small = downscaleToFloatRgb(pixels, size);
   const data = new Uint8Array(small.data.length);
   for (let i = 0; i < data.length; i++) data[i] = Math.round(small.data[i] * 255);
-  const { data: jpeg } = await encodeBuffer({ width: small.width, height: small.height, channels: 3, depth: 8, data }, { format: 'jpeg', quality: 85 });
+  const { data: jpeg } = await encodeBuffer(
+    { width: small.width, height: small.height, channels: 3, depth: 8, data },
+    { format: 'jpeg', quality: 85 },
+  );
   return `data:image/jpeg;base64,${jpeg.toString('base64')}`;
 }
 
@@ -102,20 +108,35 @@ function provenanceRows(p: ProvenanceRecord): [string, string][] {
   const s = p.source;
   const rows: [string, string][] = [
     ['source', s.path],
-    ['source size', `${s.width} x ${s.height} px, ${s.bitDepth}-bit, ${s.channels} channel${s.channels === 1 ? '' : 's'}, ${s.format}, ${s.bytes} bytes`],
+    [
+      'source size',
+      `${s.width} x ${s.height} px, ${s.bitDepth}-bit, ${s.channels} channel${s.channels === 1 ? '' : 's'}, ${s.format}, ${s.bytes} bytes`,
+    ],
     ['source SHA-256', s.sha256],
-    ['tone', p.tone.kind === 'toned' ? `toned print (${p.tone.name ?? 'tint'}), tint a* ${p.tone.tint.a}, b* ${p.tone.tint.b}: removed` : p.tone.kind],
+    [
+      'tone',
+      p.tone.kind === 'toned'
+        ? `toned print (${p.tone.name ?? 'tint'}), tint a* ${p.tone.tint.a}, b* ${p.tone.tint.b}: removed`
+        : p.tone.kind,
+    ],
     ['result', `${p.result.image} (${p.result.format}, ${p.result.bitDepth}-bit)`],
     ['model', `${p.model.name}, weights SHA-256 ${p.model.weightsSha256}`],
-    ['settings', `work size ${p.settings.workSize} px, ${decodingLabel(p.settings)}, format ${p.settings.format}` +
-      (p.settings.quality === null ? '' : `, quality ${p.settings.quality}`)],
+    [
+      'settings',
+      `work size ${p.settings.workSize} px, ${decodingLabel(p.settings)}, format ${p.settings.format}` +
+        (p.settings.quality === null ? '' : `, quality ${p.settings.quality}`),
+    ],
     ['backend', p.backend],
     ['mean confidence', String(p.meanConfidence)],
     ['time', `${(p.timings.total / 1000).toFixed(1)} s (model ${(p.timings.model / 1000).toFixed(1)} s)`],
     ['made', `${p.created} by kinhue ${p.kinhue}`],
     ['statement', p.statement],
   ];
-  if (p.repair) rows.push(['repair', `${p.repair.pixels} pixels (${(100 * p.repair.share).toFixed(3)}%) replaced: ${p.repair.method}; mask ${p.repair.mask}`]);
+  if (p.repair)
+    rows.push([
+      'repair',
+      `${p.repair.pixels} pixels (${(100 * p.repair.share).toFixed(3)}%) replaced: ${p.repair.method}; mask ${p.repair.mask}`,
+    ]);
   const skin = skinFact(p);
   if (skin) rows.push(['skin prior', `${skin}; faces at ${p.guidance!.skin!.faces.map(faceWhere).join(', ')}`]);
   if (p.warnings.length) rows.push(['warnings', p.warnings.join('; ')]);
@@ -152,31 +173,53 @@ function failed(name: string, message: string, details: [string, string][], code
 
 /** One manifest record as a sheet entry. */
 async function photoFor(run: string, record: ManifestRecord, ctx: Context): Promise<SheetPhoto> {
-  const basic: [string, string][] = [['source', record.source], ['recorded', record.time]];
+  const basic: [string, string][] = [
+    ['source', record.source],
+    ['recorded', record.time],
+  ];
   if (record.status === 'failed') {
     const e = record.error ?? { code: undefined, message: 'failed (no message recorded)', hint: undefined };
     return failed(record.output, e.message, basic, e.code, e.hint);
   }
   const resultPath = underFolder(run, record.output);
-  const recordName = record.companions?.find((c) => c.endsWith('.kinhue.json')) ??
+  const recordName =
+    record.companions?.find((c) => c.endsWith('.kinhue.json')) ??
     `${record.output.slice(0, record.output.length - extname(record.output).length)}.kinhue.json`;
   const recordPath = underFolder(run, recordName);
   let parsed: unknown;
   try {
     parsed = JSON.parse(await readFile(recordPath, 'utf8'));
   } catch {
-    return failed(record.output, `its provenance record ${recordName} is missing or unreadable`, basic, undefined,
-      'run the same restore command again to redo this file');
+    return failed(
+      record.output,
+      `its provenance record ${recordName} is missing or unreadable`,
+      basic,
+      undefined,
+      'run the same restore command again to redo this file',
+    );
   }
   const damage = recordDamage(parsed);
   if (damage) {
-    return { ...failed(record.output, `its provenance record ${recordName} is damaged: ${damage}`, basic, undefined,
-      `delete ${recordName} and run the same restore command again to redo this file`), damaged: true };
+    return {
+      ...failed(
+        record.output,
+        `its provenance record ${recordName} is damaged: ${damage}`,
+        basic,
+        undefined,
+        `delete ${recordName} and run the same restore command again to redo this file`,
+      ),
+      damaged: true,
+    };
   }
   const provenance = parsed as ProvenanceRecord;
   if (!(await exists(resultPath))) {
-    return failed(record.output, `the result ${record.output} is missing from the output folder`, basic, undefined,
-      'run the same restore command again to redo this file');
+    return failed(
+      record.output,
+      `the result ${record.output} is missing from the output folder`,
+      basic,
+      undefined,
+      'run the same restore command again to redo this file',
+    );
   }
   const size = { width: provenance.source.width, height: provenance.source.height };
   const confidencePath = provenance.result.confidenceMap ? join(dirname(resultPath), provenance.result.confidenceMap) : undefined;
@@ -195,10 +238,12 @@ async function photoFor(run: string, record: ManifestRecord, ctx: Context): Prom
     scan: await imageFor(provenance.source.path ?? record.source, ctx, size),
     result: await imageFor(resultPath, ctx, size),
     confidence: await imageFor(confidencePath, ctx, size),
-    ...(provenance.repair ? {
-      repairMask: await imageFor(join(dirname(resultPath), provenance.repair.mask), ctx, size),
-      ...(provenance.repair.scan ? { repaired: await imageFor(join(dirname(resultPath), provenance.repair.scan), ctx, size) } : {}),
-    } : {}),
+    ...(provenance.repair
+      ? {
+          repairMask: await imageFor(join(dirname(resultPath), provenance.repair.mask), ctx, size),
+          ...(provenance.repair.scan ? { repaired: await imageFor(join(dirname(resultPath), provenance.repair.scan), ctx, size) } : {}),
+        }
+      : {}),
     meanConfidence: provenance.meanConfidence,
     histogram,
     facts: keyFactsOf(provenance),
@@ -220,14 +265,25 @@ function distinct(values: string[]): string {
 export async function readRun(run: string, pageDir: string, options: { embed?: boolean; previewSize?: number } = {}): Promise<SheetData> {
   const folder = await loadRunFolder(run);
   if (folder.manifests.length === 0) {
-    const isFolder = await stat(run).then((s) => s.isDirectory(), () => false);
-    throw new KinhueError(ErrorCodes.UNREADABLE, isFolder ? `holds no ${MANIFEST_NAME}: not the output folder of a restore run` : 'folder not found', {
-      file: run,
-      hint: 'pass the folder given to kinhue restore as --out',
-    });
+    const isFolder = await stat(run).then(
+      (s) => s.isDirectory(),
+      () => false,
+    );
+    throw new KinhueError(
+      ErrorCodes.UNREADABLE,
+      isFolder ? `holds no ${MANIFEST_NAME}: not the output folder of a restore run` : 'folder not found',
+      {
+        file: run,
+        hint: 'pass the folder given to kinhue restore as --out',
+      },
+    );
   }
   const records = [...folder.records.values()];
-  const ctx: Context = { pageDir: resolve(pageDir), embed: options.embed ?? SHEET_DEFAULTS.embed, previewSize: options.previewSize ?? SHEET_DEFAULTS.previewSize };
+  const ctx: Context = {
+    pageDir: resolve(pageDir),
+    embed: options.embed ?? SHEET_DEFAULTS.embed,
+    previewSize: options.previewSize ?? SHEET_DEFAULTS.previewSize,
+  };
   const photos: SheetPhoto[] = [];
   for (const record of records) photos.push(await photoFor(run, record, ctx));
   const provenances = photos.filter((p) => p.status === 'done').map((p) => Object.fromEntries(p.details));

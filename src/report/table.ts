@@ -30,13 +30,15 @@ export function renderTable(columns: readonly TableColumn[], rows: readonly (rea
   const depth = Math.max(...labels.map((l) => l.length));
   const heading = Array.from({ length: depth }, (_, k) => labels.map((l) => l[k - (depth - l.length)] ?? ''));
   const cells = rows.filter((row): row is readonly string[] => Array.isArray(row));
-  const widths = columns.map((_, c) =>
-    Math.max(...labels[c].map((l) => l.length), ...cells.map((row) => (row[c] ?? '').length)));
+  const widths = columns.map((_, c) => Math.max(...labels[c].map((l) => l.length), ...cells.map((row) => (row[c] ?? '').length)));
   const line = (cells: readonly string[]): string =>
-    columns.map((column, c) => {
-      const cell = cells[c] ?? '';
-      return column.align === 'right' ? cell.padStart(widths[c]) : cell.padEnd(widths[c]);
-    }).join('  ').trimEnd();
+    columns
+      .map((column, c) => {
+        const cell = cells[c] ?? '';
+        return column.align === 'right' ? cell.padStart(widths[c]) : cell.padEnd(widths[c]);
+      })
+      .join('  ')
+      .trimEnd();
   const rule = widths.map((w) => '-'.repeat(w)).join('  ');
   return [
     ...heading.map(line),

@@ -55,18 +55,24 @@ export function distributionFromClassWeights(weights: ArrayLike<number>, lambda 
  * @example
  * const stats = abStatisticsFromClassWeights(meta.classWeights); // stats.mean[1], stats.mean[2]: a*, b*
  */
-export function abStatisticsFromClassWeights(weights: ArrayLike<number>, bins: AbBins = abBins(), sigma = SOFT_SIGMA,
-  lambda = REBALANCE_LAMBDA): LabStatistics {
+export function abStatisticsFromClassWeights(
+  weights: ArrayLike<number>,
+  bins: AbBins = abBins(),
+  sigma = SOFT_SIGMA,
+  lambda = REBALANCE_LAMBDA,
+): LabStatistics {
   if (weights.length !== bins.count) {
     throw new RangeError(`abStatisticsFromClassWeights: ${weights.length} weights for ${bins.count} bins`);
   }
   const p = distributionFromClassWeights(weights, lambda);
-  let ma = 0, mb = 0;
+  let ma = 0,
+    mb = 0;
   for (let i = 0; i < p.length; i++) {
     ma += p[i] * bins.a[i];
     mb += p[i] * bins.b[i];
   }
-  let va = 0, vb = 0;
+  let va = 0,
+    vb = 0;
   for (let i = 0; i < p.length; i++) {
     va += p[i] * (bins.a[i] - ma) ** 2;
     vb += p[i] * (bins.b[i] - mb) ** 2;
@@ -92,8 +98,12 @@ export function recordedRebalance(training: TrainingRecord | null | undefined): 
  * @example
  * const target = trainingColourFor(model.meta.classWeights, model.bins, () => pooledStatistics, recordedRebalance(model.meta.training));
  */
-export function trainingColourFor(classWeights: ArrayLike<number> | undefined, bins: AbBins, fallback: () => LabStatistics,
-  lambda = REBALANCE_LAMBDA): TrainingColour {
+export function trainingColourFor(
+  classWeights: ArrayLike<number> | undefined,
+  bins: AbBins,
+  fallback: () => LabStatistics,
+  lambda = REBALANCE_LAMBDA,
+): TrainingColour {
   const weighted = !!classWeights && classWeights.length > 0 && classWeights.length === bins.count;
   if (weighted && lambda < 1) {
     return {
@@ -102,7 +112,9 @@ export function trainingColourFor(classWeights: ArrayLike<number> | undefined, b
       description: `a*b* mean and sd of the model's training set, recovered from the class-rebalancing weights in its metadata (rebalancing λ ${lambda})`,
     };
   }
-  const why = weighted ? 'its class weights were made with rebalancing λ 1, so they are all equal and hold no colour' : 'no class-rebalancing weights';
+  const why = weighted
+    ? 'its class weights were made with rebalancing λ 1, so they are all equal and hold no colour'
+    : 'no class-rebalancing weights';
   return {
     statistics: fallback(),
     source: 'scored-photos',

@@ -57,14 +57,16 @@ export interface ModelVerdict {
 export function compareFigures(mine: ScoreFigures, theirs: ScoreFigures): { outcome: Comparison['outcome']; figures: FigureComparison[] } {
   const figures: FigureComparison[] = [];
   for (const f of FIGURES) {
-    const value = mine[f.figure], other = theirs[f.figure];
+    const value = mine[f.figure],
+      other = theirs[f.figure];
     if (value === null || other === null || !Number.isFinite(value) || !Number.isFinite(other)) continue;
     // A hair of slack so that a difference of exactly the margin in decimals (0.7 - 0.2) counts as reaching it.
     const gain = f.higherIsBetter ? value - other : other - value;
     const reach = f.margin - 1e-9;
     figures.push({ figure: f.figure, outcome: gain >= reach ? 'better' : -gain >= reach ? 'worse' : 'level', value, other });
   }
-  const better = figures.some((f) => f.outcome === 'better'), worse = figures.some((f) => f.outcome === 'worse');
+  const better = figures.some((f) => f.outcome === 'better'),
+    worse = figures.some((f) => f.outcome === 'worse');
   return { outcome: better && !worse ? 'better' : worse && !better ? 'worse' : 'no clearer', figures };
 }
 
@@ -73,7 +75,7 @@ function describeFigures(figures: readonly FigureComparison[]): string {
     const f = FIGURES.find((x) => x.figure === c.figure)!;
     return `${f.name} (${f.format(c.value)} vs ${f.format(c.other)})`;
   });
-  return parts.length > 1 ? `${parts.slice(0, -1).join(', ')} and ${parts[parts.length - 1]}` : parts[0] ?? '';
+  return parts.length > 1 ? `${parts.slice(0, -1).join(', ')} and ${parts[parts.length - 1]}` : (parts[0] ?? '');
 }
 
 /** One comparison in words, e.g. "better than grey on CIEDE2000 (12.10 vs 13.51)". */
@@ -84,7 +86,8 @@ function describe(c: Comparison): string {
     const level = of('level');
     return `${c.outcome} than ${c.label} on ${describeFigures(of(c.outcome))}${level.length ? `, level on ${describeFigures(level)}` : ''}`;
   }
-  if (of('better').length) return `no clearer than ${c.label}: better on ${describeFigures(of('better'))}, worse on ${describeFigures(of('worse'))}`;
+  if (of('better').length)
+    return `no clearer than ${c.label}: better on ${describeFigures(of('better'))}, worse on ${describeFigures(of('worse'))}`;
   return `no clearer than ${c.label}: ${describeFigures(c.figures)} within the margins`;
 }
 
@@ -97,11 +100,13 @@ export function modelVerdicts(methods: readonly ScoreMethod[], average: Record<s
   const models = methods.filter((m) => m.kind === 'model');
   const others = methods.filter((m) => m.kind === 'grey' || m.kind === 'model');
   return models.map((model) => {
-    const comparisons: Comparison[] = others.filter((o) => o.id !== model.id).map((other) => ({
-      against: other.id,
-      label: other.kind === 'grey' ? 'grey' : other.label,
-      ...compareFigures(average[model.id], average[other.id]),
-    }));
+    const comparisons: Comparison[] = others
+      .filter((o) => o.id !== model.id)
+      .map((other) => ({
+        against: other.id,
+        label: other.kind === 'grey' ? 'grey' : other.label,
+        ...compareFigures(average[model.id], average[other.id]),
+      }));
     return { method: model.id, label: model.label, comparisons, text: `${model.label}: ${comparisons.map(describe).join('; ')}` };
   });
 }

@@ -36,7 +36,9 @@ function kindOf(array: NumericArray): ArrayKind {
 }
 
 function isNumericArray(v: unknown): v is NumericArray {
-  return v instanceof Float32Array || v instanceof Int32Array || v instanceof Uint8Array || v instanceof Float64Array || v instanceof Uint32Array;
+  return (
+    v instanceof Float32Array || v instanceof Int32Array || v instanceof Uint8Array || v instanceof Float64Array || v instanceof Uint32Array
+  );
 }
 
 /**
@@ -46,7 +48,11 @@ function isNumericArray(v: unknown): v is NumericArray {
 async function flatten(value: unknown, blobs: Uint8Array[]): Promise<unknown> {
   if (value instanceof tf.Tensor) {
     const data = (await value.data()) as NumericArray;
-    const ref: BlobRef = { $blob: blobs.length, kind: value.dtype === 'int32' ? 'int32' : value.dtype === 'bool' ? 'uint8' : 'float32', shape: value.shape };
+    const ref: BlobRef = {
+      $blob: blobs.length,
+      kind: value.dtype === 'int32' ? 'int32' : value.dtype === 'bool' ? 'uint8' : 'float32',
+      shape: value.shape,
+    };
     blobs.push(new Uint8Array(data.buffer, data.byteOffset, data.byteLength).slice());
     return ref;
   }
@@ -69,7 +75,12 @@ function unflatten(value: unknown, blobs: (offset: number, kind: ArrayKind, inde
     const ref = value as Partial<BlobRef>;
     if (typeof ref.$blob === 'number' && typeof ref.kind === 'string') {
       const array = blobs(0, ref.kind, ref.$blob);
-      if (ref.shape) return tf.tensor(array as Float32Array | Int32Array | Uint8Array, ref.shape, ref.kind === 'int32' ? 'int32' : ref.kind === 'uint8' ? 'bool' : 'float32');
+      if (ref.shape)
+        return tf.tensor(
+          array as Float32Array | Int32Array | Uint8Array,
+          ref.shape,
+          ref.kind === 'int32' ? 'int32' : ref.kind === 'uint8' ? 'bool' : 'float32',
+        );
       return array;
     }
     const out: Record<string, unknown> = {};

@@ -78,7 +78,12 @@ export class CropSampler {
         // A mirrored crop reads the mirrored photo's features, at the mirrored place.
         const f = this.features![index]!;
         const x = window.flip ? photo.width - window.x - window.side : window.x;
-        const place = { x: x / photo.width, y: window.y / photo.height, width: window.side / photo.width, height: window.side / photo.height };
+        const place = {
+          x: x / photo.width,
+          y: window.y / photo.height,
+          width: window.side / photo.width,
+          height: window.side / photo.height,
+        };
         borrowedInputs(window.flip ? f.mirrored : f.plain, place, size, size, borrowed, i);
       }
     }

@@ -6,7 +6,14 @@
  * `score` reports, colour/hue-agreement.ts). The grey baseline is the same comparison with a* = b* = 0.
  */
 import {
-  colourfulness, hueAgreement, labToSrgb, meanCiede2000, meanOfPresent, psnr, resizePlane as resizeBilinear, type LabPlanes,
+  colourfulness,
+  hueAgreement,
+  labToSrgb,
+  meanCiede2000,
+  meanOfPresent,
+  psnr,
+  resizePlane as resizeBilinear,
+  type LabPlanes,
 } from '../colour/index.js';
 import type { Photo } from './photo-set.js';
 
@@ -96,8 +103,14 @@ export async function evaluatePhotos(photos: Photo[], predictor?: AbPredictor): 
   const n = photos.length;
   const rightHue = meanOfPresent(right);
   return {
-    ciede2000: de / n, psnr: db / n, colourfulness: cf / n, originalColourfulness: ocf / n,
-    rightHue: rightHue.mean, falseColour: fc / n, leftGrey: meanOfPresent(grey).mean,
-    photos: n, colouredPhotos: rightHue.photos,
+    ciede2000: de / n,
+    psnr: db / n,
+    colourfulness: cf / n,
+    originalColourfulness: ocf / n,
+    rightHue: rightHue.mean,
+    falseColour: fc / n,
+    leftGrey: meanOfPresent(grey).mean,
+    photos: n,
+    colouredPhotos: rightHue.photos,
   };
 }

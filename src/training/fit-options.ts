@@ -96,7 +96,15 @@ export interface BestSoFar {
 export type FitEvent =
   | { type: 'reading'; done: number; total: number; file: string }
   | { type: 'features'; done: number; total: number }
-  | { type: 'data'; train: number; validation: number; holdout: number; grey: number; unreadable: { file: string; reason: string }[]; otherFiles: number }
+  | {
+      type: 'data';
+      train: number;
+      validation: number;
+      holdout: number;
+      grey: number;
+      unreadable: { file: string; reason: string }[];
+      otherFiles: number;
+    }
   | { type: 'resumed'; step: number; seconds: number }
   /** How many worker threads compute the steps; `previous` when a resumed run changes the checkpoint's number. */
   | { type: 'workers'; workers: number; step: number; previous?: number }
@@ -205,27 +213,158 @@ const whole = (min: number) => (v: number) => Number.isInteger(v) && v >= min;
 export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   { key: 'out', flag: 'out', type: 'string', verbs: BOTH, describe: 'model folder to write (created if missing; one of its own)' },
   { key: 'from', flag: 'from', type: 'string', verbs: ['tune'], describe: 'model folder to start from (default: the shipped model)' },
-  { key: 'hours', flag: 'hours', type: 'number', verbs: BOTH, describe: 'time budget in hours (all resumed sessions together)', rule: 'above 0', valid: (v) => v > 0 },
-  { key: 'steps', flag: 'steps', type: 'number', verbs: BOTH, describe: 'step budget (all resumed sessions together)', rule: 'a whole number of at least 1', valid: whole(1) },
-  { key: 'batch', flag: 'batch', type: 'number', verbs: BOTH, describe: 'crops per step', defaults: { train: 16, tune: 16 }, rule: 'a whole number from 1 to 256', valid: (v) => whole(1)(v) && v <= 256 },
-  { key: 'crop', flag: 'crop', type: 'number', verbs: BOTH, describe: 'crop side in pixels, a multiple of 16', defaults: { train: 128, tune: 128 }, rule: 'a multiple of 16 from 32 to 512', valid: (v) => whole(32)(v) && v <= 512 && v % 16 === 0 },
-  { key: 'seed', flag: 'seed', type: 'number', verbs: BOTH, describe: 'seed of every random choice (same seed, same model)', defaults: { train: 1, tune: 1 }, rule: 'a whole number of 0 or more', valid: whole(0) },
-  { key: 'holdout', flag: 'holdout', type: 'number', verbs: BOTH, describe: 'fraction of the photos held out to report on, never to choose (at least 2 photos)', defaults: { train: 0.1, tune: 0.1 }, rule: 'a fraction above 0 and at most 0.5', valid: (v) => v > 0 && v <= 0.5 },
-  { key: 'validation', flag: 'validation', type: 'number', verbs: BOTH, describe: 'fraction of the photos that choose the step kept and when to stop (at least 2 photos)', defaults: { train: 0.1, tune: 0.1 }, rule: 'a fraction above 0 and at most 0.5', valid: (v) => v > 0 && v <= 0.5 },
-  { key: 'learningRate', flag: 'learning-rate', type: 'number', verbs: BOTH, describe: 'optimiser learning rate; with --resume it applies from the next step', defaults: { train: 1e-3, tune: 1e-4 }, rule: 'between 0 and 1', valid: (v) => v > 0 && v < 1 },
   {
-    key: 'rebalance', flag: 'rebalance', type: 'number', verbs: BOTH, defaults: { train: 0.5 }, rule: 'above 0 and at most 1', valid: (v) => v > 0 && v <= 1,
-    describe: 'class rebalancing lambda, 0-1: 0.5 favours vivid colours, higher is more cautious (tune: default the starting model\'s own weights and decoding)',
+    key: 'hours',
+    flag: 'hours',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'time budget in hours (all resumed sessions together)',
+    rule: 'above 0',
+    valid: (v) => v > 0,
   },
-  { key: 'freezeEncoder', flag: 'freeze-encoder', type: 'boolean', verbs: ['tune'], describe: 'keep the encoder fixed; learn only the decoder (small archives)', defaults: { tune: false } },
-  { key: 'evalEvery', flag: 'eval-every', type: 'number', verbs: BOTH, describe: 'evaluate on the validation photos every this many steps', defaults: { train: 100, tune: 50 }, rule: 'a whole number of at least 1', valid: whole(1) },
-  { key: 'patience', flag: 'patience', type: 'number', verbs: BOTH, describe: 'stop after this many evaluations in a row without improvement (0: never)', defaults: { train: 0, tune: 5 }, rule: 'a whole number of 0 or more', valid: whole(0) },
-  { key: 'resume', flag: 'resume', type: 'boolean', verbs: BOTH, describe: 'continue the run whose checkpoint is in --out', defaults: { train: false, tune: false } },
-  { key: 'checkpointMinutes', flag: 'checkpoint-minutes', type: 'number', verbs: BOTH, describe: 'minutes between checkpoints', defaults: { train: 5, tune: 5 }, rule: 'above 0', valid: (v) => v > 0 },
-  { key: 'keepCheckpoint', flag: 'keep-checkpoint', type: 'boolean', verbs: BOTH, describe: 'leave the checkpoint in a finished folder, to continue later with a larger budget', defaults: { train: false, tune: false } },
   {
-    key: 'workers', flag: 'workers', type: 'number', verbs: BOTH, rule: 'a whole number of at least 1', valid: whole(1),
-    describe: "worker threads computing each step, each on its share of the crops (default: one per core; on --resume the run's own; 1 = one thread)",
+    key: 'steps',
+    flag: 'steps',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'step budget (all resumed sessions together)',
+    rule: 'a whole number of at least 1',
+    valid: whole(1),
+  },
+  {
+    key: 'batch',
+    flag: 'batch',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'crops per step',
+    defaults: { train: 16, tune: 16 },
+    rule: 'a whole number from 1 to 256',
+    valid: (v) => whole(1)(v) && v <= 256,
+  },
+  {
+    key: 'crop',
+    flag: 'crop',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'crop side in pixels, a multiple of 16',
+    defaults: { train: 128, tune: 128 },
+    rule: 'a multiple of 16 from 32 to 512',
+    valid: (v) => whole(32)(v) && v <= 512 && v % 16 === 0,
+  },
+  {
+    key: 'seed',
+    flag: 'seed',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'seed of every random choice (same seed, same model)',
+    defaults: { train: 1, tune: 1 },
+    rule: 'a whole number of 0 or more',
+    valid: whole(0),
+  },
+  {
+    key: 'holdout',
+    flag: 'holdout',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'fraction of the photos held out to report on, never to choose (at least 2 photos)',
+    defaults: { train: 0.1, tune: 0.1 },
+    rule: 'a fraction above 0 and at most 0.5',
+    valid: (v) => v > 0 && v <= 0.5,
+  },
+  {
+    key: 'validation',
+    flag: 'validation',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'fraction of the photos that choose the step kept and when to stop (at least 2 photos)',
+    defaults: { train: 0.1, tune: 0.1 },
+    rule: 'a fraction above 0 and at most 0.5',
+    valid: (v) => v > 0 && v <= 0.5,
+  },
+  {
+    key: 'learningRate',
+    flag: 'learning-rate',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'optimiser learning rate; with --resume it applies from the next step',
+    defaults: { train: 1e-3, tune: 1e-4 },
+    rule: 'between 0 and 1',
+    valid: (v) => v > 0 && v < 1,
+  },
+  {
+    key: 'rebalance',
+    flag: 'rebalance',
+    type: 'number',
+    verbs: BOTH,
+    defaults: { train: 0.5 },
+    rule: 'above 0 and at most 1',
+    valid: (v) => v > 0 && v <= 1,
+    describe:
+      "class rebalancing lambda, 0-1: 0.5 favours vivid colours, higher is more cautious (tune: default the starting model's own weights and decoding)",
+  },
+  {
+    key: 'freezeEncoder',
+    flag: 'freeze-encoder',
+    type: 'boolean',
+    verbs: ['tune'],
+    describe: 'keep the encoder fixed; learn only the decoder (small archives)',
+    defaults: { tune: false },
+  },
+  {
+    key: 'evalEvery',
+    flag: 'eval-every',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'evaluate on the validation photos every this many steps',
+    defaults: { train: 100, tune: 50 },
+    rule: 'a whole number of at least 1',
+    valid: whole(1),
+  },
+  {
+    key: 'patience',
+    flag: 'patience',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'stop after this many evaluations in a row without improvement (0: never)',
+    defaults: { train: 0, tune: 5 },
+    rule: 'a whole number of 0 or more',
+    valid: whole(0),
+  },
+  {
+    key: 'resume',
+    flag: 'resume',
+    type: 'boolean',
+    verbs: BOTH,
+    describe: 'continue the run whose checkpoint is in --out',
+    defaults: { train: false, tune: false },
+  },
+  {
+    key: 'checkpointMinutes',
+    flag: 'checkpoint-minutes',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'minutes between checkpoints',
+    defaults: { train: 5, tune: 5 },
+    rule: 'above 0',
+    valid: (v) => v > 0,
+  },
+  {
+    key: 'keepCheckpoint',
+    flag: 'keep-checkpoint',
+    type: 'boolean',
+    verbs: BOTH,
+    describe: 'leave the checkpoint in a finished folder, to continue later with a larger budget',
+    defaults: { train: false, tune: false },
+  },
+  {
+    key: 'workers',
+    flag: 'workers',
+    type: 'number',
+    verbs: BOTH,
+    rule: 'a whole number of at least 1',
+    valid: whole(1),
+    describe:
+      "worker threads computing each step, each on its share of the crops (default: one per core; on --resume the run's own; 1 = one thread)",
   },
 ];
 

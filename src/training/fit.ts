@@ -41,7 +41,17 @@ import { VERSION } from '../version.js';
 import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js';
 import { type CropBatch, CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
 import { evaluatePhotos, type Evaluation } from './evaluation.js';
-import { fitDefault, SUMMARY_FILE, resolveSettings, type FitEvent, type FitMode, type FitOptions, type FitResult, type FitSettings, type StoppedBy } from './fit-options.js';
+import {
+  fitDefault,
+  SUMMARY_FILE,
+  resolveSettings,
+  type FitEvent,
+  type FitMode,
+  type FitOptions,
+  type FitResult,
+  type FitSettings,
+  type StoppedBy,
+} from './fit-options.js';
 import { defaultWorkers, ParallelTrainer } from './parallel-trainer.js';
 import { loadPhotoSet, type Photo, type PhotoSet } from './photo-set.js';
 import { Random, type RandomState } from './random.js';
@@ -88,7 +98,12 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   const outHint = 'choose a new --out folder for the model, outside the photo folders and the model it starts from';
   const heldInput = await inputInside(out, [...options.photos, ...(mode === 'tune' && options.from ? [options.from] : [])]);
   if (heldInput !== undefined) {
-    throw new OutputOnInputError(out, heldInput, outHint, `the model folder is, or holds, the input ${heldInput} (perhaps through a link); writing the model there would change it`);
+    throw new OutputOnInputError(
+      out,
+      heldInput,
+      outHint,
+      `the model folder is, or holds, the input ${heldInput} (perhaps through a link); writing the model there would change it`,
+    );
   }
   const checkpointFile = join(out, CHECKPOINT_FILE);
   const hasCheckpoint = await exists(checkpointFile);
@@ -96,10 +111,18 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   // A folder in use is not a mistake in the command's shape: the reason alone, without the help.
   const inUse = { aboutCommandLine: false };
   if (!options.resume && hasCheckpoint) {
-    throw new UsageError(`${out} holds an unfinished or finished training run (${CHECKPOINT_FILE})`, 'add --resume to continue it, or choose another --out folder.', inUse);
+    throw new UsageError(
+      `${out} holds an unfinished or finished training run (${CHECKPOINT_FILE})`,
+      'add --resume to continue it, or choose another --out folder.',
+      inUse,
+    );
   }
   if (!options.resume && hasModel) {
-    throw new UsageError(`${out} already holds a model`, `choose another --out folder, or tune that model further with --from ${options.out}.`, inUse);
+    throw new UsageError(
+      `${out} already holds a model`,
+      `choose another --out folder, or tune that model further with --from ${options.out}.`,
+      inUse,
+    );
   }
   if (options.resume && !hasCheckpoint && hasModel) {
     throw new UsageError(
@@ -110,7 +133,10 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   }
   const saved = options.resume ? ((await loadCheckpoint(checkpointFile)) as unknown as CheckpointState) : undefined;
   if (saved && saved.kind !== 'kinhue-training-checkpoint') {
-    throw new KinhueError(ErrorCodes.BAD_DATA, 'not a kinhue training checkpoint', { file: checkpointFile, hint: 'run without --resume to start again.' });
+    throw new KinhueError(ErrorCodes.BAD_DATA, 'not a kinhue training checkpoint', {
+      file: checkpointFile,
+      hint: 'run without --resume to start again.',
+    });
   }
   if (mode === 'tune' && !options.from) throw new UsageError('tune needs a model to start from', 'pass --from <model folder>.');
 
@@ -127,7 +153,12 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         validation: saved.options.validation ?? 0,
         patience: options.patience ?? saved.options.patience ?? 0,
       }
-    : resolveSettings(options, mode, start ? Boolean(start.backbone) : options.backbone !== false, typeof baseRebalance === 'number' ? baseRebalance : undefined);
+    : resolveSettings(
+        options,
+        mode,
+        start ? Boolean(start.backbone) : options.backbone !== false,
+        typeof baseRebalance === 'number' ? baseRebalance : undefined,
+      );
   // (A learning rate given with --resume is the one setting that changes the weights: see FitOptions.learningRate.)
   const maxSteps = options.steps ?? Infinity;
   const maxSeconds = options.hours === undefined ? Infinity : options.hours * 3600;
@@ -164,11 +195,24 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   // A run from before the validation split goes on choosing on its held-out photos, with the same photo order.
   const validationSet = set.validation.length > 0 ? set.validation : set.holdout;
   if (set.validation.length === 0) {
-    onEvent({ type: 'note', message: 'this run was started before kinhue kept validation photos apart: it chooses its steps on the held-out photos, so their figures are not independent' });
+    onEvent({
+      type: 'note',
+      message:
+        'this run was started before kinhue kept validation photos apart: it chooses its steps on the held-out photos, so their figures are not independent',
+    });
   }
   if (saved) checkSameData(saved, set, checkpointFile);
-  const guard = await InputGuard.of([...set.train, ...set.validation, ...set.holdout].map((p) => p.file).concat(set.grey, set.unreadable.map((u) => u.file)), { hint: outHint });
-  if (mode === 'tune' && options.from) for (const name of await readdir(options.from).catch(() => [] as string[])) await guard.add(join(options.from, name));
+  const guard = await InputGuard.of(
+    [...set.train, ...set.validation, ...set.holdout]
+      .map((p) => p.file)
+      .concat(
+        set.grey,
+        set.unreadable.map((u) => u.file),
+      ),
+    { hint: outHint },
+  );
+  if (mode === 'tune' && options.from)
+    for (const name of await readdir(options.from).catch(() => [] as string[])) await guard.add(join(options.from, name));
   await checkFolderFiles(out, guard);
   // What a killed earlier run left half-written in the folder goes before anything new is written.
   await tidyModelFolder(out);
@@ -186,7 +230,10 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   // new weights would change the colours chosen before any learning (and training under them would too).
   if (settings.classWeightsFrom === 'base' && start?.classWeights.length !== bins.count) {
     settings.classWeightsFrom = 'photos';
-    onEvent({ type: 'note', message: `the model tuned from records no class weights: they come from these photos (rebalancing ${settings.rebalance})` });
+    onEvent({
+      type: 'note',
+      message: `the model tuned from records no class weights: they come from these photos (rebalancing ${settings.rebalance})`,
+    });
   }
   let classWeights: Float32Array;
   if (settings.classWeightsFrom === 'base') {
@@ -208,7 +255,10 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   const trainFeatures: PhotoFeatures[] | undefined = backbone
     ? set.train.map((photo, i) => {
         onEvent({ type: 'features', done: i, total: set.train.length + evaluated.length });
-        return { plain: backboneFeatures(backbone, photo.L, photo.width, photo.height), mirrored: backboneFeatures(backbone, photo.L, photo.width, photo.height, true) };
+        return {
+          plain: backboneFeatures(backbone, photo.L, photo.width, photo.height),
+          mirrored: backboneFeatures(backbone, photo.L, photo.width, photo.height, true),
+        };
       })
     : undefined;
   // A network that reads a backbone chooses its colours after region pooling; a tuned model keeps its base's.
@@ -242,7 +292,13 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   // Every figure, before and after, is scored the way the saved model will colour: its decoding, with its class weights.
   const evaluate = (photos: Photo[]): Promise<Evaluation> =>
     evaluatePhotos(photos, (L, w, h, photo) => {
-      const p = predict(network, L, w, h, { decoding, temperature, classWeights, features: evaluatedFeatures.get(photo), pooling: pooling ?? false });
+      const p = predict(network, L, w, h, {
+        decoding,
+        temperature,
+        classWeights,
+        features: evaluatedFeatures.get(photo),
+        pooling: pooling ?? false,
+      });
       return { a: p.a, b: p.b, width: p.width, height: p.height };
     });
 
@@ -271,7 +327,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     sampler = new CropSampler(set.train, rng, undefined, trainFeatures);
     grey = await evaluatePhotos(set.holdout);
     before = await evaluate(set.holdout);
-    validation = set.validation.length > 0 ? { grey: await evaluatePhotos(set.validation), before: await evaluate(set.validation) } : { grey, before };
+    validation =
+      set.validation.length > 0 ? { grey: await evaluatePhotos(set.validation), before: await evaluate(set.validation) } : { grey, before };
     await mkdir(out, { recursive: true });
     await truncateTrainingLog(out, 0);
     if (settings.keep === 'best') best = { step: 0, evaluation: validation.before };
@@ -281,7 +338,12 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
 
   const from = start ? { name: start.meta.name, weightsSha256: start.meta.weightsSha256 } : undefined;
   /** The training record of the model folder; `kept` is the step whose weights it holds. */
-  const record = (kept: number, seconds: number, heldOut: { after?: Evaluation }, stoppedBy?: StoppedBy): ModelMetadataInput['training'] => ({
+  const record = (
+    kept: number,
+    seconds: number,
+    heldOut: { after?: Evaluation },
+    stoppedBy?: StoppedBy,
+  ): ModelMetadataInput['training'] => ({
     mode,
     from: from ?? null,
     photos: set.train.length,
@@ -357,9 +419,27 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     const loss = lossCount > 0 ? lossSum / lossCount : null;
     const { ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey } = evaluation;
     await appendTrainingLog(out, {
-      step, seconds: elapsed(), loss, ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey, best: improved, photos: evaluation.photos, time: new Date().toISOString(),
+      step,
+      seconds: elapsed(),
+      loss,
+      ciede2000,
+      psnr,
+      colourfulness,
+      rightHue,
+      falseColour,
+      leftGrey,
+      best: improved,
+      photos: evaluation.photos,
+      time: new Date().toISOString(),
     });
-    onEvent({ type: 'evaluation', step, loss, evaluation, best: improved, bestSoFar: { step: best!.step, ciede2000: best!.evaluation.ciede2000 } });
+    onEvent({
+      type: 'evaluation',
+      step,
+      loss,
+      evaluation,
+      best: improved,
+      bestSoFar: { step: best!.step, ciede2000: best!.evaluation.ciede2000 },
+    });
     lossSum = 0;
     lossCount = 0;
     if (improved && settings.keep === 'best') await saveKept(step, elapsed());
@@ -410,7 +490,12 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       const secondsLeft = Math.min(maxSeconds - seconds, (maxSteps - step) * perStep);
       const fraction = Math.max(maxSteps === Infinity ? 0 : step / maxSteps, maxSeconds === Infinity ? 0 : seconds / maxSeconds);
       onEvent({
-        type: 'step', step, loss, seconds, secondsLeft: Math.max(0, secondsLeft), fraction: Math.min(1, fraction),
+        type: 'step',
+        step,
+        loss,
+        seconds,
+        secondsLeft: Math.max(0, secondsLeft),
+        fraction: Math.min(1, fraction),
         ...(lastEvaluation ? { last: { step: lastEvaluation.step, ciede2000: lastEvaluation.evaluation.ciede2000 } } : {}),
         ...(best ? { best: { step: best.step, ciede2000: best.evaluation.ciede2000 } } : {}),
       });
@@ -455,8 +540,19 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     seconds,
     stoppedBy,
     checkpointKept,
-    photos: { train: set.train.length, validation: set.validation.length, holdout: set.holdout.length, grey: set.grey.length, unreadable: set.unreadable.length },
-    validation: { grey: validation.grey, before: validation.before, best: best?.evaluation ?? lastEvaluation?.evaluation ?? validation.before, bestStep: best?.step ?? keptStep },
+    photos: {
+      train: set.train.length,
+      validation: set.validation.length,
+      holdout: set.holdout.length,
+      grey: set.grey.length,
+      unreadable: set.unreadable.length,
+    },
+    validation: {
+      grey: validation.grey,
+      before: validation.before,
+      best: best?.evaluation ?? lastEvaluation?.evaluation ?? validation.before,
+      bestStep: best?.step ?? keptStep,
+    },
     heldOut: { grey, before, after, keptStep },
     holdoutFiles: set.holdout.map((p) => p.file),
     ...(from ? { from } : {}),
@@ -508,8 +604,14 @@ function setWeights(network: tf.LayersModel, weights: Float32Array[]): void {
  * before workers existed), else the default. A number that differs from the checkpoint's is recorded
  * with the step it applies from; `previous` is then the checkpoint's.
  */
-function chooseWorkers(asked: number | undefined, settings: FitSettings, savedStep: number | undefined, backend: string): { workers: number; previous?: number } {
-  if (asked !== undefined && !(Number.isInteger(asked) && asked >= 1)) throw new UsageError(`workers must be a whole number of at least 1, got ${asked}`, 'pass --workers 1 or more.');
+function chooseWorkers(
+  asked: number | undefined,
+  settings: FitSettings,
+  savedStep: number | undefined,
+  backend: string,
+): { workers: number; previous?: number } {
+  if (asked !== undefined && !(Number.isInteger(asked) && asked >= 1))
+    throw new UsageError(`workers must be a whole number of at least 1, got ${asked}`, 'pass --workers 1 or more.');
   let previous: number | undefined;
   if (savedStep === undefined) {
     settings.workers = asked ?? defaultWorkers(settings.batch, backend);
@@ -542,13 +644,26 @@ async function exists(path: string): Promise<boolean> {
 function checkSameData(saved: CheckpointState, set: PhotoSet, file: string): void {
   const same = (x: string[], y: string[]): boolean => x.length === y.length && x.every((v, i) => v === y[i]);
   if (
-    !same(saved.trainFiles, set.train.map((p) => p.file)) ||
-    !same(saved.holdoutFiles, set.holdout.map((p) => p.file)) ||
-    !same(saved.validation?.files ?? [], set.validation.map((p) => p.file))
+    !same(
+      saved.trainFiles,
+      set.train.map((p) => p.file),
+    ) ||
+    !same(
+      saved.holdoutFiles,
+      set.holdout.map((p) => p.file),
+    ) ||
+    !same(
+      saved.validation?.files ?? [],
+      set.validation.map((p) => p.file),
+    )
   ) {
-    throw new KinhueError(ErrorCodes.BAD_DATA, 'the photos differ from those the checkpoint was trained on, so the run cannot continue exactly', {
-      file,
-      hint: 'resume with the same photo folders, or start a new run without --resume.',
-    });
+    throw new KinhueError(
+      ErrorCodes.BAD_DATA,
+      'the photos differ from those the checkpoint was trained on, so the run cannot continue exactly',
+      {
+        file,
+        hint: 'resume with the same photo folders, or start a new run without --resume.',
+      },
+    );
   }
 }

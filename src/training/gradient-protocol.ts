@@ -22,7 +22,17 @@ export type ToGradientWorker =
   /** Sets the named weights (all of them, once, before the first shard). */
   | { type: 'weights'; names: string[]; values: Float32Array[] }
   /** One shard of a batch: the trained weights' values to use, then the crops. */
-  | { type: 'shard'; id: number; values: Float32Array[]; L: Float32Array; ab: Float32Array; n: number; h: number; w: number; borrowed?: BorrowedInputs };
+  | {
+      type: 'shard';
+      id: number;
+      values: Float32Array[];
+      L: Float32Array;
+      ab: Float32Array;
+      n: number;
+      h: number;
+      w: number;
+      borrowed?: BorrowedInputs;
+    };
 
 export type FromGradientWorker =
   | { type: 'ready'; backend: string }

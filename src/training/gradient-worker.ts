@@ -47,7 +47,10 @@ async function start(): Promise<void> {
     try {
       gradients.setValues(message.values);
       const { loss, grads } = gradients.compute(message.L, message.ab, message.n, message.h, message.w, message.borrowed);
-      post({ type: 'gradients', id: message.id, loss, grads }, grads.flatMap((g) => (g ? [g.buffer as ArrayBuffer] : [])));
+      post(
+        { type: 'gradients', id: message.id, loss, grads },
+        grads.flatMap((g) => (g ? [g.buffer as ArrayBuffer] : [])),
+      );
     } catch (error) {
       post({ type: 'failed', id: message.id, error: serialiseError(error) });
     }

@@ -67,7 +67,8 @@ export class ParallelTrainer {
     private readonly trainer: Trainer,
     private readonly options: ParallelTrainerOptions,
   ) {
-    if (!(Number.isInteger(options.workers) && options.workers >= 2)) throw new RangeError(`ParallelTrainer: ${options.workers} workers; use the trainer itself for one`);
+    if (!(Number.isInteger(options.workers) && options.workers >= 2))
+      throw new RangeError(`ParallelTrainer: ${options.workers} workers; use the trainer itself for one`);
     if (!existsSync(fileURLToPath(GRADIENT_WORKER_SCRIPT))) {
       throw new Error(`kinhue is not built (${fileURLToPath(GRADIENT_WORKER_SCRIPT)} is missing): run npm run build`);
     }
@@ -96,7 +97,8 @@ export class ParallelTrainer {
       throw new RangeError(`parallel step: ${L.length} L* and ${ab.length} a*b* values for ${n} crops of ${w} x ${h}`);
     }
     const sizes = shardSizes(n, this.slots.length);
-    if (sizes.some((s) => s === 0)) throw new RangeError(`${n} crops cannot be shared by ${this.slots.length} workers: each needs at least one`);
+    if (sizes.some((s) => s === 0))
+      throw new RangeError(`${n} crops cannot be shared by ${this.slots.length} workers: each needs at least one`);
     if (!this.loaded) {
       await Promise.all(this.slots.map((s) => s.ready));
       // The untrained weights (a frozen encoder) travel once; the trained ones with every shard.
@@ -143,8 +145,16 @@ export class ParallelTrainer {
     return new Promise<BatchGradients>((resolve, reject) => {
       if (slot.failure) return reject(slot.failure);
       slot.pending = { id, resolve, reject };
-      const transfer = [shard.L.buffer, shard.ab.buffer, ...(shard.borrowed ? [shard.borrowed.features8.buffer, shard.borrowed.features16.buffer, shard.borrowed.scene.buffer] : [])];
-      this.post(slot, { type: 'shard', id, values, L: shard.L, ab: shard.ab, n: shard.n, h, w, ...(shard.borrowed ? { borrowed: shard.borrowed } : {}) }, transfer as ArrayBuffer[]);
+      const transfer = [
+        shard.L.buffer,
+        shard.ab.buffer,
+        ...(shard.borrowed ? [shard.borrowed.features8.buffer, shard.borrowed.features16.buffer, shard.borrowed.scene.buffer] : []),
+      ];
+      this.post(
+        slot,
+        { type: 'shard', id, values, L: shard.L, ab: shard.ab, n: shard.n, h, w, ...(shard.borrowed ? { borrowed: shard.borrowed } : {}) },
+        transfer as ArrayBuffer[],
+      );
     }).finally(() => {
       slot.pending = undefined;
     });
@@ -178,7 +188,9 @@ export class ParallelTrainer {
         }
       });
       worker.on('error', (error) => fail(new Error(`a training worker failed: ${error.message}`)));
-      worker.on('exit', (code) => fail(new Error(this.closed ? 'the parallel trainer is closed' : `a training worker stopped (exit code ${code})`)));
+      worker.on('exit', (code) =>
+        fail(new Error(this.closed ? 'the parallel trainer is closed' : `a training worker stopped (exit code ${code})`)),
+      );
     });
     // A failed start is reported by the next step; keep Node from calling it unhandled meanwhile.
     slot.ready.catch(() => undefined);
@@ -194,7 +206,15 @@ interface Shard {
 }
 
 /** Copies crops [start, start + count) of a batch (copies, so that they can be handed to a worker). */
-function cutShard(L: Float32Array, ab: Float32Array, h: number, w: number, borrowed: BorrowedInputs | undefined, start: number, count: number): Shard {
+function cutShard(
+  L: Float32Array,
+  ab: Float32Array,
+  h: number,
+  w: number,
+  borrowed: BorrowedInputs | undefined,
+  start: number,
+  count: number,
+): Shard {
   const plane = h * w;
   const part = (a: Float32Array, per: number): Float32Array => a.slice(start * per, (start + count) * per);
   const C = BACKBONE_CHANNELS;

@@ -120,19 +120,27 @@ export async function loadPhotoSet(paths: string[], options: PhotoSetOptions): P
     const found =
       `${photos.length} colour photo${photos.length === 1 ? '' : 's'} usable` +
       (grey.length ? `, ${grey.length} grey or toned skipped` : '') +
-      (unreadable.length ? `, ${unreadable.length} unreadable (${unreadable.slice(0, 3).map((u) => basename(u.file)).join(', ')}${unreadable.length > 3 ? ', ...' : ''})` : '');
+      (unreadable.length
+        ? `, ${unreadable.length} unreadable (${unreadable
+            .slice(0, 3)
+            .map((u) => basename(u.file))
+            .join(', ')}${unreadable.length > 3 ? ', ...' : ''})`
+        : '');
     throw new KinhueError(ErrorCodes.BAD_DATA, `too few colour photos to train on: ${found}; at least ${needed} are needed`, {
       file: where,
-      hint: photos.length === 0 && unreadable.length > 0 && grey.length === 0
-        ? 'none of the images could be decoded: check they are complete JPEG, PNG, TIFF or WebP files.'
-        : `add colour photographs (at least ${needed}; a few dozen or more work best).`,
+      hint:
+        photos.length === 0 && unreadable.length > 0 && grey.length === 0
+          ? 'none of the images could be decoded: check they are complete JPEG, PNG, TIFF or WebP files.'
+          : `add colour photographs (at least ${needed}; a few dozen or more work best).`,
     });
   }
 
   const { train: rest, holdout } = splitHoldout(photos, options.holdout ?? 0.1, options.seed);
   // The validation photos come out of the rest with a generator of their own: the held-out photos are
   // those a run without validation would hold out.
-  const { train, holdout: validation } = validating ? splitHoldout(rest, (options.validation! * photos.length) / rest.length, options.seed, VALIDATION_STREAM) : { train: rest, holdout: [] };
+  const { train, holdout: validation } = validating
+    ? splitHoldout(rest, (options.validation! * photos.length) / rest.length, options.seed, VALIDATION_STREAM)
+    : { train: rest, holdout: [] };
   return { train, validation, holdout, grey, unreadable, otherFiles: skippedOther };
 }
 
@@ -146,7 +154,12 @@ const VALIDATION_STREAM = 0x2c9e4b17;
  * @example
  *   const { train, holdout } = splitHoldout(photos, 0.1, 1);
  */
-export function splitHoldout<T extends { file: string }>(photos: T[], fraction: number, seed: number, stream = HOLDOUT_STREAM): { train: T[]; holdout: T[] } {
+export function splitHoldout<T extends { file: string }>(
+  photos: T[],
+  fraction: number,
+  seed: number,
+  stream = HOLDOUT_STREAM,
+): { train: T[]; holdout: T[] } {
   const sorted = [...photos].sort((x, y) => (x.file < y.file ? -1 : x.file > y.file ? 1 : 0));
   // A generator of its own, so the split does not depend on anything else the run draws.
   const rng = new Random((seed ^ stream) >>> 0);

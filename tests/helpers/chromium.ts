@@ -11,8 +11,15 @@ import { chromium, type BrowserContext } from 'playwright-core';
 /** The package's flags that loosen a page's security: left out, so the page is tested as a reviewer's browser shows it. */
 const LOOSENING = new Set(['--disable-web-security', '--allow-running-insecure-content', '--disable-site-isolation-trials']);
 /** Quiet and offline: no first-run pages, no background updates or sync. */
-const OWN_FLAGS = ['--no-sandbox', '--disable-gpu', '--disable-quic', '--no-first-run', '--disable-background-networking',
-  '--disable-component-update', '--disable-sync'];
+const OWN_FLAGS = [
+  '--no-sandbox',
+  '--disable-gpu',
+  '--disable-quic',
+  '--no-first-run',
+  '--disable-background-networking',
+  '--disable-component-update',
+  '--disable-sync',
+];
 const DEBIAN_CHROMIUM = '/usr/bin/chromium';
 
 async function browserBinary(): Promise<{ executablePath: string; args: string[]; source: string }> {
@@ -22,7 +29,9 @@ async function browserBinary(): Promise<{ executablePath: string; args: string[]
     return { executablePath, args, source: '@sparticuz/chromium' };
   } catch (error) {
     if (existsSync(DEBIAN_CHROMIUM)) return { executablePath: DEBIAN_CHROMIUM, args: ['--headless'], source: DEBIAN_CHROMIUM };
-    throw new Error(`no browser for the review-sheet test: @sparticuz/chromium failed (${(error as Error).message}) and ${DEBIAN_CHROMIUM} is not there; run npm ci`);
+    throw new Error(
+      `no browser for the review-sheet test: @sparticuz/chromium failed (${(error as Error).message}) and ${DEBIAN_CHROMIUM} is not there; run npm ci`,
+    );
   }
 }
 

@@ -11,9 +11,19 @@ const BIN = join(ROOT, 'bin', 'kinhue.js');
 export const DEMO_RUNS: Record<string, (root: string) => string[]> = {
   defaults: () => [],
   options: (root) => [
-    '--reference', join(root, 'originals', 'wrenfold-05-billy-goat.jpg'),
-    '--hints', join(root, 'hints'),
-    '--format', 'png', '--decoding', 'annealed-mean', '--temperature', '0.3', '--work-size', '256', '--no-confidence',
+    '--reference',
+    join(root, 'originals', 'wrenfold-05-billy-goat.jpg'),
+    '--hints',
+    join(root, 'hints'),
+    '--format',
+    'png',
+    '--decoding',
+    'annealed-mean',
+    '--temperature',
+    '0.3',
+    '--work-size',
+    '256',
+    '--no-confidence',
   ],
 };
 
@@ -33,14 +43,15 @@ function sha(data: string | Uint8Array): string {
 export async function restoreDemoAlbum(root: string, run: keyof typeof DEMO_RUNS): Promise<Record<string, string>> {
   const scans = join(root, 'scans');
   await mkdir(scans, { recursive: true });
-  const names = run === 'defaults'
-    ? (await readdir(join(ROOT, 'demo-photos', 'scans')))
-    : OPTION_SCANS;
+  const names = run === 'defaults' ? await readdir(join(ROOT, 'demo-photos', 'scans')) : OPTION_SCANS;
   for (const name of names) await cp(join(ROOT, 'demo-photos', 'scans', name), join(scans, name));
   if (run !== 'defaults') {
     await cp(join(ROOT, 'demo-photos', 'originals'), join(root, 'originals'), { recursive: true });
     await mkdir(join(root, 'hints'), { recursive: true });
-    await cp(join(ROOT, 'demo-photos', 'scans', 'wrenfold-04-hill-pony.hints.json'), join(root, 'hints', 'wrenfold-04-hill-pony.hints.json'));
+    await cp(
+      join(ROOT, 'demo-photos', 'scans', 'wrenfold-04-hill-pony.hints.json'),
+      join(root, 'hints', 'wrenfold-04-hill-pony.hints.json'),
+    );
   }
   const out = join(root, 'out');
   const result = spawnSync(process.execPath, [BIN, 'restore', scans, '--out', out, '--jobs', '2', ...DEMO_RUNS[run]!(root)], {
@@ -52,11 +63,13 @@ export async function restoreDemoAlbum(root: string, run: keyof typeof DEMO_RUNS
 }
 
 function withoutRunDetails(value: unknown, root: string, drop: string[] = []): unknown {
-  return JSON.parse(JSON.stringify(value, (key, v: unknown) => {
-    if (drop.includes(key)) return undefined;
-    if (['created', 'time', 'timings', 'milliseconds', 'seconds', 'mtimeMs', 'pid', 'host', 'folder'].includes(key)) return undefined;
-    return typeof v === 'string' ? v.split(root).join('<root>').split(ROOT).join('<repo>') : v;
-  }));
+  return JSON.parse(
+    JSON.stringify(value, (key, v: unknown) => {
+      if (drop.includes(key)) return undefined;
+      if (['created', 'time', 'timings', 'milliseconds', 'seconds', 'mtimeMs', 'pid', 'host', 'folder'].includes(key)) return undefined;
+      return typeof v === 'string' ? v.split(root).join('<root>').split(ROOT).join('<repo>') : v;
+    }),
+  );
 }
 
 async function digestFolder(out: string, root: string, pathsNamed: boolean): Promise<Record<string, string>> {
@@ -69,7 +82,9 @@ async function digestFolder(out: string, root: string, pathsNamed: boolean): Pro
       digests[rel] = sha(JSON.stringify(withoutRunDetails(JSON.parse(await readFile(path, 'utf8')), root)));
     } else if (rel.endsWith('.jsonl')) {
       // The settings key hashes absolute paths when a run names a folder or file: pinned only where none is named.
-      const lines = (await readFile(path, 'utf8')).trim().split('\n')
+      const lines = (await readFile(path, 'utf8'))
+        .trim()
+        .split('\n')
         .map((line) => JSON.stringify(withoutRunDetails(JSON.parse(line), root, pathsNamed ? ['settings'] : [])));
       digests[rel] = sha(JSON.stringify(lines.sort()));
     } else if (rel.endsWith('.confidence.png')) {

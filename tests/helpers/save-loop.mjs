@@ -9,7 +9,9 @@ await initBackend();
 const bins = abBins();
 const network = (seed) => {
   const input = tf.input({ shape: [null, null, 1] });
-  const output = tf.layers.conv2d({ filters: bins.count, kernelSize: 1, kernelInitializer: tf.initializers.randomNormal({ seed }) }).apply(input);
+  const output = tf.layers
+    .conv2d({ filters: bins.count, kernelSize: 1, kernelInitializer: tf.initializers.randomNormal({ seed }) })
+    .apply(input);
   return tf.model({ inputs: input, outputs: output });
 };
 const pair = [network(1), network(2)];

@@ -75,10 +75,14 @@ export async function startSlurm(dir: string): Promise<SingleNodeSlurm> {
     if (r.status !== 0) throw new Error(`${name} failed (exit ${r.status}): ${r.stderr}${r.stdout}`);
     return r.stdout;
   };
-  const command = (name: string, args: string[]): string => check(`${name} ${args.join(' ')}`, spawnSync(name, args, { env, encoding: 'utf8', timeout: 30_000 }));
+  const command = (name: string, args: string[]): string =>
+    check(`${name} ${args.join(' ')}`, spawnSync(name, args, { env, encoding: 'utf8', timeout: 30_000 }));
   const logs = async (): Promise<string> => {
-    const tails = await Promise.all(['munged.log', 'slurmctld.log', 'slurmd.log'].map(async (n) =>
-      `--- ${n}\n${(await readFile(join(dir, n), 'utf8').catch(() => '')).split('\n').slice(-15).join('\n')}`));
+    const tails = await Promise.all(
+      ['munged.log', 'slurmctld.log', 'slurmd.log'].map(
+        async (n) => `--- ${n}\n${(await readFile(join(dir, n), 'utf8').catch(() => '')).split('\n').slice(-15).join('\n')}`,
+      ),
+    );
     return tails.join('\n');
   };
   const stop = async (): Promise<void> => {
@@ -98,43 +102,54 @@ export async function startSlurm(dir: string): Promise<SingleNodeSlurm> {
     await writeFile(key, randomBytes(128), { mode: 0o600 });
     await chmod(key, 0o600);
     const socket = join(dir, 'munge.sock');
-    command('munged', [`--key-file=${key}`, `--socket=${socket}`, `--pid-file=${join(dir, 'munged.pid')}`,
-      `--log-file=${join(dir, 'munged.log')}`, `--seed-file=${join(dir, 'munged.seed')}`, '--force']);
+    command('munged', [
+      `--key-file=${key}`,
+      `--socket=${socket}`,
+      `--pid-file=${join(dir, 'munged.pid')}`,
+      `--log-file=${join(dir, 'munged.log')}`,
+      `--seed-file=${join(dir, 'munged.seed')}`,
+      '--force',
+    ]);
     // `slurmd -C` describes this machine as a node line (name, CPUs, sockets, memory).
-    const node = check('slurmd -C', spawnSync('slurmd', ['-C'], { env, encoding: 'utf8' })).split('\n')[0]!.trim();
+    const node = check('slurmd -C', spawnSync('slurmd', ['-C'], { env, encoding: 'utf8' }))
+      .split('\n')[0]!
+      .trim();
     const name = /^NodeName=(\S+)/.exec(node)?.[1];
     if (!name) throw new Error(`slurmd -C printed no node line: ${node}`);
     const [ctldPort, slurmdPort] = [await freePort(), await freePort()];
-    await writeFile(env.SLURM_CONF!, [
-      'ClusterName=kinhuetest',
-      `SlurmctldHost=${name}(127.0.0.1)`,
-      'SlurmUser=root',
-      `SlurmctldPort=${ctldPort}`,
-      `SlurmdPort=${slurmdPort}`,
-      'AuthType=auth/munge',
-      'CredType=cred/munge',
-      `AuthInfo=socket=${socket}`,
-      `StateSaveLocation=${join(dir, 'state')}`,
-      `SlurmdSpoolDir=${join(dir, 'spool')}`,
-      `SlurmctldPidFile=${pidFiles[1]}`,
-      `SlurmdPidFile=${pidFiles[0]}`,
-      `SlurmctldLogFile=${join(dir, 'slurmctld.log')}`,
-      `SlurmdLogFile=${join(dir, 'slurmd.log')}`,
-      // No cgroups: the test may run in a container without them.
-      'ProctrackType=proctrack/linuxproc',
-      'TaskPlugin=task/none',
-      'JobAcctGatherType=jobacct_gather/none',
-      'AccountingStorageType=accounting_storage/none',
-      'JobCompType=jobcomp/none',
-      'MpiDefault=none',
-      'SchedulerType=sched/builtin',
-      'SelectType=select/cons_tres',
-      'SelectTypeParameters=CR_Core',
-      'ReturnToService=2',
-      `${node} NodeAddr=127.0.0.1 State=UNKNOWN`,
-      `PartitionName=test Nodes=${name} Default=YES MaxTime=INFINITE State=UP`,
-      '',
-    ].join('\n'));
+    await writeFile(
+      env.SLURM_CONF!,
+      [
+        'ClusterName=kinhuetest',
+        `SlurmctldHost=${name}(127.0.0.1)`,
+        'SlurmUser=root',
+        `SlurmctldPort=${ctldPort}`,
+        `SlurmdPort=${slurmdPort}`,
+        'AuthType=auth/munge',
+        'CredType=cred/munge',
+        `AuthInfo=socket=${socket}`,
+        `StateSaveLocation=${join(dir, 'state')}`,
+        `SlurmdSpoolDir=${join(dir, 'spool')}`,
+        `SlurmctldPidFile=${pidFiles[1]}`,
+        `SlurmdPidFile=${pidFiles[0]}`,
+        `SlurmctldLogFile=${join(dir, 'slurmctld.log')}`,
+        `SlurmdLogFile=${join(dir, 'slurmd.log')}`,
+        // No cgroups: the test may run in a container without them.
+        'ProctrackType=proctrack/linuxproc',
+        'TaskPlugin=task/none',
+        'JobAcctGatherType=jobacct_gather/none',
+        'AccountingStorageType=accounting_storage/none',
+        'JobCompType=jobcomp/none',
+        'MpiDefault=none',
+        'SchedulerType=sched/builtin',
+        'SelectType=select/cons_tres',
+        'SelectTypeParameters=CR_Core',
+        'ReturnToService=2',
+        `${node} NodeAddr=127.0.0.1 State=UNKNOWN`,
+        `PartitionName=test Nodes=${name} Default=YES MaxTime=INFINITE State=UP`,
+        '',
+      ].join('\n'),
+    );
     command('slurmctld', ['-f', env.SLURM_CONF!]);
     command('slurmd', ['-f', env.SLURM_CONF!]);
     for (let i = 0; ; i++) {

@@ -13,7 +13,9 @@ export async function writeSkyGrassPhotos(folder: string, count = 6): Promise<st
     const h = 48;
     const data = Buffer.alloc(w * h * 3);
     for (let i = 0; i < w * h; i++) data.set(i < (w * h) / 2 ? [90 + 20 * k, 150, 230] : [70, 140 - 10 * k, 60], i * 3);
-    await sharp(data, { raw: { width: w, height: h, channels: 3 } }).png().toFile(join(folder, `p${k}.png`));
+    await sharp(data, { raw: { width: w, height: h, channels: 3 } })
+      .png()
+      .toFile(join(folder, `p${k}.png`));
   }
   return folder;
 }

@@ -33,7 +33,10 @@ export interface Analysis {
 export async function analyse(
   source: string,
   workSize: number,
-  options: { maxPixels?: number; /** Repair dust, hairs and scratches first: the model, the tone report and the result then see the repaired scan. */ repair?: ScanRepairOptions } = {},
+  options: {
+    maxPixels?: number /** Repair dust, hairs and scratches first: the model, the tone report and the result then see the repaired scan. */;
+    repair?: ScanRepairOptions;
+  } = {},
 ): Promise<Analysis> {
   let t = performance.now();
   const lap = (): number => {
@@ -58,8 +61,13 @@ export async function analyse(
   const warnings = [...decoded.warnings];
   if (tone.kind === 'colour') warnings.push('the source is a colour photograph: only its lightness was used and its colours were replaced');
   return {
-    decoded, sha256, bytes: info?.size ?? 0, mtimeMs: info?.mtimeMs ?? 0,
-    working: { width: ws.width, height: ws.height, L: small.L }, tone, warnings,
+    decoded,
+    sha256,
+    bytes: info?.size ?? 0,
+    mtimeMs: info?.mtimeMs ?? 0,
+    working: { width: ws.width, height: ws.height, L: small.L },
+    tone,
+    warnings,
     ...(repair ? { repair } : {}),
     timings: { hash, decode, ...(repairMs !== undefined ? { repair: repairMs } : {}), lightness: lap() },
   };

@@ -30,13 +30,17 @@ export function skinGuide(finder: FaceFinder): Guide {
  * @example
  *   const { colour, records } = applyGuides(predicted, guidance.guides);
  */
-export function applyGuides(colour: WorkingColour, guides: readonly Guide[]): { colour: WorkingColour; records: Record<string, Record<string, unknown>> } {
+export function applyGuides(
+  colour: WorkingColour,
+  guides: readonly Guide[],
+): { colour: WorkingColour; records: Record<string, Record<string, unknown>> } {
   const records: Record<string, Record<string, unknown>> = {};
   if (guides.length === 0) return { colour, records };
   const { width, height } = colour;
-  const confidence = colour.confidenceWidth === width && colour.confidenceHeight === height
-    ? colour.confidence
-    : resizePlane(colour.confidence, colour.confidenceWidth, colour.confidenceHeight, width, height);
+  const confidence =
+    colour.confidenceWidth === width && colour.confidenceHeight === height
+      ? colour.confidence
+      : resizePlane(colour.confidence, colour.confidenceWidth, colour.confidenceHeight, width, height);
   let { a, b } = colour;
   for (const guide of guides) {
     const out = guide.apply({ width, height, L: colour.L, a, b, confidence });

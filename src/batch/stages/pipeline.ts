@@ -47,7 +47,7 @@ export interface FileOutcome {
 export async function restoreFile(
   job: FileJob,
   model: KinhueModel,
-  options: { backend: string; /** Finds faces for the skin prior (absent when the run turned it off). */ faceFinder?: FaceFinder },
+  options: { backend: string /** Finds faces for the skin prior (absent when the run turned it off). */; faceFinder?: FaceFinder },
 ): Promise<FileOutcome> {
   const t0 = performance.now();
   const { settings, outputs } = job;
@@ -83,7 +83,13 @@ export async function restoreFile(
   const meanConfidence = mean(colour.confidence);
   const written = await writeResult(
     {
-      outDir: job.outDir, outputs, source: job.source, sha256: scan.sha256, settings, meanConfidence, maxPixels: job.maxPixels,
+      outDir: job.outDir,
+      outputs,
+      source: job.source,
+      sha256: scan.sha256,
+      settings,
+      meanConfidence,
+      maxPixels: job.maxPixels,
       skinFaces: guidance.record.skin?.faces.length ?? 0,
       ...(scan.repair ? { repair: { mask: scan.repair.mask, repaired: scan.repair.repaired, scan: repairedScan } } : {}),
     },
@@ -118,7 +124,10 @@ export async function restoreFile(
       confidenceMap: settings.confidence ? baseName(outputs.confidence) : null,
     },
     model: {
-      name: settings.model, weightsSha256: settings.weightsSha256, topologySha256: model.topologySha256, folder: model.dir ?? '',
+      name: settings.model,
+      weightsSha256: settings.weightsSha256,
+      topologySha256: model.topologySha256,
+      folder: model.dir ?? '',
       ...(model.meta.backbone ? { backbone: model.meta.backbone } : {}),
     },
     settings,
@@ -135,7 +144,12 @@ export async function restoreFile(
 }
 
 /** The record of a scan's repair: how, how much, and the files that show it. */
-function repairRecord(repair: { repaired: number; method: string }, outputs: PlannedOutputs, pixels: number, scanWritten: boolean): RepairRecord {
+function repairRecord(
+  repair: { repaired: number; method: string },
+  outputs: PlannedOutputs,
+  pixels: number,
+  scanWritten: boolean,
+): RepairRecord {
   const names = repairOutputs(outputs);
   return {
     method: repair.method,

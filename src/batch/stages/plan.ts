@@ -143,9 +143,13 @@ export async function planRestore(options: RestoreOptions): Promise<RestorePlan>
   const notes = [...model.warnings, ...discovery.notes];
   const problems = discovery.problems.filter((p) => inPart(p.rel));
   const failures: FileFailure[] = problems.map((p) => ({ source: p.path, rel: p.rel, code: p.code, message: p.message, hint: p.hint }));
-  const guard = await InputGuard.of(discovery.files.map((f) => f.path), {
-    hint: 'choose an --out folder that is not your scans folder and holds no link to it', outsideInputFolders: true,
-  });
+  const guard = await InputGuard.of(
+    discovery.files.map((f) => f.path),
+    {
+      hint: 'choose an --out folder that is not your scans folder and holds no link to it',
+      outsideInputFolders: true,
+    },
+  );
   // Outputs are named over all scans found, so every part names them alike; then each part keeps its own.
   const allOutputs = planOutputs(discovery.files, settings.format);
   const mine = discovery.files.flatMap((f, i) => (inPart(allOutputs[i]!.image) ? [{ f, o: allOutputs[i]! }] : []));
@@ -168,7 +172,14 @@ export async function planRestore(options: RestoreOptions): Promise<RestorePlan>
     const last = previous.get(o.image);
     const hints = settings.hints === false ? null : await findHints(f.path, { hintsDir: settings.hints || undefined, relative: f.rel });
     const hintsSha256 = hints?.sha256 ?? null;
-    const file: PlannedFile = { source: f.path, rel: f.rel, outputs: o, hints, action: last?.status === 'failed' ? 'retry' : 'run', status: 'planned' };
+    const file: PlannedFile = {
+      source: f.path,
+      rel: f.rel,
+      outputs: o,
+      hints,
+      action: last?.status === 'failed' ? 'retry' : 'run',
+      status: 'planned',
+    };
     const fail = (action: PlanAction, error: KinhueError): void => {
       file.action = action;
       file.status = 'failed';
@@ -177,12 +188,22 @@ export async function planRestore(options: RestoreOptions): Promise<RestorePlan>
     const refused = await checkOutputs(guard, outDir, o).catch((error: unknown) => error as KinhueError);
     if (refused) fail('refuse', refused);
     else if (!options.force && last && (await conflicting(f.path, outDir, o, last))) {
-      fail('conflict', new KinhueError(ErrorCodes.OUTPUT_CONFLICT, `the output folder holds the result of another scan, ${last.source}, under this scan's name ${o.image}`, {
-        file: f.path,
-        hint: 'restore this album into its own --out folder, or add --force to replace the earlier result',
-      }));
+      fail(
+        'conflict',
+        new KinhueError(
+          ErrorCodes.OUTPUT_CONFLICT,
+          `the output folder holds the result of another scan, ${last.source}, under this scan's name ${o.image}`,
+          {
+            file: f.path,
+            hint: 'restore this album into its own --out folder, or add --force to replace the earlier result',
+          },
+        ),
+      );
     } else if (
-      !options.force && last?.status === 'done' && last.settings === key && (last.hintsSha256 ?? null) === hintsSha256 &&
+      !options.force &&
+      last?.status === 'done' &&
+      last.settings === key &&
+      (last.hintsSha256 ?? null) === hintsSha256 &&
       (await stillFinished(f.path, outDir, o, last))
     ) {
       file.action = 'skip';
@@ -191,9 +212,22 @@ export async function planRestore(options: RestoreOptions): Promise<RestorePlan>
     files.push(file);
   }
   return {
-    outDir, model, settings, key, jobs, maxPixels, part, host,
+    outDir,
+    model,
+    settings,
+    key,
+    jobs,
+    maxPixels,
+    part,
+    host,
     manifest: { name: ownName, path: manifestPath, torn: Boolean(run.manifests.find((m) => m.name === ownName)?.contents.torn) },
-    found: discovery.files.length, files, problems: problems.length, failures, hintsNotUsed, notes, guard,
+    found: discovery.files.length,
+    files,
+    problems: problems.length,
+    failures,
+    hintsNotUsed,
+    notes,
+    guard,
   };
 }
 
@@ -209,7 +243,14 @@ export async function checkOutputs(guard: InputGuard, outDir: string, outputs: P
  */
 async function conflicting(source: string, outDir: string, outputs: PlannedOutputs, last: ManifestRecord): Promise<boolean> {
   if (last.source === source) return false;
-  const present = await Promise.all([outputs.image, outputs.record, outputs.confidence].map((rel) => stat(underFolder(outDir, rel)).then(() => true, () => false)));
+  const present = await Promise.all(
+    [outputs.image, outputs.record, outputs.confidence].map((rel) =>
+      stat(underFolder(outDir, rel)).then(
+        () => true,
+        () => false,
+      ),
+    ),
+  );
   if (!present.some(Boolean)) return false;
   const [now, then] = await Promise.all([identify(source), identify(last.source)]);
   if (now.id && now.id === then.id) return false;

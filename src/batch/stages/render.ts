@@ -3,7 +3,15 @@
  * own L*, kept inside the sRGB gamut at that L*, and converted with it to sRGB at the output depth, alpha
  * kept. Runs in strips of rows, so a 100-megapixel scan never exists as float planes.
  */
-import { bilateralGrid, greyToLightness, labToSrgb, limitChroma, sliceRows, type BilateralGrid, type WorkingColour } from '../../colour/index.js';
+import {
+  bilateralGrid,
+  greyToLightness,
+  labToSrgb,
+  limitChroma,
+  sliceRows,
+  type BilateralGrid,
+  type WorkingColour,
+} from '../../colour/index.js';
 import type { BitDepth, Pixels } from '../../image/index.js';
 
 /** Bilateral grid settings from the working size to full size (cells of 2). */
@@ -69,7 +77,13 @@ function stripOf(px: Pixels, y: number, rows: number): Uint8Array | Uint16Array 
 }
 
 /** Copies the source's alpha into the last channel of the output strip, converting depth if needed. */
-function copyAlpha(src: Uint8Array | Uint16Array, channels: number, srcDepth: BitDepth, out: Uint8Array | Uint16Array, outDepth: BitDepth): void {
+function copyAlpha(
+  src: Uint8Array | Uint16Array,
+  channels: number,
+  srcDepth: BitDepth,
+  out: Uint8Array | Uint16Array,
+  outDepth: BitDepth,
+): void {
   const n = src.length / channels;
   const scale = srcDepth === outDepth ? 1 : outDepth === 8 ? 255 / 65535 : 65535 / 255;
   for (let i = 0; i < n; i++) out[i * 4 + 3] = Math.round(src[i * channels + channels - 1]! * scale);

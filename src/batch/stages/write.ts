@@ -43,7 +43,16 @@ export interface ProvenanceRecord {
   /** Mean model confidence over the image, 0-1. */
   meanConfidence: number;
   /** Milliseconds per stage. */
-  timings: { hash: number; decode: number; repair?: number; lightness: number; model: number; colour: number; encode: number; total: number };
+  timings: {
+    hash: number;
+    decode: number;
+    repair?: number;
+    lightness: number;
+    model: number;
+    colour: number;
+    encode: number;
+    total: number;
+  };
   warnings: string[];
   /** Hints and reference photos: what was used, or why a hints file was ignored. Absent when neither applied. */
   guidance?: GuidanceRecord;
@@ -128,12 +137,25 @@ export async function writeResult(
     throw error;
   };
   const encoded = await encodeImage(image, imagePath, {
-    format: outputs.format, quality: settings.quality ?? undefined, exif: extras.exif, icc: extras.icc, xmp, maxPixels: target.maxPixels,
+    format: outputs.format,
+    quality: settings.quality ?? undefined,
+    exif: extras.exif,
+    icc: extras.icc,
+    xmp,
+    maxPixels: target.maxPixels,
   });
   written.push(imagePath);
   if (settings.confidence) {
     const confidencePath = underFolder(outDir, outputs.confidence);
-    await writeGreyMap(confidence.grey, confidence.width, confidence.height, image.width, image.height, confidencePath, target.maxPixels).catch(undo);
+    await writeGreyMap(
+      confidence.grey,
+      confidence.width,
+      confidence.height,
+      image.width,
+      image.height,
+      confidencePath,
+      target.maxPixels,
+    ).catch(undo);
     written.push(confidencePath);
   }
   const warnings = [...encoded.warnings];
@@ -141,19 +163,28 @@ export async function writeResult(
     const { mask, repaired, scan } = target.repair;
     const maskPath = underFolder(outDir, repairNames.mask);
     const white = Uint8Array.from(mask, (m) => (m ? 255 : 0));
-    await encodeImage({ width: image.width, height: image.height, channels: 1, depth: 8, data: white }, maskPath, { format: 'png', maxPixels: target.maxPixels }).catch(undo);
+    await encodeImage({ width: image.width, height: image.height, channels: 1, depth: 8, data: white }, maskPath, {
+      format: 'png',
+      maxPixels: target.maxPixels,
+    }).catch(undo);
     written.push(maskPath);
     if (scan) {
       const scanPath = underFolder(outDir, repairNames.scan);
       const scanXmp = provenanceXmp({
         sourceFile,
         derivedFromHash: target.sha256,
-        description: `Repaired scan of ${baseName(sourceFile)}, made by kinhue: dust, hairs and scratches replaced in ${repaired} pixels ` +
+        description:
+          `Repaired scan of ${baseName(sourceFile)}, made by kinhue: dust, hairs and scratches replaced in ${repaired} pixels ` +
           `(white in ${baseName(repairNames.mask)}); every other pixel is the scan's own. No colour was added.`,
         extra: { repaired: 'yes', repairedPixels: repaired, repairMask: baseName(repairNames.mask), record: baseName(outputs.record) },
       });
       const scanEncoded = await encodeImage(scan, scanPath, {
-        format: outputs.format, quality: settings.quality ?? undefined, exif: extras.exif, icc: extras.icc, xmp: scanXmp, maxPixels: target.maxPixels,
+        format: outputs.format,
+        quality: settings.quality ?? undefined,
+        exif: extras.exif,
+        icc: extras.icc,
+        xmp: scanXmp,
+        maxPixels: target.maxPixels,
       }).catch(undo);
       written.push(scanPath);
       warnings.push(...scanEncoded.warnings.map((w) => `repaired scan: ${w}`));

@@ -26,15 +26,29 @@ export type ScoreArgs = { photos: string[] } & CliArgs<CoreFlags & CommandFlags>
 
 const CORE_FLAGS: OptionTable<CoreFlags> = {
   out: { type: 'string', describe: 'folder to write kinhue-score.csv and kinhue-score.json into', check: checks.folder('out', 'a folder') },
-  workSize: { type: 'number', describe: 'long side in pixels at which the model runs (as for restore)', check: checks.wholeNumber('work-size', 64, 4096) },
-  skin: { type: 'boolean', default: true, describe: 'give the faces found a skin hue, as restore does; --no-skin to score the model alone' },
+  workSize: {
+    type: 'number',
+    describe: 'long side in pixels at which the model runs (as for restore)',
+    check: checks.wholeNumber('work-size', 64, 4096),
+  },
+  skin: {
+    type: 'boolean',
+    default: true,
+    describe: 'give the faces found a skin hue, as restore does; --no-skin to score the model alone',
+  },
 };
 
 const COMMAND_FLAGS: OptionTable<CommandFlags> = {
   model: {
-    type: 'string', array: true, describe: 'model folder; repeat to compare models (default: the shipped model)',
-    check: (models) => (models.some((m) => typeof m !== 'string' || m.trim() === '') ? '--model needs a model folder'
-      : new Set(models).size !== models.length ? 'the same --model is named twice' : undefined),
+    type: 'string',
+    array: true,
+    describe: 'model folder; repeat to compare models (default: the shipped model)',
+    check: (models) =>
+      models.some((m) => typeof m !== 'string' || m.trim() === '')
+        ? '--model needs a model folder'
+        : new Set(models).size !== models.length
+          ? 'the same --model is named twice'
+          : undefined,
   },
   json: { type: 'boolean', default: false, describe: 'print the report as JSON instead of a table' },
 };
@@ -58,15 +72,17 @@ export const command: CommandModule<object, ScoreArgs> = {
   command: 'score <photos...>',
   describe: 'measure models against colour originals, beside a grey and a colour-transfer baseline',
   builder: (yargs: Argv) =>
-    (addOptions(addOptions(yargs, COMMAND_FLAGS), CORE_FLAGS)
-      .positional('photos', { type: 'string', array: true, describe: 'colour originals: files and folders (searched recursively)' })
-      .example(EXAMPLE, 'compare the shipped model with a tuned one on the demo originals')
-      .example('kinhue score originals/ --out scores/ --json', 'write CSV and JSON, and print JSON') as unknown as Argv<ScoreArgs>)
-      .check((argv) => check(argv as Partial<ScoreArgs>)),
+    (
+      addOptions(addOptions(yargs, COMMAND_FLAGS), CORE_FLAGS)
+        .positional('photos', { type: 'string', array: true, describe: 'colour originals: files and folders (searched recursively)' })
+        .example(EXAMPLE, 'compare the shipped model with a tuned one on the demo originals')
+        .example('kinhue score originals/ --out scores/ --json', 'write CSV and JSON, and print JSON') as unknown as Argv<ScoreArgs>
+    ).check((argv) => check(argv as Partial<ScoreArgs>)),
   handler: async (argv: ArgumentsCamelCase<ScoreArgs>) => {
     const progress = new Progress();
     const onEvent = (event: ScoreEvent): void => {
-      if (event.type === 'photo') progress.update(event.done / event.total, `scoring ${event.done}/${event.total}  ${event.file}`, event.done === event.total);
+      if (event.type === 'photo')
+        progress.update(event.done / event.total, `scoring ${event.done}/${event.total}  ${event.file}`, event.done === event.total);
     };
     const report = await score({ ...coreOptions(argv, CORE_FLAGS), photos: argv.photos, models: argv.model, onEvent });
     progress.done();

@@ -18,10 +18,21 @@ export type SheetArgs = { run: string } & CliArgs<CoreFlags>;
 
 const CORE_FLAGS: OptionTable<CoreFlags> = {
   output: {
-    type: 'string', alias: 'o', describe: 'the page to write (default: <run>/kinhue-sheet.html)',
-    check: (o) => (typeof o !== 'string' || o.trim() === '' ? '-o needs a file name ending in .html' : !/\.html?$/i.test(o) ? `-o must name an .html file, got ${o}` : undefined),
+    type: 'string',
+    alias: 'o',
+    describe: 'the page to write (default: <run>/kinhue-sheet.html)',
+    check: (o) =>
+      typeof o !== 'string' || o.trim() === ''
+        ? '-o needs a file name ending in .html'
+        : !/\.html?$/i.test(o)
+          ? `-o must name an .html file, got ${o}`
+          : undefined,
   },
-  embed: { type: 'boolean', default: SHEET_DEFAULTS.embed, describe: 'put the pictures inside the page (as previews) instead of linking to them' },
+  embed: {
+    type: 'boolean',
+    default: SHEET_DEFAULTS.embed,
+    describe: 'put the pictures inside the page (as previews) instead of linking to them',
+  },
 };
 
 /**
@@ -30,7 +41,8 @@ const CORE_FLAGS: OptionTable<CoreFlags> = {
  *   check({ run: 'restored', output: 'restored/review.html' }); // true
  */
 export function check(argv: Partial<SheetArgs>): true {
-  if (typeof argv.run !== 'string' || argv.run.trim() === '') throw new UsageError(`name the output folder of a restore run\nExample usage: ${EXAMPLE}`);
+  if (typeof argv.run !== 'string' || argv.run.trim() === '')
+    throw new UsageError(`name the output folder of a restore run\nExample usage: ${EXAMPLE}`);
   checkOptions(argv, CORE_FLAGS, EXAMPLE);
   return true;
 }
@@ -39,11 +51,15 @@ export const command: CommandModule<object, SheetArgs> = {
   command: 'sheet <run>',
   describe: 'make one HTML page to review a restore run: scan, result and confidence side by side',
   builder: (yargs: Argv) =>
-    (addOptions(yargs, CORE_FLAGS)
-      .positional('run', { type: 'string', describe: 'the output folder of a restore run' })
-      .example(EXAMPLE, 'review the demo run; open the page in any browser, no network needed')
-      .example('kinhue sheet restored -o review.html --embed', 'a single file to send or archive, pictures included') as unknown as Argv<SheetArgs>)
-      .check((argv) => check(argv as Partial<SheetArgs>)),
+    (
+      addOptions(yargs, CORE_FLAGS)
+        .positional('run', { type: 'string', describe: 'the output folder of a restore run' })
+        .example(EXAMPLE, 'review the demo run; open the page in any browser, no network needed')
+        .example(
+          'kinhue sheet restored -o review.html --embed',
+          'a single file to send or archive, pictures included',
+        ) as unknown as Argv<SheetArgs>
+    ).check((argv) => check(argv as Partial<SheetArgs>)),
   handler: async (argv: ArgumentsCamelCase<SheetArgs>) => {
     const sheet = await makeSheet({ ...coreOptions(argv, CORE_FLAGS), run: argv.run });
     const failed = sheet.failed ? `, ${sheet.failed} failed` : '';

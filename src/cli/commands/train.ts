@@ -26,7 +26,8 @@ export const command: CommandModule<object, TrainArgs> = {
       .option('backbone', {
         type: 'boolean',
         default: true,
-        describe: "read the shipped model's borrowed backbone (a pretrained object detector's features) beside L*; --no-backbone for L* alone",
+        describe:
+          "read the shipped model's borrowed backbone (a pretrained object detector's features) beside L*; --no-backbone for L* alone",
       })
       .example(EXAMPLE, 'train for two hours; add --resume after an interruption')
       .example('kinhue train photos/ --out models/mine --steps 2000 --batch 8 --crop 96', 'a fixed number of smaller steps')
