@@ -5,12 +5,13 @@
  * of its input and one vector for the whole picture. Photographs alone cannot teach the colour network
  * what a face, a coat or a sky is; the detector has seen hundreds of thousands of them.
  */
-import { createHash } from 'node:crypto';
 import { readFile } from 'node:fs/promises';
 import { join } from 'node:path';
 import * as tf from '@tensorflow/tfjs';
 import { lightnessToGrey, resizePlane } from '../colour/index.js';
 import { ModelError } from '../errors.js';
+import { sha256 } from './digest.js';
+import { graphModelFrom } from './graph-model.js';
 import { runGraph } from './native-inference.js';
 
 /** The detector's input side: its graph is converted for 416 x 416. */
@@ -80,10 +81,6 @@ export interface BackboneFeatures {
   global: Float32Array;
 }
 
-function sha256(data: Uint8Array): string {
-  return createHash('sha256').update(data).digest('hex');
-}
-
 /** What to do when a model folder's backbone files are missing. */
 export const BACKBONE_MISSING_HINT = `a model folder with a backbone holds ${BACKBONE_TOPOLOGY_FILE} and ${BACKBONE_WEIGHTS_FILE}; copy them from models/kinhue-base.`;
 
@@ -133,15 +130,7 @@ export async function loadBackbone(dir: string, expected?: BackboneRecord): Prom
  */
 export async function backboneFrom(topologyText: Uint8Array, weights: Uint8Array, name = BACKBONE_NAME): Promise<Backbone> {
   const record: BackboneRecord = { name, topologySha256: sha256(topologyText), weightsSha256: sha256(weights) };
-  const json = JSON.parse(Buffer.from(topologyText).toString('utf8')) as {
-    modelTopology: object;
-    weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[];
-  };
-  const weightData = weights.buffer.slice(weights.byteOffset, weights.byteOffset + weights.byteLength) as ArrayBuffer;
-  const graph = await tf.loadGraphModel(
-    tf.io.fromMemory({ modelTopology: json.modelTopology, weightSpecs: json.weightsManifest.flatMap((g) => g.weights), weightData }),
-  );
-  return { graph, topology: topologyText, weights, record };
+  return { graph: await graphModelFrom(topologyText, weights), topology: topologyText, weights, record };
 }
 
 /**

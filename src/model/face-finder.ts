@@ -5,13 +5,14 @@
  * give faces a skin hue instead of whatever the colour network guessed. Its boxes are only a place to look:
  * the skin prior decides pixel by pixel, from L*, what inside a box is skin.
  */
-import { createHash } from 'node:crypto';
 import { readFile } from 'node:fs/promises';
 import { fileURLToPath } from 'node:url';
 import { join } from 'node:path';
 import * as tf from '@tensorflow/tfjs';
 import { lightnessToGrey, resizePlane, shrinkPlane } from '../colour/index.js';
 import { ModelError } from '../errors.js';
+import { sha256 } from './digest.js';
+import { graphModelFrom } from './graph-model.js';
 
 /** The detector's folder in the package. */
 export const FACE_FINDER_DIR = fileURLToPath(new URL('../../models/face-finder', import.meta.url));
@@ -60,10 +61,6 @@ export interface FaceBox {
   score: number;
 }
 
-function sha256(data: Uint8Array): string {
-  return createHash('sha256').update(data).digest('hex');
-}
-
 /**
  * Loads the face detector shipped with the package, its files checked against the published hashes.
  * @example
@@ -89,14 +86,7 @@ export async function loadFaceFinder(dir = FACE_FINDER_DIR): Promise<FaceFinder>
     }),
   );
   const [topology, weights] = files as [Buffer, Buffer];
-  const json = JSON.parse(topology.toString('utf8')) as {
-    modelTopology: object;
-    weightsManifest: { weights: tf.io.WeightsManifestEntry[] }[];
-  };
-  const weightData = weights.buffer.slice(weights.byteOffset, weights.byteOffset + weights.byteLength) as ArrayBuffer;
-  const graph = await tf.loadGraphModel(
-    tf.io.fromMemory({ modelTopology: json.modelTopology, weightSpecs: json.weightsManifest.flatMap((g) => g.weights), weightData }),
-  );
+  const graph = await graphModelFrom(topology, weights);
   return { graph, name: 'blazeface-full-range-256', weightsSha256: EXPECTED_SHA256[WEIGHTS_FILE] };
 }
 

@@ -10,10 +10,11 @@
  * dead process's swap and removes its leftovers. Other files (model card, training log, checkpoint) are
  * never touched.
  */
-import { createHash, randomBytes } from 'node:crypto';
+import { randomBytes } from 'node:crypto';
 import { copyFile, link, mkdir, readdir, readFile, rename, rm, stat, writeFile } from 'node:fs/promises';
 import { join, resolve } from 'node:path';
 import { ModelError } from '../errors.js';
+import { sha256 } from './digest.js';
 import { BACKBONE_MISSING_HINT, BACKBONE_TOPOLOGY_FILE, BACKBONE_WEIGHTS_FILE, checkBackboneFiles } from './backbone.js';
 import { METADATA_FILE, type ModelMetadata, parseMetadata, TOPOLOGY_FILE, WEIGHTS_FILE } from './metadata.js';
 
@@ -47,14 +48,7 @@ const FILES = [BACKBONE_TOPOLOGY_FILE, BACKBONE_WEIGHTS_FILE, WEIGHTS_FILE, TOPO
 const REPLACE_HINT = 'restore the folder from where it came (for the shipped model: reinstall kinhue), or train or tune it again';
 const OTHER_HINT = 'pass a folder written by kinhue train or tune, or leave the model option out to use the shipped model';
 
-/**
- * SHA-256 of bytes, hex.
- * @example
- *   sha256(Buffer.from('')); // 'e3b0c442...'
- */
-export function sha256(data: Uint8Array | string): string {
-  return createHash('sha256').update(data).digest('hex');
-}
+export { sha256 };
 
 async function readOrFail(dir: string, name: string, shown: string): Promise<Buffer> {
   try {
