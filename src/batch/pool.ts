@@ -5,19 +5,14 @@
  */
 import { existsSync } from 'node:fs';
 import { fileURLToPath } from 'node:url';
-import { Worker } from 'node:worker_threads';
 import type { FileJob, FileOutcome } from './stages/pipeline.js';
-import { reviveError, type FromWorker, type WorkerInit } from './worker-protocol.js';
+import { startWorker, type WorkerSlot } from '../worker-slot.js';
+import type { FromWorker, WorkerInit } from './worker-protocol.js';
 
 /** The built worker script. src/batch and dist/batch are both two levels below the package root. */
 export const WORKER_SCRIPT = new URL('../../dist/batch/worker.js', import.meta.url);
 
-interface Slot {
-  worker: Worker;
-  ready: Promise<void>;
-  pending?: { id: number; resolve: (o: FileOutcome) => void; reject: (e: Error) => void };
-  dead: boolean;
-}
+type Slot = WorkerSlot<FileOutcome>;
 
 export class WorkerPool {
   private readonly slots: Slot[] = [];
@@ -51,7 +46,7 @@ export class WorkerPool {
       });
     } finally {
       slot.pending = undefined;
-      if (!slot.dead && !this.closed) this.idle.push(slot);
+      if (!slot.failure && !this.closed) this.idle.push(slot);
     }
   }
 
@@ -67,40 +62,18 @@ export class WorkerPool {
   }
 
   private spawn(): Slot {
-    if (this.slots.filter((s) => !s.dead).length >= this.size) throw new Error('more jobs in flight than workers');
-    const worker = new Worker(WORKER_SCRIPT, { workerData: this.init });
-    const slot: Slot = { worker, ready: Promise.resolve(), dead: false };
-    slot.ready = new Promise<void>((resolve, reject) => {
-      const fail = (error: Error): void => {
-        if (slot.dead) return;
-        slot.dead = true;
-        reject(error);
-        slot.pending?.reject(error);
-      };
-      worker.on('message', (message: FromWorker) => {
-        switch (message.type) {
-          case 'ready':
-            this.backend = message.backend;
-            this.backendWarning = message.warning;
-            resolve();
-            break;
-          case 'init-failed':
-            fail(reviveError(message.error));
-            void worker.terminate();
-            break;
-          case 'done':
-            if (slot.pending?.id === message.id) slot.pending.resolve(message.outcome);
-            break;
-          case 'failed':
-            if (slot.pending?.id === message.id) slot.pending.reject(reviveError(message.error));
-            break;
-        }
-      });
-      worker.on('error', (error) => fail(new Error(`a restore worker failed: ${error.message}`)));
-      worker.on('exit', (code) => fail(new Error(`a restore worker stopped (exit code ${code})`)));
+    if (this.slots.filter((s) => !s.failure).length >= this.size) throw new Error('more jobs in flight than workers');
+    const slot = startWorker<FromWorker, FileOutcome>(WORKER_SCRIPT, this.init, {
+      resultType: 'done',
+      resultOf: (m) => (m as Extract<FromWorker, { type: 'done' }>).outcome,
+      onReady: (m) => {
+        const ready = m as Extract<FromWorker, { type: 'ready' }>;
+        this.backend = ready.backend;
+        this.backendWarning = ready.warning;
+      },
+      errorText: (error) => `a restore worker failed: ${error.message}`,
+      exitText: (code) => `a restore worker stopped (exit code ${code})`,
     });
-    // A failed start is reported through run(); keep Node from calling it unhandled meanwhile.
-    slot.ready.catch(() => undefined);
     this.slots.push(slot);
     return slot;
   }

@@ -7,9 +7,8 @@
 import { existsSync } from 'node:fs';
 import { availableParallelism } from 'node:os';
 import { fileURLToPath } from 'node:url';
-import { Worker } from 'node:worker_threads';
 import type * as tf from '@tensorflow/tfjs';
-import { reviveError } from '../errors.js';
+import { startWorker, type WorkerSlot } from '../worker-slot.js';
 import { BACKBONE_CHANNELS, type BatchGradients, type BorrowedInputs, type Trainer } from '../model/index.js';
 import type { FromGradientWorker, GradientWorkerInit, ToGradientWorker } from './gradient-protocol.js';
 
@@ -33,13 +32,7 @@ export function shardSizes(n: number, k: number): number[] {
   return Array.from({ length: k }, (_, i) => Math.floor(n / k) + (i < n % k ? 1 : 0));
 }
 
-interface Slot {
-  worker: Worker;
-  ready: Promise<void>;
-  pending?: { id: number; resolve: (g: BatchGradients) => void; reject: (e: Error) => void };
-  /** Set once the worker has failed or ended: the reason, for any later request. */
-  failure?: Error;
-}
+type Slot = WorkerSlot<BatchGradients>;
 
 export interface ParallelTrainerOptions {
   /** Worker threads, at least 2 (1 is the trainer's own step). */
@@ -161,40 +154,15 @@ export class ParallelTrainer {
   }
 
   private spawn(init: GradientWorkerInit): Slot {
-    const worker = new Worker(GRADIENT_WORKER_SCRIPT, { workerData: init });
-    const slot: Slot = { worker, ready: Promise.resolve() };
-    slot.ready = new Promise<void>((resolve, reject) => {
-      const fail = (error: Error): void => {
-        if (slot.failure) return;
-        slot.failure = error;
-        reject(error);
-        slot.pending?.reject(error);
-      };
-      worker.on('message', (message: FromGradientWorker) => {
-        switch (message.type) {
-          case 'ready':
-            resolve();
-            break;
-          case 'init-failed':
-            fail(reviveError(message.error));
-            void worker.terminate();
-            break;
-          case 'gradients':
-            if (slot.pending?.id === message.id) slot.pending.resolve({ loss: message.loss, grads: message.grads });
-            break;
-          case 'failed':
-            if (slot.pending?.id === message.id) slot.pending.reject(reviveError(message.error));
-            break;
-        }
-      });
-      worker.on('error', (error) => fail(new Error(`a training worker failed: ${error.message}`)));
-      worker.on('exit', (code) =>
-        fail(new Error(this.closed ? 'the parallel trainer is closed' : `a training worker stopped (exit code ${code})`)),
-      );
+    return startWorker<FromGradientWorker, BatchGradients>(GRADIENT_WORKER_SCRIPT, init, {
+      resultType: 'gradients',
+      resultOf: (m) => {
+        const { loss, grads } = m as Extract<FromGradientWorker, { type: 'gradients' }>;
+        return { loss, grads };
+      },
+      errorText: (error) => `a training worker failed: ${error.message}`,
+      exitText: (code) => (this.closed ? 'the parallel trainer is closed' : `a training worker stopped (exit code ${code})`),
     });
-    // A failed start is reported by the next step; keep Node from calling it unhandled meanwhile.
-    slot.ready.catch(() => undefined);
-    return slot;
   }
 }
 
