@@ -16,6 +16,7 @@ import {
   type FitResult,
 } from '../training/index.js';
 import { ExitCode } from './exit-codes.js';
+import { flagName } from './option-table.js';
 import { writeModelCard } from './model-card.js';
 import { formatDuration, Progress } from './progress.js';
 import { onStopSignals } from './stop-signals.js';
@@ -43,7 +44,7 @@ export function fitOptions<T>(yargs: Argv<T>, mode: FitMode): Argv<T & FitArgs> 
   for (const spec of FIT_OPTIONS) {
     if (!spec.verbs.includes(mode)) continue;
     const shown = spec.defaults?.[mode];
-    table = table.option(spec.flag, {
+    table = table.option(flagName(spec.key), {
       type: spec.type,
       describe: spec.describe,
       ...(shown === undefined ? {} : { defaultDescription: String(shown) }),
@@ -62,10 +63,11 @@ export function checkFitArgs(argv: Partial<FitArgs>, mode: FitMode, example: str
   if (!argv.out) fail('--out <model folder> is required');
   if (argv.hours === undefined && argv.steps === undefined) fail('give a budget: --hours, --steps or both');
   for (const spec of FIT_OPTIONS) {
-    const value = argv[spec.flag];
+    const flag = flagName(spec.key);
+    const value = argv[flag];
     if (value === undefined || !spec.verbs.includes(mode)) continue;
-    if (spec.type === 'string' && String(value).trim() === '') fail(`--${spec.flag} needs a value`);
-    if (spec.valid && !(typeof value === 'number' && spec.valid(value))) fail(`--${spec.flag} must be ${spec.rule}, got ${String(value)}`);
+    if (spec.type === 'string' && String(value).trim() === '') fail(`--${flag} needs a value`);
+    if (spec.valid && !(typeof value === 'number' && spec.valid(value))) fail(`--${flag} must be ${spec.rule}, got ${String(value)}`);
   }
   const workers = argv.workers as number | undefined;
   const batch = (argv.batch as number | undefined) ?? fitDefault<number>('batch', mode)!;
@@ -79,8 +81,8 @@ export function checkFitArgs(argv: Partial<FitArgs>, mode: FitMode, example: str
 export function fitOptionsFrom(argv: FitArgs, mode: FitMode): FitOptions {
   const options: FitOptions = { photos: argv.photos, out: String(argv.out), mode };
   for (const spec of FIT_OPTIONS) {
-    if (spec.verbs.includes(mode) && argv[spec.flag] !== undefined)
-      (options as unknown as Record<string, unknown>)[spec.key] = argv[spec.flag];
+    const value = argv[flagName(spec.key)];
+    if (spec.verbs.includes(mode) && value !== undefined) (options as unknown as Record<string, unknown>)[spec.key] = value;
   }
   return options;
 }

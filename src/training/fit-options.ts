@@ -189,13 +189,12 @@ export type FitSettings = FitResult['options'];
 type OptionValue = number | boolean | string;
 
 /**
- * One option of `train` and `tune`: the FitOptions field it sets, its name on the command line, the
- * verbs that take it, its default per verb (what fit applies when it is not given) and what a valid value
+ * One option of `train` and `tune`: the FitOptions field it sets (its command-line name is the field's
+ * name in kebab case, `learningRate` -> `--learning-rate`), the verbs that take it, its default per verb (what fit applies when it is not given) and what a valid value
  * is. The yargs tables, their checks and the defaults fit applies all read this one list.
  */
 export interface FitOptionSpec {
   key: keyof FitOptions;
-  flag: string;
   type: 'number' | 'boolean' | 'string';
   verbs: readonly FitMode[];
   describe: string;
@@ -208,14 +207,15 @@ export interface FitOptionSpec {
 
 const BOTH: readonly FitMode[] = ['train', 'tune'];
 const whole = (min: number) => (v: number) => Number.isInteger(v) && v >= min;
+/** A share of the photos set aside: enough left to learn from. */
+const FRACTION = { rule: 'a fraction above 0 and at most 0.5', valid: (v: number) => v > 0 && v <= 0.5 } as const;
 
 /** The options `train` and `tune` share with the fit loop, in the order `--help` lists them. */
 export const FIT_OPTIONS: readonly FitOptionSpec[] = [
-  { key: 'out', flag: 'out', type: 'string', verbs: BOTH, describe: 'model folder to write (created if missing; one of its own)' },
-  { key: 'from', flag: 'from', type: 'string', verbs: ['tune'], describe: 'model folder to start from (default: the shipped model)' },
+  { key: 'out', type: 'string', verbs: BOTH, describe: 'model folder to write (created if missing; one of its own)' },
+  { key: 'from', type: 'string', verbs: ['tune'], describe: 'model folder to start from (default: the shipped model)' },
   {
     key: 'hours',
-    flag: 'hours',
     type: 'number',
     verbs: BOTH,
     describe: 'time budget in hours (all resumed sessions together)',
@@ -224,7 +224,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'steps',
-    flag: 'steps',
     type: 'number',
     verbs: BOTH,
     describe: 'step budget (all resumed sessions together)',
@@ -233,7 +232,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'batch',
-    flag: 'batch',
     type: 'number',
     verbs: BOTH,
     describe: 'crops per step',
@@ -243,7 +241,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'crop',
-    flag: 'crop',
     type: 'number',
     verbs: BOTH,
     describe: 'crop side in pixels, a multiple of 16',
@@ -253,7 +250,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'seed',
-    flag: 'seed',
     type: 'number',
     verbs: BOTH,
     describe: 'seed of every random choice (same seed, same model)',
@@ -263,27 +259,22 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'holdout',
-    flag: 'holdout',
     type: 'number',
     verbs: BOTH,
     describe: 'fraction of the photos held out to report on, never to choose (at least 2 photos)',
     defaults: { train: 0.1, tune: 0.1 },
-    rule: 'a fraction above 0 and at most 0.5',
-    valid: (v) => v > 0 && v <= 0.5,
+    ...FRACTION,
   },
   {
     key: 'validation',
-    flag: 'validation',
     type: 'number',
     verbs: BOTH,
     describe: 'fraction of the photos that choose the step kept and when to stop (at least 2 photos)',
     defaults: { train: 0.1, tune: 0.1 },
-    rule: 'a fraction above 0 and at most 0.5',
-    valid: (v) => v > 0 && v <= 0.5,
+    ...FRACTION,
   },
   {
     key: 'learningRate',
-    flag: 'learning-rate',
     type: 'number',
     verbs: BOTH,
     describe: 'optimiser learning rate; with --resume it applies from the next step',
@@ -293,7 +284,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'rebalance',
-    flag: 'rebalance',
     type: 'number',
     verbs: BOTH,
     defaults: { train: 0.5 },
@@ -304,7 +294,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'freezeEncoder',
-    flag: 'freeze-encoder',
     type: 'boolean',
     verbs: ['tune'],
     describe: 'keep the encoder fixed; learn only the decoder (small archives)',
@@ -312,7 +301,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'evalEvery',
-    flag: 'eval-every',
     type: 'number',
     verbs: BOTH,
     describe: 'evaluate on the validation photos every this many steps',
@@ -322,7 +310,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'patience',
-    flag: 'patience',
     type: 'number',
     verbs: BOTH,
     describe: 'stop after this many evaluations in a row without improvement (0: never)',
@@ -332,7 +319,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'resume',
-    flag: 'resume',
     type: 'boolean',
     verbs: BOTH,
     describe: 'continue the run whose checkpoint is in --out',
@@ -340,7 +326,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'checkpointMinutes',
-    flag: 'checkpoint-minutes',
     type: 'number',
     verbs: BOTH,
     describe: 'minutes between checkpoints',
@@ -350,7 +335,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'keepCheckpoint',
-    flag: 'keep-checkpoint',
     type: 'boolean',
     verbs: BOTH,
     describe: 'leave the checkpoint in a finished folder, to continue later with a larger budget',
@@ -358,7 +342,6 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
   },
   {
     key: 'workers',
-    flag: 'workers',
     type: 'number',
     verbs: BOTH,
     rule: 'a whole number of at least 1',
