@@ -1,6 +1,7 @@
 // Speed of the bulk colour conversions on one core (JavaScript runs them on the main thread only).
 // Imports dist/colour/ alone so the figures do not wait on loading the model backends.
 // Goal (issue 2): 8-bit sRGB -> CIELAB at 10 megapixels per second or more.
+import { seededUniform } from '../dist/random.js';
 import { greyToLightness, labToSrgb, lightnessToGrey, srgbToLab } from '../dist/colour/index.js';
 
 const WIDTH = 4000,
@@ -11,15 +12,8 @@ const REPEATS = 5;
 /** Random colours (a seeded xorshift), so no pixel takes the grey shortcut. */
 function randomImage(channels, Type, max) {
   const data = new Type(PIXELS * channels);
-  let s = 2463534242;
-  for (let i = 0; i < data.length; i++) {
-    s ^= s << 13;
-    s >>>= 0;
-    s ^= s >>> 17;
-    s ^= s << 5;
-    s >>>= 0;
-    data[i] = Type === Float32Array ? s / 4294967296 : s % (max + 1);
-  }
+  const next = seededUniform(2463534242);
+  for (let i = 0; i < data.length; i++) data[i] = Type === Float32Array ? next() : Math.floor(next() * (max + 1));
   return data;
 }
 

@@ -6,6 +6,7 @@ import { tmpdir } from 'node:os';
 import { join } from 'node:path';
 import sharp from 'sharp';
 import { srgbToLab } from '../dist/colour/index.js';
+import { seededUniform } from '../dist/random.js';
 import { classifyTone, decodeImage, encodeImage } from '../dist/image/index.js';
 
 const WIDTH = 6000,
@@ -30,15 +31,10 @@ async function measure(label, fn, repeats = 3) {
 try {
   // A smooth 16-bit grey field with noise, like a scanned print.
   const grey16 = new Uint16Array(WIDTH * HEIGHT);
-  let s = 2463534242;
+  const next = seededUniform(2463534242);
   for (let y = 0, i = 0; y < HEIGHT; y++) {
     for (let x = 0; x < WIDTH; x++, i++) {
-      s ^= s << 13;
-      s >>>= 0;
-      s ^= s >>> 17;
-      s ^= s << 5;
-      s >>>= 0;
-      grey16[i] = Math.min(65535, (((x + y) * 6) % 60000) + (s & 2047));
+      grey16[i] = Math.min(65535, (((x + y) * 6) % 60000) + Math.floor(next() * 2048));
     }
   }
   const tif = join(dir, 'scan16.tif');

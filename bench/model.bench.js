@@ -8,6 +8,7 @@
 // shared, this process's own CPU time (the backends run on one thread). Figures only.
 // Imports dist/model/ alone so that nothing else loads. Uses a freshly created network: speed does
 // not depend on the weights.
+import { seededUniform } from '../dist/random.js';
 import * as tf from '@tensorflow/tfjs';
 import { existsSync } from 'node:fs';
 import { join } from 'node:path';
@@ -61,15 +62,7 @@ function measure(fn, repeats) {
 
 /** A seeded plane of L* values with some structure, and matching a*b* planes. */
 function planes(n, w, h) {
-  let s = 2463534242;
-  const next = () => {
-    s ^= s << 13;
-    s >>>= 0;
-    s ^= s >>> 17;
-    s ^= s << 5;
-    s >>>= 0;
-    return s / 4294967296;
-  };
+  const next = seededUniform(2463534242);
   const L = new Float32Array(n * w * h).map((_, i) => 50 + 30 * Math.sin(i / 37) + 10 * next());
   const ab = new Float32Array(n * 2 * w * h).map(() => 80 * next() - 40);
   return { L, ab };

@@ -78,14 +78,7 @@ const sharp = (await import('sharp')).default;
 const model = await kinhue.loadModel(modelDir);
 const originals = join(root, 'demo-photos', 'originals');
 const workSize = model.meta.workingSize;
-let seed = 7;
-const rnd = () => {
-  seed = (seed + 0x6d2b79f5) >>> 0; // mulberry32 (common practice)
-  let t = seed;
-  t = Math.imul(t ^ (t >>> 15), t | 1);
-  t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-  return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-};
+const rnd = (await import(join(root, 'dist', 'random.js'))).seededUniform(7);
 const rgbOf = (px) => {
   const out = new Uint8Array(px.width * px.height * 3);
   for (let i = 0; i < px.width * px.height; i++) for (let c = 0; c < 3; c++) out[i * 3 + c] = px.data[i * px.channels + c];

@@ -8,6 +8,7 @@
 // applies while the workers wait.
 // The machine's load average is printed first: on a shared machine the figures say little without it.
 // KINHUE_BENCH_STEPS sets the timed steps per count (default 3, after one untimed step). Figures only.
+import { seededUniform } from '../dist/random.js';
 import { availableParallelism, loadavg } from 'node:os';
 import { abBins, BACKBONE_CHANNELS, BACKBONE_GRID, createNetwork, createTrainer, initBackend } from '../dist/model/index.js';
 import { BACKBONE_PHOTO_SIZE, CropSampler, ParallelTrainer, Random } from '../dist/training/index.js';
@@ -27,15 +28,7 @@ function cpuMs() {
 
 /** Seeded stand-ins for the training photos and their backbone features (both ways round). */
 function photos(count) {
-  let s = 2463534242;
-  const next = () => {
-    s ^= s << 13;
-    s >>>= 0;
-    s ^= s >>> 17;
-    s ^= s << 5;
-    s >>>= 0;
-    return s / 4294967296;
-  };
+  const next = seededUniform(2463534242);
   const w = BACKBONE_PHOTO_SIZE;
   const h = (BACKBONE_PHOTO_SIZE * 3) / 4;
   const C = BACKBONE_CHANNELS;

@@ -1,11 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { bilateralGrid, bilateralUpsample, resizePlane, shrinkPlane, sliceRows, PlaneShrinker } from '../src/colour/index.js';
-
-/** Park-Miller minimal standard generator (Park & Miller 1988), for reproducible grain. */
-function random(seed: number): () => number {
-  let s = seed;
-  return () => (s = (s * 16807) % 2147483647) / 2147483647;
-}
+import { random } from './helpers/random.js';
 
 /**
  * A synthetic scan: two regions, each of one L* (plus film grain), split by a sharp edge, with a true

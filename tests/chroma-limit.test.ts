@@ -1,11 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { inSrgbGamut, limitChroma, maxChroma } from '../src/colour/index.js';
-
-/** Park-Miller minimal standard generator (Park & Miller 1988). */
-function random(seed: number): () => number {
-  let s = seed;
-  return () => (s = (s * 16807) % 2147483647) / 2147483647;
-}
+import { random } from './helpers/random.js';
 
 /** Largest in-gamut chroma at (L, hue), by bisection on the exact gamut test of the colour module. */
 function bisectChroma(L: number, h: number): number {

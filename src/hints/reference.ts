@@ -12,6 +12,7 @@ import { classifyTone, decodeImage, type Pixels } from '../image/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
 import { hasImageExtension } from '../files/index.js';
 import { smoothColour } from './propagate.js';
+import { seededUniform } from '../random.js';
 
 /** Pooled samples of one or more reference photographs. */
 export interface ReferenceSet {
@@ -174,22 +175,11 @@ function meanAndSd(L: Float32Array): { mean: number; sd: number } {
   return { mean, sd: Math.sqrt(Math.max(0, s2 / L.length - mean * mean)) };
 }
 
-/** A small seeded generator (mulberry32, common practice), so the same reference gives the same samples. */
-function random(seed: number): () => number {
-  let t = seed >>> 0;
-  return () => {
-    t = (t + 0x6d2b79f5) >>> 0;
-    let r = Math.imul(t ^ (t >>> 15), 1 | t);
-    r = (r + Math.imul(r ^ (r >>> 7), 61 | r)) ^ r;
-    return ((r ^ (r >>> 14)) >>> 0) / 4294967296;
-  };
-}
-
 /** One sample per cell of a jittered grid (Welsh et al. 2002, section 3). */
 function sampleReference(lab: LabPlanes, width: number, height: number, count: number, index: number) {
   const deviation = localDeviation(lab.L, width, height);
   const grid = Math.max(1, Math.round(Math.sqrt(count)));
-  const rnd = random(0x6b68 + index);
+  const rnd = seededUniform(0x6b68 + index);
   const L: number[] = [],
     dev: number[] = [],
     a: number[] = [],

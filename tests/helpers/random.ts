@@ -1,11 +1,2 @@
-/** A small seeded generator (mulberry32, common practice) so every run of a test sees the same values. */
-export function random(seed: number): () => number {
-  let s = seed >>> 0;
-  return () => {
-    s = (s + 0x6d2b79f5) >>> 0;
-    let t = s;
-    t = Math.imul(t ^ (t >>> 15), t | 1);
-    t ^= t + Math.imul(t ^ (t >>> 7), t | 61);
-    return ((t ^ (t >>> 14)) >>> 0) / 4294967296;
-  };
-}
+// The project's seeded generator (src/random.ts), under the name the tests use.
+export { seededUniform as random } from '../../src/random.js';
