@@ -9,6 +9,7 @@ import { join } from 'node:path';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { readModelInfo, restore } from '../src/batch/index.js';
 import { ErrorCodes, ModelError } from '../src/errors.js';
+import { hostLabel } from '../src/files/temp-name.js';
 import { DEFAULT_MODEL_DIR, initBackend, loadModel, tidyModelFolder } from '../src/model/index.js';
 import { random } from './helpers/random.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
@@ -172,14 +173,20 @@ describe('the model folder is written as one unit', () => {
       `.kinhue-swap-${dead}-11111111-weights.bin`,
       `weights.bin.${dead}.mabc12.tmp`,
       `training-checkpoint.bin.${dead}.deadbeef.tmp`,
+      `.kinhue-save-${dead}@${hostLabel()}.33333333`,
+      `.kinhue-swap-${dead}@${hostLabel()}.44444444-model.json`,
+      `training-log.jsonl.${dead}@${hostLabel()}.0badf00d.tmp`,
     ];
     await mkdir(join(dir, leftovers[0]!));
     await writeFile(join(dir, leftovers[0]!, 'weights.bin'), 'half');
     for (const name of leftovers.slice(1)) await writeFile(join(dir, name), 'half');
-    const kept = `.kinhue-save-${live}-22222222`;
-    await mkdir(join(dir, kept));
+    const kept = [`.kinhue-save-${live}-22222222`, `.kinhue-save-${live}@${hostLabel()}.55555555`];
+    // Another machine's process id says nothing here (a shared file system): its files are kept.
+    const otherMachine = `.kinhue-swap-${dead}@elsewhere.66666666-weights.bin`;
+    for (const name of kept) await mkdir(join(dir, name));
+    await writeFile(join(dir, otherMachine), 'half');
 
     await saveUntrainedModel(dir);
-    expect((await readdir(dir)).sort()).toEqual([kept, ...MODEL_FILES].sort());
+    expect((await readdir(dir)).sort()).toEqual([...kept, otherMachine, ...MODEL_FILES].sort());
   });
 });

@@ -14,6 +14,7 @@ import { randomBytes } from 'node:crypto';
 import { copyFile, link, mkdir, readdir, readFile, rename, rm, stat, writeFile } from 'node:fs/promises';
 import { join, resolve } from 'node:path';
 import { ModelError } from '../errors.js';
+import { hostLabel, leftByEndedProcess, type TemporaryOwner, temporaryOwner } from '../files/temp-name.js';
 import { sha256 } from './digest.js';
 import { BACKBONE_MISSING_HINT, BACKBONE_TOPOLOGY_FILE, BACKBONE_WEIGHTS_FILE, checkBackboneFiles } from './backbone.js';
 import { METADATA_FILE, type ModelMetadata, parseMetadata, TOPOLOGY_FILE, WEIGHTS_FILE } from './metadata.js';
@@ -39,7 +40,10 @@ export interface ModelFileSet {
   backbone?: { topology: Uint8Array; weights: Uint8Array };
 }
 
-/** Staging folders and temporary files are named `<prefix><pid>-<random>`, so a later save can tell a dead writer's. */
+/**
+ * Staging folders and swap files are named `<prefix><pid>@<host>.<random>` (before the machine's name was
+ * added, `<prefix><pid>-<random>`; a host name holds no '.', so the two cannot be confused), so a later save can tell a dead writer's as files/temp-name.ts does.
+ */
 const STAGING_PREFIX = '.kinhue-save-';
 const TEMP_PREFIX = '.kinhue-swap-';
 /** The order files are swapped in (those a set has); the metadata last, so an undisturbed reader sees it change last. */
@@ -158,30 +162,30 @@ export async function readModelFiles(dir: string): Promise<ModelFiles> {
   }
 }
 
-/** True while a process with this id runs (one we may not signal still runs). */
-function alive(pid: number): boolean {
-  try {
-    process.kill(pid, 0);
-    return true;
-  } catch (error) {
-    return (error as NodeJS.ErrnoException).code === 'EPERM';
-  }
+/** The owner in a staging folder's or swap file's name (`<pid>@<host>.` or `<pid>-` after the prefix). */
+const WRITER = /^(\d+)(?:@([A-Za-z0-9-]+)\.|-)/;
+
+/** Temporary model files of older kinhue, `<name>.<pid>.<base-36 token>.tmp`. */
+const OLDER_TEMP = /\.(\d+)\.[0-9a-z]+\.tmp$/;
+
+/** Who wrote a staging folder, swap file or single-file temporary (checkpoints, logs), or undefined for names that are not ours. */
+function writerOf(name: string): TemporaryOwner | undefined {
+  const prefix = [STAGING_PREFIX, TEMP_PREFIX].find((p) => name.startsWith(p));
+  const older = prefix === undefined ? OLDER_TEMP.exec(name) : null;
+  if (prefix === undefined) return temporaryOwner(name) ?? (older ? { pid: Number(older[1]) } : undefined);
+  const match = WRITER.exec(name.slice(prefix.length));
+  if (!match) return undefined;
+  return match[2] === undefined ? { pid: Number(match[1]) } : { pid: Number(match[1]), host: match[2] };
 }
 
-/** Temporary files of single-file atomic writes (`<name>.<pid>.<token>.tmp`): checkpoints, logs, older kinhue's model files. */
-const ATOMIC_TEMP = /\.(\d+)\.[0-9a-z]+\.tmp$/;
-
-/** The process id in a staging or temporary name, or undefined for names that are not ours. */
-function writerOf(name: string): number | undefined {
-  const prefix = name.startsWith(STAGING_PREFIX) ? STAGING_PREFIX : name.startsWith(TEMP_PREFIX) ? TEMP_PREFIX : undefined;
-  const digits = prefix ? /^(\d+)-/.exec(name.slice(prefix.length))?.[1] : ATOMIC_TEMP.exec(name)?.[1];
-  const pid = Number(digits);
-  return digits !== undefined && Number.isSafeInteger(pid) && pid > 0 ? pid : undefined;
+/** `<pid>@<host>.<random>`: this writer's part of a staging or swap name. */
+function writerToken(): string {
+  return `${process.pid}@${hostLabel()}.${randomBytes(4).toString('hex')}`;
 }
 
 /** Links (or, where links are not allowed, copies) a staged file to a temporary name in `dir`, then renames it into place. */
 async function place(staged: string, dir: string, name: string): Promise<void> {
-  const temp = join(dir, `${TEMP_PREFIX}${process.pid}-${randomBytes(4).toString('hex')}-${name}`);
+  const temp = join(dir, `${TEMP_PREFIX}${writerToken()}-${name}`);
   try {
     await link(join(staged, name), temp).catch(() => copyFile(join(staged, name), temp));
     await rename(temp, join(dir, name));
@@ -202,8 +206,8 @@ async function place(staged: string, dir: string, name: string): Promise<void> {
 export async function tidyModelFolder(dir: string): Promise<void> {
   const names = await readdir(dir).catch(() => [] as string[]);
   const dead = names.filter((name) => {
-    const pid = writerOf(name);
-    return pid !== undefined && pid !== process.pid && !alive(pid);
+    const writer = writerOf(name);
+    return writer !== undefined && leftByEndedProcess(writer);
   });
   if (dead.length === 0) return;
   const folderWhole = await readSet(dir, dir).then(
@@ -238,7 +242,7 @@ export async function tidyModelFolder(dir: string): Promise<void> {
 export async function writeModelFiles(dir: string, files: ModelFileSet): Promise<void> {
   await mkdir(dir, { recursive: true });
   await tidyModelFolder(dir);
-  const staged = join(dir, `${STAGING_PREFIX}${process.pid}-${randomBytes(4).toString('hex')}`);
+  const staged = join(dir, `${STAGING_PREFIX}${writerToken()}`);
   let swapping = false;
   try {
     await mkdir(staged);
