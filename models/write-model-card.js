@@ -175,7 +175,9 @@ const backbone = meta.backbone;
 const pooling = meta.pooling;
 const decoding =
   meta.decoding === 'least-ciede2000'
-    ? 'the least expected CIEDE2000 colour (after undoing the class rebalancing)'
+    ? meta.vividness
+      ? `the least expected CIEDE2000 colour, after undoing the class rebalancing to the power ${1 - meta.vividness} (vividness ${meta.vividness}: more colour, and more wrong colour, than undoing it wholly)`
+      : 'the least expected CIEDE2000 colour (after undoing the class rebalancing)'
     : `the annealed mean at temperature ${meta.temperature}`;
 const last = log.at(-1);
 const card = `# Model card: ${name}

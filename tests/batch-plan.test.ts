@@ -175,6 +175,7 @@ describe('manifest', () => {
   it('keys settings stably and differently when a setting changes', () => {
     expect(settingsKey(settings)).toBe(settingsKey({ ...settings }));
     expect(settingsKey({ ...settings, temperature: 0.5 })).not.toBe(settingsKey(settings));
+    expect(settingsKey({ ...settings, vividness: 0.2 })).not.toBe(settingsKey(settings));
   });
 
   it('ends a torn last line, notes it, and never loses a record glued onto one', async () => {

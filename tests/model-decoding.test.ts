@@ -3,7 +3,7 @@ import { beforeAll, describe, expect, it } from 'vitest';
 import { ciede2000 } from '../src/colour/ciede2000.js';
 import { initBackend } from '../src/model/backend.js';
 import { abBins } from '../src/model/bins.js';
-import { CANDIDATE_CHROMA, decodingTable, leastCiede2000 } from '../src/model/decoding.js';
+import { CANDIDATE_CHROMA, decodingTable, decodingWeights, leastCiede2000 } from '../src/model/decoding.js';
 import { parseMetadata } from '../src/model/metadata.js';
 import { createNetwork } from '../src/model/network.js';
 import { predict } from '../src/model/predict.js';
@@ -113,6 +113,54 @@ describe('least expected CIEDE2000 decoding', () => {
   });
 });
 
+describe('vividness: how much of the rebalancing is left in', () => {
+  it('divides by the weights to the power 1 - vividness, and by the weights themselves at 0', () => {
+    const weights = Float32Array.from([4, 0.25, 1, 9]);
+    expect(Array.from(decodingWeights(weights, 0))).toEqual(Array.from(weights));
+    expect(Array.from(decodingWeights(weights, 0.5))).toEqual([2, 0.5, 1, 3]);
+    expect(Array.from(decodingWeights(weights, 1))).toEqual([1, 1, 1, 1]);
+  });
+
+  it('moves the choice from the cautious colour to the favoured rare one as it rises, never the other way', () => {
+    const orange = nearestBin(30, 40);
+    const blue = nearestBin(-20, -40);
+    const grey = nearestBin(0, 0);
+    const weights = new Float32Array(Q).fill(1);
+    weights[blue] = 10;
+    // True odds: mostly grey, some blue; training's weights made blue look ten times as likely.
+    const logits = logitsOf(
+      new Map([
+        [grey, 0.6],
+        [blue, 0.3],
+        [orange, 0.1],
+      ]),
+      weights,
+    );
+    const chroma = (ab: Float32Array): number => Math.hypot(ab[0], ab[1]);
+    const towardsBlue = (ab: Float32Array): number => ab[0] * bins.a[blue] + ab[1] * bins.b[blue];
+    const chosen = [0, 0.25, 0.5, 0.75, 1].map((v) => decode(logits, decodingWeights(weights, v)));
+    for (let k = 1; k < chosen.length; k++) expect(chroma(chosen[k])).toBeGreaterThanOrEqual(chroma(chosen[k - 1]) - 1e-4);
+    expect(chroma(chosen[0])).toBeLessThan(chroma(chosen[4]));
+    expect(towardsBlue(chosen[4])).toBeGreaterThan(0);
+    expect(Array.from(chosen[4])).toEqual(Array.from(decode(logits)));
+  });
+
+  it("reaches predict's decoding, and is refused outside 0 to 1", () => {
+    const net = createNetwork({ bins: Q, width: 4, seed: 3 });
+    const L = Float32Array.from({ length: 32 * 32 }, (_, i) => (i * 37) % 100);
+    // An orange that training counted a thousandth: undone, it dominates the untrained network's flat distribution.
+    const weights = new Float32Array(Q).fill(1);
+    weights[nearestBin(30, 40)] = 1e-3;
+    const cautious = predict(net, L, 32, 32, { classWeights: weights });
+    const bold = predict(net, L, 32, 32, { classWeights: weights, vividness: 1 });
+    const none = predict(net, L, 32, 32);
+    expect(Array.from(bold.a)).toEqual(Array.from(none.a));
+    expect(Array.from(cautious.a)).not.toEqual(Array.from(bold.a));
+    expect(() => predict(net, L, 32, 32, { vividness: 1.5 })).toThrow(/vividness must be from 0 to 1/);
+    net.dispose();
+  });
+});
+
 describe('choosing a decoding', () => {
   it('uses annealed mean when only a temperature is given, and the least-difference colour by default', () => {
     const net = createNetwork({ bins: Q, width: 4, seed: 3 });
@@ -143,5 +191,9 @@ describe('choosing a decoding', () => {
     expect(parseMetadata(meta, 'older').decoding).toBe('annealed-mean');
     expect(parseMetadata({ ...meta, decoding: 'least-ciede2000' }, 'newer').decoding).toBe('least-ciede2000');
     expect(() => parseMetadata({ ...meta, decoding: 'brightest' }, 'odd')).toThrow(/unknown decoding/);
+    // Folders from before vividness was recorded undid the rebalancing wholly.
+    expect(parseMetadata(meta, 'older').vividness).toBe(0);
+    expect(parseMetadata({ ...meta, vividness: 0.3 }, 'newer').vividness).toBe(0.3);
+    expect(() => parseMetadata({ ...meta, vividness: 2 }, 'odd')).toThrow(/vividness outside 0 to 1/);
   });
 });

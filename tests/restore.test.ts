@@ -8,6 +8,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { readManifest, restore, type RestoreEvent } from '../src/batch/index.js';
 import { check } from '../src/cli/commands/restore.js';
 import { UsageError } from '../src/errors.js';
+import { DEFAULT_VIVIDNESS } from '../src/model/decoding.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
 
 const BIN = join(__dirname, '..', 'bin', 'kinhue.js');
@@ -182,7 +183,7 @@ describe('restore: invariants, failures and resume', () => {
         .update(await readFile(join(modelDir, 'model.json')))
         .digest('hex'),
     );
-    expect(record.settings).toMatchObject({ workSize: 64, format: 'same' });
+    expect(record.settings).toMatchObject({ workSize: 64, format: 'same', decoding: 'least-ciede2000', vividness: DEFAULT_VIVIDNESS });
     expect(record.backend).toBeTruthy();
     expect(record.meanConfidence).toBeGreaterThanOrEqual(0);
     expect(record.meanConfidence).toBeLessThanOrEqual(1);
@@ -229,6 +230,8 @@ describe('restore CLI', () => {
     expect(check({ inputs: ['a.tif'], out: 'o', jobs: 2, 'work-size': 512, temperature: 0.38, quality: 90, format: 'png' })).toBe(true);
     expect(check({ inputs: ['a'], out: 'o', decoding: 'annealed-mean', temperature: 0.5 })).toBe(true);
     expect(check({ inputs: ['a'], out: 'o', decoding: 'least-ciede2000' })).toBe(true);
+    expect(check({ inputs: ['a'], out: 'o', vividness: 0 })).toBe(true);
+    expect(check({ inputs: ['a'], out: 'o', decoding: 'least-ciede2000', vividness: 1 })).toBe(true);
     for (const bad of [
       { inputs: [], out: 'o' },
       { inputs: ['a'], out: '' },
@@ -240,6 +243,10 @@ describe('restore CLI', () => {
       { inputs: ['a'], out: 'o', decoding: 'brightest' },
       { inputs: ['a'], out: 'o', decoding: 'least-ciede2000', temperature: 0.5 },
       { inputs: ['a'], out: 'o', quality: 101 },
+      { inputs: ['a'], out: 'o', vividness: -0.1 },
+      { inputs: ['a'], out: 'o', vividness: 1.5 },
+      { inputs: ['a'], out: 'o', decoding: 'annealed-mean', vividness: 0.5 },
+      { inputs: ['a'], out: 'o', temperature: 0.4, vividness: 0.5 },
     ]) {
       expect(() => check(bad as never), JSON.stringify(bad)).toThrow(UsageError);
       expect(() => check(bad as never)).toThrow(/Example usage: kinhue restore/);

@@ -15,6 +15,8 @@ export interface ModelInfo {
   topologySha256: string;
   decoding: Decoding;
   temperature: number;
+  /** How much class rebalancing its least-CIEDE2000 decoding leaves in. */
+  vividness: number;
   /** The working size the model was trained for. */
   workingSize: number;
   /** Things to tell the user, e.g. that an older folder's layout could not be checked. */
@@ -35,6 +37,7 @@ export async function readModelInfo(dir: string): Promise<ModelInfo> {
     topologySha256,
     decoding: meta.decoding,
     temperature: meta.temperature,
+    vividness: meta.vividness,
     workingSize: meta.workingSize,
     warnings,
   };

@@ -42,6 +42,8 @@ export interface RestoreOptions {
   decoding?: Decoding;
   /** Annealed-mean temperature. Default: the model's own. */
   temperature?: number;
+  /** How much class rebalancing least-CIEDE2000 decoding leaves in, 0 to 1. Default: the model's own. */
+  vividness?: number;
   /** Output format. Default 'same'. */
   format?: FormatChoice;
   /** JPEG/WebP quality 1-100. Default: the encoder's. */
@@ -86,6 +88,8 @@ export interface RestoreSettings {
   decoding: Decoding;
   /** Used by annealed-mean decoding only. */
   temperature: number;
+  /** Used by least-CIEDE2000 decoding only; absent at 0 (all rebalancing undone), so earlier runs keep their key. */
+  vividness?: number;
   format: FormatChoice;
   quality: number | null;
   confidence: boolean;

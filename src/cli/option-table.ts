@@ -92,6 +92,10 @@ export const checks = {
       Number.isInteger(value) && (value as number) >= min && (value as number) <= max
         ? undefined
         : `--${flag} must be a whole number from ${min} to ${max}, got ${value}`,
+  share:
+    (flag: string, meaning: string) =>
+    (value: unknown): string | undefined =>
+      typeof value === 'number' && value >= 0 && value <= 1 ? undefined : `--${flag} must be from 0 to 1 (${meaning}), got ${value}`,
   oneOf:
     (flag: string, choices: readonly string[]) =>
     (value: unknown): string | undefined =>

@@ -18,6 +18,26 @@ export const DECODINGS: readonly Decoding[] = ['least-ciede2000', 'annealed-mean
 
 export const DEFAULT_DECODING: Decoding = 'least-ciede2000';
 
+/**
+ * How much of the class rebalancing least-CIEDE2000 decoding leaves in, from 0 (all undone: the
+ * network's estimate of the true distribution, the most cautious colour) to 1 (none undone: rare,
+ * saturated colours keep the weight training gave them). Between, the weights are undone to the
+ * power 1 - vividness, as Zhang et al. 2016 mix the empirical distribution with a uniform one.
+ * Folders that do not say were decoded at 0; new models get DEFAULT_VIVIDNESS (see the model card
+ * for how it was chosen).
+ */
+export const DEFAULT_VIVIDNESS = 0.25;
+
+/**
+ * The class weights least-CIEDE2000 decoding divides by at a vividness: w^(1 - vividness).
+ * @example
+ * decodingWeights([4, 0.25], 0.5); // Float32Array [2, 0.5]
+ */
+export function decodingWeights(classWeights: ArrayLike<number>, vividness: number): Float32Array {
+  const keep = 1 - vividness;
+  return Float32Array.from(classWeights, (w) => (keep === 1 ? w : w ** keep));
+}
+
 /** Fractions of each bin's chroma offered as candidates (besides grey). */
 export const CANDIDATE_CHROMA = [1 / 3, 2 / 3, 1];
 

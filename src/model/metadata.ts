@@ -36,6 +36,8 @@ export interface ModelMetadata {
   decoding: Decoding;
   /** Annealed-mean temperature used unless the user picks another. */
   temperature: number;
+  /** How much class rebalancing least-CIEDE2000 decoding leaves in (decoding.ts); 0 for folders that do not say. */
+  vividness: number;
   /** Long side in pixels that scans are resized to before prediction. */
   workingSize: number;
   /** How the network reads its input and shapes its output. */
@@ -59,6 +61,7 @@ export interface ModelMetadataInput {
   name?: string;
   decoding?: Decoding;
   temperature?: number;
+  vividness?: number;
   workingSize?: number;
   bins?: AbBins;
   classWeights?: ArrayLike<number>;
@@ -105,6 +108,9 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
   // Folders written before the choice existed were decoded by annealed mean.
   const decoding = m.decoding ?? 'annealed-mean';
   if (!DECODINGS.includes(decoding as Decoding)) fail(dir, `${METADATA_FILE} names an unknown decoding ${JSON.stringify(m.decoding)}`);
+  // Folders written before the setting existed were decoded with the rebalancing wholly undone.
+  const vividness = m.vividness ?? 0;
+  if (typeof vividness !== 'number' || !(vividness >= 0 && vividness <= 1)) fail(dir, `${METADATA_FILE} has a vividness outside 0 to 1`);
   if (typeof m.workingSize !== 'number' || !(m.workingSize >= 16)) fail(dir, `${METADATA_FILE} has no valid working size`);
   if (typeof m.weightsSha256 !== 'string' || !/^[0-9a-f]{64}$/.test(m.weightsSha256)) fail(dir, `${METADATA_FILE} has no weights SHA-256`);
   if (m.topologySha256 !== undefined && (typeof m.topologySha256 !== 'string' || !/^[0-9a-f]{64}$/.test(m.topologySha256))) {
@@ -126,6 +132,7 @@ export function parseMetadata(json: unknown, dir: string): ModelMetadata {
     bins: { grid: bins.grid as number, count: bins.count as number, a: bins.a as number[], b: bins.b as number[] },
     decoding: decoding as Decoding,
     temperature: m.temperature,
+    vividness,
     workingSize: m.workingSize,
     network: { input: 'L/100-0.5', multiple: network.multiple as number, outputStride: network.outputStride as number },
     classWeights: m.classWeights,

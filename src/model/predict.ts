@@ -6,7 +6,7 @@ import * as tf from '@tensorflow/tfjs';
 import { shrinkPlane } from '../colour/index.js';
 import { type Backbone, type BackboneFeatures, backboneFeatures, borrowedInputs } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
-import { annealedMeanTensor, chooseDecoding, DEFAULT_DECODING, leastCiede2000, type Decoding } from './decoding.js';
+import { annealedMeanTensor, chooseDecoding, DEFAULT_DECODING, decodingWeights, leastCiede2000, type Decoding } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
 import { runNetwork } from './native-inference.js';
 import { type PoolingSettings, poolRegions } from './region-pooling.js';
@@ -28,6 +28,8 @@ export interface PredictOptions {
   decoding?: Decoding;
   /** Annealed-mean temperature; default the model's own (0.38 unless trained otherwise). */
   temperature?: number;
+  /** How much class rebalancing least-CIEDE2000 decoding leaves in, 0 to 1 (decoding.ts). Default: the model's own. */
+  vividness?: number;
   /** Rebalancing weights a bare network was trained with (a loaded model brings its own). */
   classWeights?: ArrayLike<number>;
   /** Region pooling before the colour is chosen (region-pooling.ts); false for none. Default: the model's own. */
@@ -68,16 +70,18 @@ interface Parts {
   bins: AbBins;
   decoding: Decoding;
   temperature: number;
+  vividness: number;
   classWeights: ArrayLike<number>;
 }
 
 /** The network, bins and decoding defaults of a model or a bare network (bins from abBins()). */
 function parts(model: KinhueModel | tf.LayersModel): Parts {
   if (model instanceof tf.LayersModel) {
-    return { network: model, bins: abBins(), decoding: DEFAULT_DECODING, temperature: DEFAULT_TEMPERATURE, classWeights: [] };
+    return { network: model, bins: abBins(), decoding: DEFAULT_DECODING, temperature: DEFAULT_TEMPERATURE, vividness: 0, classWeights: [] };
   }
   const { network, bins, meta, classWeights, backbone } = model;
-  return { network, bins, decoding: meta.decoding, temperature: meta.temperature, classWeights, backbone, pooling: meta.pooling };
+  const { decoding, temperature, vividness, pooling } = meta;
+  return { network, bins, decoding, temperature, vividness, classWeights, backbone, pooling };
 }
 
 /**
@@ -100,8 +104,10 @@ export function predict(
   const { network, bins } = own;
   const temperature = options.temperature ?? own.temperature;
   const decoding = chooseDecoding(options, own.decoding);
-  const classWeights = options.classWeights ?? own.classWeights;
+  const vividness = options.vividness ?? own.vividness;
   if (!(temperature > 0)) throw new RangeError(`predict: temperature must be above 0, got ${temperature}`);
+  if (!(vividness >= 0 && vividness <= 1)) throw new RangeError(`predict: vividness must be from 0 to 1, got ${vividness}`);
+  const classWeights = decodingWeights(options.classWeights ?? own.classWeights, vividness);
   const pw = Math.ceil(width / NETWORK_MULTIPLE) * NETWORK_MULTIPLE;
   const ph = Math.ceil(height / NETWORK_MULTIPLE) * NETWORK_MULTIPLE;
   const ow = Math.ceil(width / OUTPUT_STRIDE);

@@ -11,7 +11,7 @@ import { ModelError } from '../errors.js';
 import { VERSION } from '../version.js';
 import { type Backbone, backboneFrom } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
-import { DEFAULT_DECODING } from './decoding.js';
+import { DEFAULT_DECODING, DEFAULT_VIVIDNESS } from './decoding.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
 import {
   DEFAULT_WORKING_SIZE,
@@ -98,6 +98,7 @@ export async function saveModel(
     bins: { grid: bins.grid, count: bins.count, a: Array.from(bins.a), b: Array.from(bins.b) },
     decoding: meta.decoding ?? DEFAULT_DECODING,
     temperature: meta.temperature ?? DEFAULT_TEMPERATURE,
+    vividness: meta.vividness ?? DEFAULT_VIVIDNESS,
     workingSize: meta.workingSize ?? DEFAULT_WORKING_SIZE,
     network: { input: 'L/100-0.5', multiple: NETWORK_MULTIPLE, outputStride: OUTPUT_STRIDE },
     classWeights: meta.classWeights ? Array.from(meta.classWeights) : [],

@@ -48,6 +48,8 @@ export interface ScoreOptions {
   workSize?: number;
   /** Annealed-mean temperature. Default: each model's own. */
   temperature?: number;
+  /** How much class rebalancing least-CIEDE2000 decoding leaves in, 0 to 1. Default: each model's own. */
+  vividness?: number;
   /** Give the faces found a skin hue, as restore does by default. Default true. */
   skin?: boolean;
   /** Pixel limit per image; default the image module's. */
@@ -228,6 +230,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
             const { a, b } = await colouriseLightness(lab.L, width, height, model, {
               workSize,
               temperature: options.temperature,
+              vividness: options.vividness,
               faceFinder,
             });
             figures[method.id] = measure({ L: lab.L, a, b }, original);
@@ -256,7 +259,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     const notes = [
       "Each original's colour is taken out (its CIELAB L* kept, a* = b* = 0) and put back by each method; L* is never changed.",
       'Figures compare the 8-bit sRGB rendering of each result with the original rounded to 8 bits; averages count each photo once (PSNR averaged in dB).',
-      `Models run as restore runs them: at ${options.workSize ? `a working size of ${options.workSize} px` : "each model's own working size"} (long side), colour carried to full size edge-aware${options.skin === false ? ', without the skin prior' : ', faces found given a skin hue'}.`,
+      `Models run as restore runs them: at ${options.workSize ? `a working size of ${options.workSize} px` : "each model's own working size"} (long side), ${options.vividness === undefined ? "each model's own vividness" : `vividness ${options.vividness}`}, colour carried to full size edge-aware${options.skin === false ? ', without the skin prior' : ', faces found given a skin hue'}.`,
       `${HUE_FIGURES_NOTE} Averages of right hue and left grey skip photos with no clearly coloured pixel.`,
       "Reinhard transfer: the global statistics matching of Reinhard et al. 2001, applied in CIELAB rather than the paper's l-alpha-beta space, to a*b* only; a grey input has no a*b* spread, so it becomes the target's mean colour everywhere.",
       ...transfer.map(

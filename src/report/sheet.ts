@@ -100,8 +100,9 @@ async function imageFor(file: string | undefined, ctx: Context, size?: { width: 
 
 /** Provenance as label/value rows for people. */
 /** How the record's colour was chosen (records written before the choice existed say only a temperature). */
-function decodingLabel(settings: { decoding?: string; temperature: number }): string {
-  return settings.decoding === 'least-ciede2000' ? 'least expected CIEDE2000 colour' : `annealed mean, temperature ${settings.temperature}`;
+function decodingLabel(settings: { decoding?: string; temperature: number; vividness?: number }): string {
+  if (settings.decoding !== 'least-ciede2000') return `annealed mean, temperature ${settings.temperature}`;
+  return `least expected CIEDE2000 colour${settings.vividness ? `, vividness ${settings.vividness}` : ''}`;
 }
 
 function provenanceRows(p: ProvenanceRecord): [string, string][] {

@@ -14,6 +14,7 @@ import { writeFileAtomic } from '../files/index.js';
 import {
   chooseDecoding,
   DEFAULT_DECODING,
+  DEFAULT_VIVIDNESS,
   DEFAULT_TEMPERATURE,
   REBALANCE_LAMBDA,
   abBins,
@@ -268,6 +269,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   );
   const temperature = options.temperature ?? start?.meta.temperature ?? DEFAULT_TEMPERATURE;
   const decoding = chooseDecoding({ temperature: options.temperature }, start?.meta.decoding ?? DEFAULT_DECODING);
+  const vividness = start?.meta.vividness ?? DEFAULT_VIVIDNESS;
   if (settings.freezeEncoder) freezeEncoder(network);
   const trainer = createTrainer(network, { learningRate: settings.learningRate, classWeights });
   const rng = new Random(settings.seed);
@@ -295,6 +297,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       const p = predict(network, L, w, h, {
         decoding,
         temperature,
+        vividness,
         classWeights,
         features: evaluatedFeatures.get(photo),
         pooling: pooling ?? false,
@@ -365,6 +368,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     ...(backbone ? { workingSize: settings.photoSize } : start ? { workingSize: start.meta.workingSize } : {}),
     ...(pooling ? { pooling } : {}),
     temperature,
+    vividness,
     classWeights,
     training,
   });

@@ -58,7 +58,11 @@ export async function restoreFile(
   let t = performance.now();
 
   const guidance = await prepareGuides({ hints: job.hints, reference: settings.reference }, W, H);
-  const predicted = await predictColour(working.L, working.width, working.height, model, settings);
+  // The plan resolved every setting: a vividness it left out is 0, not the model's own.
+  const predicted = await predictColour(working.L, working.width, working.height, model, {
+    ...settings,
+    vividness: settings.vividness ?? 0,
+  });
   // The skin prior goes first: reference photos and hints, which the archivist chose, have the last word.
   const guides = options.faceFinder ? [skinGuide(options.faceFinder), ...guidance.guides] : guidance.guides;
   const guided = applyGuides(predicted, guides);

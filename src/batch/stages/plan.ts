@@ -11,7 +11,7 @@ import { ErrorCodes, KinhueError, ModelError, UsageError } from '../../errors.js
 import { discoverInputs, hostLabel, identify, InputGuard, underFolder } from '../../files/index.js';
 import { resolveMaxPixels } from '../../image/index.js';
 import { cachedReference, findHints, type HintsSource } from '../../hints/index.js';
-import { chooseDecoding, DEFAULT_MODEL_DIR } from '../../model/index.js';
+import { chooseDecoding, DEFAULT_MODEL_DIR, type Decoding } from '../../model/index.js';
 import { fileSha256 } from '../hash.js';
 import type { ManifestRecord } from '../manifest.js';
 import { readModelInfo, type ModelInfo } from '../model-info.js';
@@ -108,12 +108,14 @@ export async function planRestore(options: RestoreOptions): Promise<RestorePlan>
     }
     throw error;
   });
+  const decoding = chooseDecoding(options, model.decoding);
   const settings: RestoreSettings = {
     model: model.name,
     weightsSha256: model.weightsSha256,
     workSize: options.workSize ?? model.workingSize,
-    decoding: chooseDecoding(options, model.decoding),
+    decoding,
     temperature: options.temperature ?? model.temperature,
+    ...vividnessSetting(decoding, options.vividness ?? model.vividness),
     format: options.format ?? RESTORE_DEFAULTS.format,
     quality: options.quality ?? null,
     confidence: options.confidence ?? RESTORE_DEFAULTS.confidence,
@@ -281,4 +283,9 @@ async function stillFinished(source: string, outDir: string, outputs: PlannedOut
 async function repairSettings(): Promise<NonNullable<RestoreSettings['repair']>> {
   const { meta } = await sharedRepairModel();
   return { model: meta.name, weightsSha256: meta.weightsSha256, detection: meta.detection, threshold: meta.threshold, fill: meta.fill };
+}
+
+/** The settings entry for least-CIEDE2000's vividness: absent at 0 and for annealed mean, so earlier runs keep their key. */
+function vividnessSetting(decoding: Decoding, vividness: number): { vividness?: number } {
+  return decoding === 'least-ciede2000' && vividness > 0 ? { vividness } : {};
 }

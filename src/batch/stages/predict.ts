@@ -10,6 +10,8 @@ export interface PredictSettings {
   decoding?: Decoding;
   /** Annealed-mean temperature. Default: the model's. */
   temperature?: number;
+  /** How much class rebalancing least-CIEDE2000 decoding leaves in. Default: the model's. */
+  vividness?: number;
 }
 
 /** Bilateral grid settings from the model's quarter size to the working size. */
@@ -27,7 +29,8 @@ export async function predictColour(
   model: KinhueModel,
   settings: PredictSettings = {},
 ): Promise<WorkingColour> {
-  const p = await predict(model, L, width, height, { decoding: settings.decoding, temperature: settings.temperature });
+  const { decoding, temperature, vividness } = settings;
+  const p = await predict(model, L, width, height, { decoding, temperature, vividness });
   const guide = shrinkPlane(L, width, height, p.width, p.height);
   const { a, b } = bilateralUpsample(guide, p.a, p.b, p.width, p.height, L, width, height, {
     ...TO_WORKING_SIZE,

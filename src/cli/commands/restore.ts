@@ -67,6 +67,12 @@ const CORE_FLAGS: OptionTable<CoreFlags> = {
     check: (t) =>
       Number.isFinite(t) && t > 0 && t <= 1 ? undefined : `--temperature must be above 0 and at most 1 (lower is more vivid), got ${t}`,
   },
+  vividness: {
+    type: 'number',
+    describe:
+      "how much colour least-ciede2000 dares, 0 to 1: 0 is the most cautious (more left grey), 1 the boldest (more wrong colour) (default: the model's)",
+    check: checks.share('vividness', '0 cautious, 1 bold'),
+  },
   decoding: {
     type: 'string',
     choices: DECODINGS,
@@ -156,6 +162,8 @@ export function check(argv: Partial<RestoreArgs>): true {
   if (argv.out === undefined) fail('--out needs the folder to write results into');
   checkOptions(argv, CORE_FLAGS, EXAMPLE);
   if (argv.decoding === 'least-ciede2000' && argv.temperature !== undefined) fail('--temperature applies to --decoding annealed-mean only');
+  if (argv.vividness !== undefined && (argv.decoding === 'annealed-mean' || argv.temperature !== undefined))
+    fail('--vividness applies to --decoding least-ciede2000 only (annealed mean takes --temperature)');
   checkOptions(argv, COMMAND_FLAGS, EXAMPLE);
   if (argv.part !== undefined) {
     if (argv['part-from'] !== undefined) fail('give --part or --part-from, not both');

@@ -13,7 +13,7 @@ import { Progress } from '../progress.js';
 const EXAMPLE = 'kinhue score demo-photos/originals --model models/kinhue-base --model models/mine';
 
 /** The core options the command line offers. */
-type CoreFlags = Pick<ScoreOptions, 'out' | 'workSize' | 'skin'>;
+type CoreFlags = Pick<ScoreOptions, 'out' | 'workSize' | 'vividness' | 'skin'>;
 
 /** Options of the command line only: `--model`, repeated, gives the core's `models`. */
 interface CommandFlags {
@@ -30,6 +30,12 @@ const CORE_FLAGS: OptionTable<CoreFlags> = {
     type: 'number',
     describe: 'long side in pixels at which the model runs (as for restore)',
     check: checks.wholeNumber('work-size', 64, 4096),
+  },
+  vividness: {
+    type: 'number',
+    describe:
+      "how much colour each model dares, 0 to 1: 0 is the most cautious (more left grey), 1 the boldest (more wrong colour) (default: each model's own)",
+    check: checks.share('vividness', '0 cautious, 1 bold'),
   },
   skin: {
     type: 'boolean',
