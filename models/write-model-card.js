@@ -206,9 +206,13 @@ ${
   ${pooling.spatial} output pixels, range sigma ${pooling.range} L*), so an object gets one reading instead of blotches.`
     : ''
 }
-- Colour chosen per pixel: ${decoding}.${meta.vividness ? `\n  The vividness was chosen among 0, 0.25, 0.5 and 0.75 as the most right hue with false colour at most 4% on 13 of
+- Colour chosen per pixel: ${decoding}.${
+  meta.vividness
+    ? `\n  The vividness was chosen among 0, 0.25, 0.5 and 0.75 as the most right hue with false colour at most 4% on 13 of
   the held-out photos below (every other one in name order; README, \`score\`): the held-out figures rest partly
-  on photos used for that choice, the demo album's not at all.` : ''}
+  on photos used for that choice, the demo album's not at all.`
+    : ''
+}
 
 ## Training data
 - ${summary.photos.train + summary.photos.holdout} openly licensed colour photographs from Debian packages (listed below):
