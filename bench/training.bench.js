@@ -3,8 +3,8 @@
 // and the ratio to one worker (goal, issue 13: 2 workers at least 1.7x one on a 2-core machine).
 // As `train` runs by default: the network with the backbone's features beside L*, 16 crops of 128 x 128
 // a step drawn by the crop sampler from 40 photos of 320 x 240 (seeded stand-ins for photos and their
-// backbone features: speed does not depend on the values); with workers, the next batch is drawn while
-// they compute, as the fit loop does. Also the main thread's share of a step: the Adam update it
+// backbone features: speed does not depend on the values); with workers, each cuts its own crops and
+// those of the next step while the optimiser runs, as in the fit loop. Also the main thread's share of a step: the Adam update it
 // applies while the workers wait.
 // The machine's load average is printed first: on a shared machine the figures say little without it.
 // KINHUE_BENCH_STEPS sets the timed steps per count (default 3, after one untimed step). Figures only.
@@ -64,15 +64,20 @@ const counts = [...new Set([1, 2, availableParallelism()])].filter((k) => k <= B
 const runs = counts.map((workers) => {
   const network = createNetwork({ bins: bins.count, backbone: true });
   const trainer = createTrainer(network, { learningRate: 1e-3, classWeights });
-  const parallel = workers > 1 ? new ParallelTrainer(network, trainer, { workers, classWeights, backend: backend.name }) : undefined;
+  const parallel =
+    workers > 1
+      ? new ParallelTrainer(network, trainer, { workers, classWeights, backend: backend.name, photos: pool.list, features: pool.features })
+      : undefined;
   const sampler = new CropSampler(pool.list, new Random(1), undefined, pool.features);
   let ahead;
   const step = async () => {
-    const batch = ahead ?? sampler.next(BATCH, CROP);
-    if (!parallel) return trainer.step(batch.L, batch.ab, BATCH, CROP, CROP, batch.borrowed);
-    const computed = parallel.step(batch.L, batch.ab, BATCH, CROP, CROP, batch.borrowed);
-    ahead = sampler.next(BATCH, CROP);
-    return computed;
+    if (!parallel) {
+      const batch = sampler.next(BATCH, CROP);
+      return trainer.step(batch.L, batch.ab, BATCH, CROP, CROP, batch.borrowed);
+    }
+    const draws = ahead ?? sampler.draw(BATCH, CROP);
+    ahead = sampler.draw(BATCH, CROP);
+    return parallel.step(draws, CROP, ahead);
   };
   return { workers, network, trainer, parallel, step, wall: 0, cpu: 0 };
 });
