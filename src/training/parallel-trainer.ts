@@ -9,11 +9,19 @@
 import { existsSync } from 'node:fs';
 import { availableParallelism } from 'node:os';
 import { fileURLToPath } from 'node:url';
+import { setFlagsFromString } from 'node:v8';
 import type * as tf from '@tensorflow/tfjs';
 import { startWorker, type WorkerSlot } from '../worker-slot.js';
 import type { BatchGradients, Trainer } from '../model/index.js';
 import type { CropDraw, PhotoFeatures, PhotoPlanes } from './crop-sampler.js';
 import type { FromGradientWorker, GradientWorkerInit, ToGradientWorker } from './gradient-protocol.js';
+
+/**
+ * The old generation a worker's heap starts with, in MB. A training step's tensors (about 20 MB of
+ * live objects in each worker) otherwise outgrow V8's first limits, and every worker ran a full
+ * collection about twice a step, on the cores the steps need.
+ */
+const WORKER_OLD_SPACE_MB = 64;
 
 /** The built worker script. src/training and dist/training are both two levels below the package root. */
 export const GRADIENT_WORKER_SCRIPT = new URL('../../dist/training/gradient-worker.js', import.meta.url);
@@ -97,6 +105,8 @@ export class ParallelTrainer {
     this.values = sharedFloats(total);
     this.sum = new Float32Array(total);
     this.shardGradients = Array.from({ length: options.workers }, () => sharedFloats(total));
+    // Read by V8 when a worker's heap is made (Worker's resourceLimits cannot set it); this thread's heap is made already.
+    setFlagsFromString(`--initial-old-space-size=${WORKER_OLD_SPACE_MB}`);
     this.slots = this.shardGradients.map((gradients) =>
       this.spawn({
         topology: network.toJSON(null, false) as Record<string, unknown>,
