@@ -4,10 +4,13 @@
 // As `train` runs by default: the network with the backbone's features beside L*, 16 crops of 128 x 128
 // a step drawn by the crop sampler from 40 photos of 320 x 240 (seeded stand-ins for photos and their
 // backbone features: speed does not depend on the values); with workers, each cuts its own crops and
-// those of the next step while the optimiser runs, as in the fit loop. Also the main thread's share of a step: the Adam update it
-// applies while the workers wait.
+// those of the next step while the optimiser runs, as in the fit loop. Also the main thread's share of
+// a step: the Adam update it applies while the workers wait.
+// Every thread compiles its hot WebAssembly and JavaScript anew and its heap settles over the first
+// steps (CPU per step falls for about 5 of them), so the timed steps follow untimed ones.
 // The machine's load average is printed first: on a shared machine the figures say little without it.
-// KINHUE_BENCH_STEPS sets the timed steps per count (default 3, after one untimed step). Figures only.
+// KINHUE_BENCH_STEPS sets the timed steps per count (default 8), KINHUE_BENCH_WARMUP the untimed ones
+// before them (default 5). Figures only.
 import { seededUniform } from '../dist/random.js';
 import { availableParallelism, loadavg } from 'node:os';
 import { abBins, BACKBONE_CHANNELS, BACKBONE_GRID, createNetwork, createTrainer, initBackend } from '../dist/model/index.js';
@@ -15,7 +18,8 @@ import { BACKBONE_PHOTO_SIZE, CropSampler, ParallelTrainer, Random } from '../di
 
 const CROP = 128;
 const BATCH = 16;
-const STEPS = Number(process.env.KINHUE_BENCH_STEPS ?? 3);
+const STEPS = Number(process.env.KINHUE_BENCH_STEPS ?? 8);
+const WARMUP = Number(process.env.KINHUE_BENCH_WARMUP ?? 5);
 
 const backend = await initBackend();
 const bins = abBins();
@@ -56,7 +60,7 @@ const load = loadavg()
 console.log(`backend                          ${backend.name}${backend.warning ? ` (${backend.warning})` : ''}`);
 console.log(`cores                            ${availableParallelism()}; load average (1, 5, 15 min) before: ${load}`);
 console.log(
-  `network                          train's default (backbone features beside L*), ${BATCH} crops of ${CROP} x ${CROP} a step, ${STEPS} timed steps each`,
+  `network                          train's default (backbone features beside L*), ${BATCH} crops of ${CROP} x ${CROP} a step, ${STEPS} timed steps each after ${WARMUP} untimed`,
 );
 
 const counts = [...new Set([1, 2, availableParallelism()])].filter((k) => k <= BATCH);
@@ -82,7 +86,8 @@ const runs = counts.map((workers) => {
   return { workers, network, trainer, parallel, step, wall: 0, cpu: 0 };
 });
 try {
-  for (const run of runs) await run.step(); // untimed: workers start, kernels set up, memory grown
+  // Untimed: workers start, kernels compile and tier up, heaps grow.
+  for (let i = 0; i < WARMUP; i++) for (const run of runs) await run.step();
   // Taken in turns, step by step, so that a change in the machine's load falls on every count alike.
   for (let i = 0; i < STEPS; i++) {
     for (const run of runs) {
