@@ -153,9 +153,9 @@ export class ParallelTrainer {
     const sent = this.ahead;
     this.ahead = undefined;
     const batch = sent && sent.draws === draws && sent.size === size ? sent.batch : this.sendCrops(draws, size);
-    const results = Promise.all(this.slots.map((slot) => this.request(slot, batch)));
+    const results = this.slots.map((slot) => this.request(slot, batch));
     if (next) this.ahead = { draws: next, size, batch: this.sendCrops(next, size) };
-    return this.combine(await results, sizes, draws.length);
+    return this.combine(results, sizes, draws.length);
   }
 
   /**
@@ -209,24 +209,36 @@ export class ParallelTrainer {
     });
   }
 
-  /** The batch's loss and gradients: each shard's weighted by its share of the crops, summed in worker order. */
-  private combine(results: ShardResult[], sizes: number[], n: number): BatchGradients {
+  /**
+   * The batch's loss and gradients: each shard's weighted by its share of the crops, summed in worker
+   * order as each arrives, so that the first are added while the last still compute.
+   */
+  private async combine(results: Promise<ShardResult>[], sizes: number[], n: number): Promise<BatchGradients> {
+    // A failure is thrown once, from the first failed worker in order; the others' are handled here.
+    for (const result of results) result.catch(() => undefined);
     const shares = sizes.map((s) => s / n);
+    const reached = this.lengths.map(() => false);
     let loss = 0;
-    results.forEach((r, k) => (loss += shares[k]! * r.loss));
-    let end = 0;
-    const grads = this.lengths.map((length, i) => {
-      const start = end;
-      end += length;
-      if (!results.some((r) => r.reached[i])) return null;
-      const sum = this.sum.subarray(start, end).fill(0);
-      results.forEach((r, k) => {
+    for (const [k, pending] of results.entries()) {
+      const r = await pending;
+      const g = this.shardGradients[k]!;
+      const share = shares[k]!;
+      loss += share * r.loss;
+      let end = 0;
+      this.lengths.forEach((length, i) => {
+        const start = end;
+        end += length;
         if (!r.reached[i]) return;
-        const g = this.shardGradients[k]!;
-        const share = shares[k]!;
+        const sum = this.sum.subarray(start, end);
+        if (!reached[i]) sum.fill(0);
+        reached[i] = true;
         for (let j = 0; j < length; j++) sum[j] += share * g[start + j]!;
       });
-      return sum;
+    }
+    let end = 0;
+    const grads = this.lengths.map((length, i) => {
+      end += length;
+      return reached[i] ? this.sum.subarray(end - length, end) : null;
     });
     return { loss, grads };
   }
