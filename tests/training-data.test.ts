@@ -8,8 +8,10 @@ import { converter, differenceCiede2000 } from 'culori';
 import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { KinhueError } from '../src/errors.js';
+import { BACKBONE_CHANNELS, BACKBONE_GRID } from '../src/model/index.js';
 import {
   CropSampler,
+  cutCrops,
   Random,
   evaluatePhotos,
   loadCheckpoint,
@@ -248,6 +250,37 @@ describe('crop sampling', () => {
         expect(batch.ab[i * 512 + p]! + batch.ab[i * 512 + 256 + p]! + 20).toBeCloseTo(batch.L[i * 256 + p]!, 3);
       }
     }
+  });
+
+  it('draws the crops next() cuts, in the same random order, and cuts them again into a batch given', () => {
+    const photos = Array.from({ length: 3 }, (_, i) => rampPhoto(`p${i}`, 48 + 8 * i, 40));
+    const whole = new CropSampler(photos, new Random(9)).next(5, 16);
+    const drawing = new CropSampler(photos, new Random(9));
+    const draws = drawing.draw(5, 16);
+    expect(new Set(draws.slice(0, 3).map((d) => d.photo)).size).toBe(3); // one pass visits every photo
+    const cut = cutCrops(photos, undefined, draws, 16);
+    expect(cut.L).toEqual(whole.L);
+    expect(cut.ab).toEqual(whole.ab);
+    // Other crops cut into the same arrays replace every value: the reused batch equals a fresh one.
+    const later = drawing.draw(5, 16);
+    const fresh = cutCrops(photos, undefined, later, 16);
+    const reused = cutCrops(photos, undefined, later, 16, cut);
+    expect(reused.L).toBe(cut.L);
+    expect(reused.L).toEqual(fresh.L);
+    expect(reused.ab).toEqual(fresh.ab);
+    expect(fresh.L).not.toEqual(whole.L);
+    // A batch of another size is not reused.
+    expect(cutCrops(photos, undefined, later.slice(0, 2), 16, cut).L).not.toBe(cut.L);
+    // The backbone's features are laid out on cells of 8 and 16 pixels.
+    const features = [0, 1, 2].map(() => {
+      const f = {
+        local8: new Float32Array(BACKBONE_GRID.local8 ** 2 * BACKBONE_CHANNELS.local8),
+        local16: new Float32Array(BACKBONE_GRID.local16 ** 2 * BACKBONE_CHANNELS.local16),
+        global: new Float32Array(BACKBONE_CHANNELS.global),
+      };
+      return { plain: f, mirrored: f };
+    });
+    expect(() => cutCrops(photos, features, new CropSampler(photos, new Random(1)).draw(1, 24), 24)).toThrow(/24 pixels/);
   });
 });
 

@@ -6,7 +6,9 @@ import { fileURLToPath } from 'node:url';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import {
   abBins,
+  type BackboneFeatures,
   BACKBONE_CHANNELS,
+  BACKBONE_GRID,
   createGradientComputer,
   createNetwork,
   createTrainer,
@@ -14,38 +16,50 @@ import {
   freezeEncoder,
   initBackend,
   type BatchGradients,
-  type BorrowedInputs,
 } from '../src/model/index.js';
-import { CHECKPOINT_FILE, ParallelTrainer, shardSizes, SUMMARY_FILE } from '../src/training/index.js';
+import {
+  CHECKPOINT_FILE,
+  CropSampler,
+  cutCrops,
+  ParallelTrainer,
+  type PhotoFeatures,
+  type PhotoPlanes,
+  Random,
+  shardSizes,
+  SUMMARY_FILE,
+} from '../src/training/index.js';
+import type { CropBatch } from '../src/training/index.js';
 import { writeSkyGrassPhotos } from './helpers/sky-grass-photos.js';
 
 // Data-parallel training steps on real worker threads (loaded from dist/, built by npm test) against
-// the one-thread computation of the same batch. Tiny networks and 32-pixel crops keep this fast.
+// the one-thread computation of the same crops. Tiny networks and 32-pixel crops keep this fast.
 
 const BIN = join(dirname(fileURLToPath(import.meta.url)), '..', 'bin', 'kinhue.js');
 const bins = abBins();
 const classWeights = Float32Array.from({ length: bins.count }, (_, q) => 0.5 + (q % 7) / 6);
 const S = 32;
 
-/** A seeded batch of n crops: L*, a*b* and (for a network that reads one) backbone features. Our own test data. */
-function batch(n: number, seed: number, withBackbone: boolean): { L: Float32Array; ab: Float32Array; borrowed?: BorrowedInputs } {
+/** Seeded photos of 48 x 40 and (for a network that reads them) their backbone features. Our own test data. */
+function photoSet(count: number, seed: number, withBackbone: boolean): { photos: PhotoPlanes[]; features?: PhotoFeatures[] } {
   let s = seed >>> 0;
   const next = () => (s = (Math.imul(s, 1664525) + 1013904223) >>> 0) / 4294967296;
-  const L = new Float32Array(n * S * S).map((_, i) => 40 + 30 * Math.sin(i / 7) + 20 * next());
-  const ab = new Float32Array(n * 2 * S * S).map((_, i) => 50 * Math.cos(i / 97 + seed) + 10 * next());
-  if (!withBackbone) return { L, ab };
+  const [width, height] = [48, 40];
+  const plane = (f: (i: number) => number) => Float32Array.from({ length: width * height }, (_, i) => f(i));
+  const photos = Array.from({ length: count }, (_, k) => ({
+    width,
+    height,
+    L: plane((i) => 40 + 30 * Math.sin(i / 7 + k) + 20 * next()),
+    a: plane((i) => 50 * Math.cos(i / 97 + k) + 10 * next()),
+    b: plane((i) => 40 * Math.sin(i / 53 - k) + 10 * next()),
+  }));
+  if (!withBackbone) return { photos };
   const C = BACKBONE_CHANNELS;
-  const cells8 = (S / 8) ** 2;
-  const cells16 = (S / 16) ** 2;
-  return {
-    L,
-    ab,
-    borrowed: {
-      features8: new Float32Array(n * cells8 * C.local8).map(() => next() - 0.5),
-      features16: new Float32Array(n * cells16 * C.local16).map(() => next() - 0.5),
-      scene: new Float32Array(n * cells16 * C.global).map(() => next() - 0.5),
-    },
-  };
+  const features = (): BackboneFeatures => ({
+    local8: new Float32Array(BACKBONE_GRID.local8 ** 2 * C.local8).map(() => next() - 0.5),
+    local16: new Float32Array(BACKBONE_GRID.local16 ** 2 * C.local16).map(() => next() - 0.5),
+    global: new Float32Array(C.global).map(() => next() - 0.5),
+  });
+  return { photos, features: photos.map(() => ({ plain: features(), mirrored: features() })) };
 }
 
 /** The largest difference over the largest magnitude, per weight. */
@@ -82,14 +96,20 @@ describe('parallel trainer', () => {
   });
 
   for (const withBackbone of [false, true]) {
-    it(`two workers give the one-thread gradient of the same batch, shards of 2 and 1 crops (${withBackbone ? 'with' : 'without'} the backbone's inputs)`, async () => {
+    it(`two workers give the one-thread gradient of the same crops, shards of 2 and 1 crops (${withBackbone ? 'with' : 'without'} the backbone's inputs)`, async () => {
       const net = createNetwork({ width: 4, seed: 3, backbone: withBackbone });
       const trainer = createTrainer(net, { learningRate: 1e-3, classWeights });
-      const d = batch(3, 7, withBackbone);
-      const whole = createGradientComputer(net, { classWeights, names: trainer.names }).compute(d.L, d.ab, 3, S, S, d.borrowed);
-      const parallel = new ParallelTrainer(net, trainer, { workers: 2, classWeights, backend });
+      const { photos, features } = photoSet(4, 7, withBackbone);
+      const draws = new CropSampler(photos, new Random(7)).draw(3, S);
+      const one = createGradientComputer(net, { classWeights, names: trainer.names });
+      const gradientsOf = (crops: CropBatch): BatchGradients => one.compute(crops.L, crops.ab, crops.n, S, S, crops.borrowed);
+      const whole = gradientsOf(cutCrops(photos, features, draws, S));
+      const parallel = new ParallelTrainer(net, trainer, { workers: 2, classWeights, backend, photos, features });
       try {
-        const shared = await parallel.gradients(d.L, d.ab, 3, S, S, d.borrowed);
+        // The photos are moved into memory the workers share (the values unchanged: the gradients below agree).
+        expect(photos[0]!.L.buffer).toBeInstanceOf(SharedArrayBuffer);
+        if (features) expect(features[0]!.mirrored.local8.buffer).toBeInstanceOf(SharedArrayBuffer);
+        const shared = await parallel.gradients(draws, S);
         expect(shared.grads.length).toBe(whole.grads.length);
         // Float32 sums taken in another order: agreement to 1e-5 of each weight's largest gradient
         // (float32 resolution is 6e-8; the convolutions' sums run over thousands of terms; common practice).
@@ -97,19 +117,7 @@ describe('parallel trainer', () => {
         expect(worstRelative(whole, shared)).toBeLessThan(1e-5);
         expect(Math.abs(shared.loss - whole.loss) / whole.loss).toBeLessThan(1e-5);
         // Each shard on its own is far from the whole: the comparison means something.
-        const first = createGradientComputer(net, { classWeights, names: trainer.names }).compute(
-          d.L.slice(0, 2 * S * S),
-          d.ab.slice(0, 4 * S * S),
-          2,
-          S,
-          S,
-          d.borrowed && {
-            features8: d.borrowed.features8.slice(0, 2 * 16 * BACKBONE_CHANNELS.local8),
-            features16: d.borrowed.features16.slice(0, 2 * 4 * BACKBONE_CHANNELS.local16),
-            scene: d.borrowed.scene.slice(0, 2 * 4 * BACKBONE_CHANNELS.global),
-          },
-        );
-        expect(worstRelative(whole, first)).toBeGreaterThan(1e-3);
+        expect(worstRelative(whole, gradientsOf(cutCrops(photos, features, draws.slice(0, 2), S)))).toBeGreaterThan(1e-3);
       } finally {
         await parallel.close();
         trainer.dispose();
@@ -118,6 +126,32 @@ describe('parallel trainer', () => {
     });
   }
 
+  it('uses the crops cut ahead for the step they were drawn for, and others when a step asks for others', async () => {
+    const net = createNetwork({ width: 4, seed: 5 });
+    const trainer = createTrainer(net, { learningRate: 1e-3, classWeights });
+    const { photos } = photoSet(5, 11, false);
+    const sampler = new CropSampler(photos, new Random(3));
+    const [first, announced, instead] = [sampler.draw(2, S), sampler.draw(2, S), sampler.draw(2, S)];
+    const one = createGradientComputer(net, { classWeights, names: trainer.names });
+    const expected = (draws: typeof first): BatchGradients => {
+      const crops = cutCrops(photos, undefined, draws, S);
+      return one.compute(crops.L, crops.ab, 2, S, S);
+    };
+    const parallel = new ParallelTrainer(net, trainer, { workers: 2, classWeights, backend, photos });
+    try {
+      // gradients() leaves the weights as they are: every answer can be checked against this thread's.
+      await parallel.gradients(first, S, announced);
+      expect(worstRelative(expected(instead), await parallel.gradients(instead, S, announced))).toBeLessThan(1e-5);
+      const got = await parallel.gradients(announced, S);
+      expect(worstRelative(expected(announced), got)).toBeLessThan(1e-5);
+      expect(worstRelative(expected(instead), got)).toBeGreaterThan(1e-3);
+    } finally {
+      await parallel.close();
+      trainer.dispose();
+      net.dispose();
+    }
+  });
+
   it('keeps a frozen encoder fixed on its workers and trains the rest, the same in every run', async () => {
     const run = async (): Promise<Float32Array[]> => {
       const net = createNetwork({ width: 4, seed: 2 });
@@ -125,11 +159,15 @@ describe('parallel trainer', () => {
       const encoder = encoderLayerNames(net).map((n) => Float32Array.from(net.getLayer(n).getWeights()[0]!.dataSync() as Float32Array));
       const head = Float32Array.from(net.getLayer('logits').getWeights()[0]!.dataSync() as Float32Array);
       const trainer = createTrainer(net, { learningRate: 1e-2, classWeights });
-      const parallel = new ParallelTrainer(net, trainer, { workers: 2, classWeights, backend });
+      const { photos } = photoSet(4, 20, false);
+      const sampler = new CropSampler(photos, new Random(20));
+      const parallel = new ParallelTrainer(net, trainer, { workers: 2, classWeights, backend, photos });
       try {
+        let draws = sampler.draw(4, S);
         for (let i = 0; i < 3; i++) {
-          const d = batch(4, 20 + i, false);
-          await parallel.step(d.L, d.ab, 4, S, S);
+          const next = sampler.draw(4, S);
+          await parallel.step(draws, S, next);
+          draws = next;
         }
         encoderLayerNames(net).forEach((n, i) =>
           expect(Array.from(net.getLayer(n).getWeights()[0]!.dataSync())).toEqual(Array.from(encoder[i]!)),
@@ -149,24 +187,39 @@ describe('parallel trainer', () => {
   });
 
   it("rejects a step with the worker's own error, stays usable, and closes", async () => {
-    const net = createNetwork({ width: 4, seed: 1, backbone: true });
+    const net = createNetwork({ width: 4, seed: 1 });
     const trainer = createTrainer(net, { learningRate: 1e-3, classWeights });
-    const parallel = new ParallelTrainer(net, trainer, { workers: 2, classWeights, backend });
+    const { photos } = photoSet(3, 1, false);
+    const sampler = new CropSampler(photos, new Random(1));
+    const parallel = new ParallelTrainer(net, trainer, { workers: 2, classWeights, backend, photos });
     try {
-      const d = batch(2, 1, true);
-      // Without the backbone's inputs the workers' network cannot run: their error comes back.
-      await expect(parallel.step(d.L, d.ab, 2, S, S)).rejects.toThrow(/the batch lacks them/);
-      // Sizes that do not add up are refused before any worker sees them.
-      await expect(parallel.step(d.L, d.ab, 3, S, S, d.borrowed)).rejects.toThrow(RangeError);
+      // Crops of 24 pixels do not fit the network's strides: the workers' own check fails, and its message comes back.
+      await expect(parallel.step(sampler.draw(2, 24), 24)).rejects.toThrow(/multiples of 16, got 24 x 24/);
+      // One crop cannot be shared by two workers: refused before any worker sees it.
+      await expect(parallel.step(sampler.draw(1, S), S)).rejects.toThrow(RangeError);
       expect(trainer.steps).toBe(0);
-      expect(await parallel.step(d.L, d.ab, 2, S, S, d.borrowed)).toBeGreaterThan(0);
+      expect(await parallel.step(sampler.draw(2, S), S)).toBeGreaterThan(0);
       expect(trainer.steps).toBe(1);
     } finally {
       await parallel.close();
     }
-    await expect(parallel.step(new Float32Array(2 * S * S), new Float32Array(4 * S * S), 2, S, S)).rejects.toThrow(/closed/);
+    await expect(parallel.step(sampler.draw(2, S), S)).rejects.toThrow(/closed/);
     trainer.dispose();
     net.dispose();
+  });
+
+  it('needs the features of the photos for a network that reads the backbone: the workers say so', async () => {
+    const net = createNetwork({ width: 4, seed: 1, backbone: true });
+    const trainer = createTrainer(net, { learningRate: 1e-3, classWeights });
+    const { photos } = photoSet(3, 1, false);
+    const parallel = new ParallelTrainer(net, trainer, { workers: 2, classWeights, backend, photos });
+    try {
+      await expect(parallel.step(new CropSampler(photos, new Random(1)).draw(2, S), S)).rejects.toThrow(/the batch lacks them/);
+    } finally {
+      await parallel.close();
+      trainer.dispose();
+      net.dispose();
+    }
   });
 });
 

@@ -40,7 +40,7 @@ import {
 } from '../model/index.js';
 import { VERSION } from '../version.js';
 import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js';
-import { type CropBatch, CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
+import { type CropDraw, CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
 import { evaluatePhotos, type Evaluation } from './evaluation.js';
 import {
   fitDefault,
@@ -279,10 +279,10 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   let lossCount = 0;
   let sampler: CropSampler;
   /**
-   * The next batch, drawn while the workers computed a step, with the random state from before it:
-   * a checkpoint keeps that state, so a resumed run draws the same batch again.
+   * The next step's crops, drawn before the workers computed a step (they cut them ahead), with the
+   * random state from before them: a checkpoint keeps that state, so a resumed run draws them again.
    */
-  let ahead: { batch: CropBatch; rng: RandomState; sampler: SamplerState } | undefined;
+  let ahead: { draws: CropDraw[]; rng: RandomState; sampler: SamplerState } | undefined;
   let best: CheckpointState['best'] = null;
   /** The best weights when this session reached them (else they are the model in `out`). */
   let bestWeights: Float32Array[] | undefined;
@@ -457,7 +457,10 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       inUse,
     );
   }
-  const parallel = workers > 1 ? new ParallelTrainer(network, trainer, { workers, classWeights, backend: backend.name }) : undefined;
+  const parallel =
+    workers > 1
+      ? new ParallelTrainer(network, trainer, { workers, classWeights, backend: backend.name, photos: set.train, features: trainFeatures })
+      : undefined;
   let stoppedBy: StoppedBy = 'steps';
   try {
     for (;;) {
@@ -472,18 +475,18 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         stoppedBy = 'interrupted';
         break;
       }
-      const batch = ahead?.batch ?? sampler.next(settings.batch, settings.crop);
-      ahead = undefined;
       let loss: number;
       if (parallel) {
-        // The shards are on their way when step() returns; the main thread draws the next batch meanwhile.
-        const computed = parallel.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
+        // The workers cut the next step's crops while the optimiser applies this one's gradients.
+        const draws = ahead?.draws ?? sampler.draw(settings.batch, settings.crop);
+        ahead = undefined;
         if (step + 1 < maxSteps) {
           const before = { rng: rng.getState(), sampler: sampler.getState() };
-          ahead = { ...before, batch: sampler.next(settings.batch, settings.crop) };
+          ahead = { ...before, draws: sampler.draw(settings.batch, settings.crop) };
         }
-        loss = await computed;
+        loss = await parallel.step(draws, settings.crop, ahead?.draws);
       } else {
+        const batch = sampler.next(settings.batch, settings.crop);
         loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
       }
       step++;

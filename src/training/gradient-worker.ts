@@ -1,18 +1,20 @@
 /**
  * A training worker thread: starts the run's TensorFlow.js backend, builds a replica of the network
- * from its topology, then answers each shard of a batch with its loss and gradients. It never updates
- * weights itself: the run's optimiser does, and sends the values with the next shard. Loaded from
- * dist/ (built JavaScript) by the parallel trainer.
+ * from its topology, then for each step cuts its shard of the batch from the shared photos and answers
+ * with its loss, its gradients written to shared memory. It never updates weights itself: the run's
+ * optimiser does, and writes their values to shared memory before each step. Loaded from dist/ (built
+ * JavaScript) by the parallel trainer.
  */
 import { parentPort, workerData } from 'node:worker_threads';
 import * as tf from '@tensorflow/tfjs';
 import { serialiseError } from '../errors.js';
 import { createGradientComputer, initBackend, type GradientComputer } from '../model/index.js';
+import { type CropBatch, cutCrops } from './crop-sampler.js';
 import type { FromGradientWorker, GradientWorkerInit, ToGradientWorker } from './gradient-protocol.js';
 
 const port = parentPort;
 if (!port) throw new Error('training/gradient-worker.js runs only as a worker thread');
-const post = (message: FromGradientWorker, transfer: ArrayBuffer[] = []): void => port.postMessage(message, transfer);
+const post = (message: FromGradientWorker): void => port.postMessage(message);
 
 /** The backend names TensorFlow.js reports, as initBackend's preferences. */
 const PREFER = { tensorflow: 'node', wasm: 'wasm', cpu: 'cpu' } as const;
@@ -34,6 +36,21 @@ async function start(): Promise<void> {
     return;
   }
   const byName = new Map(network.weights.map((w) => [w.originalName, w]));
+  // Views of each trained weight in the shared values and gradients, in `names` order.
+  const parts = (all: Float32Array): Float32Array[] => {
+    let offset = 0;
+    return init.names.map((name) => {
+      const size = byName.get(name)!.shape.reduce((p: number, d) => p * d!, 1);
+      offset += size;
+      return all.subarray(offset - size, offset);
+    });
+  };
+  const values = parts(init.values);
+  const grads = parts(init.gradients);
+  /** Crops cut ahead of their step, by batch number (or why they could not be cut); spent ones are kept for reuse. */
+  const cut = new Map<number, CropBatch | Error>();
+  let spare: CropBatch | undefined;
+
   port!.on('message', (message: ToGradientWorker) => {
     if (message.type === 'weights') {
       tf.tidy(() =>
@@ -44,13 +61,26 @@ async function start(): Promise<void> {
       );
       return;
     }
+    if (message.type === 'crops') {
+      try {
+        cut.set(message.batch, cutCrops(init.photos, init.features, message.draws, message.size, spare));
+        spare = undefined;
+      } catch (error) {
+        cut.set(message.batch, error instanceof Error ? error : new Error(String(error)));
+      }
+      return;
+    }
+    const batch = cut.get(message.batch);
+    // Crops cut for an earlier batch that never ran are dropped (the run asked for other crops).
+    for (const key of cut.keys()) if (key <= message.batch) cut.delete(key);
     try {
-      gradients.setValues(message.values);
-      const { loss, grads } = gradients.compute(message.L, message.ab, message.n, message.h, message.w, message.borrowed);
-      post(
-        { type: 'gradients', id: message.id, loss, grads },
-        grads.flatMap((g) => (g ? [g.buffer as ArrayBuffer] : [])),
-      );
+      if (!batch) throw new Error(`a training worker was asked for batch ${message.batch} before its crops`);
+      if (batch instanceof Error) throw batch;
+      gradients.setValues(values);
+      const { loss, grads: computed } = gradients.compute(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
+      computed.forEach((g, i) => g && grads[i]!.set(g));
+      spare = batch;
+      post({ type: 'gradients', id: message.id, loss, reached: computed.map((g) => g !== null) });
     } catch (error) {
       post({ type: 'failed', id: message.id, error: serialiseError(error) });
     }
