@@ -8,6 +8,7 @@ import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { memoryGuide, type ModelMemory } from '../src/batch/index.js';
 import { labToSrgb, srgbToLab } from '../src/colour/index.js';
 import { abBins, createNetwork, initBackend, predict, recallColours, rememberCells, type ColourMemory } from '../src/model/index.js';
+import { writeSkyGrassPhotos } from './helpers/sky-grass-photos.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
 
 // The colour memory on synthetic data: features made by hand (one-hot rows), so which memory cell a scan
@@ -163,20 +164,6 @@ describe('restore and score with --memory', () => {
   let root: string;
   const cli = (args: string[]) => spawnSync(process.execPath, [BIN, ...args], { encoding: 'utf8', timeout: 180_000 });
 
-  /** A colourful photo: hue across, lightness down; `k` shifts the palette. */
-  function photo(k: number): Uint8Array {
-    const rgb = new Uint8Array(W * H * 3);
-    for (let y = 0; y < H; y++)
-      for (let x = 0; x < W; x++) {
-        const i = (y * W + x) * 3;
-        const t = x / (W - 1),
-          s = 0.3 + (0.7 * y) / (H - 1);
-        rgb[i] = Math.round(255 * s * (k ? 1 - t : t));
-        rgb[i + 1] = Math.round(255 * s * 0.6);
-        rgb[i + 2] = Math.round(255 * s * (k ? t : 1 - t));
-      }
-    return rgb;
-  }
   const png = (data: Uint8Array, channels: 1 | 3, file: string) =>
     sharp(data, { raw: { width: W, height: H, channels } })
       .png()
@@ -185,12 +172,13 @@ describe('restore and score with --memory', () => {
   beforeAll(async () => {
     root = await mkdtemp(join(tmpdir(), 'kinhue-memory-'));
     await saveUntrainedModel(join(root, 'model'));
-    await mkdir(join(root, 'memory'));
+    await writeSkyGrassPhotos(join(root, 'memory'), 2);
     await mkdir(join(root, 'scans'));
-    await png(photo(0), 3, join(root, 'memory', 'barn.png'));
-    await png(photo(1), 3, join(root, 'memory', 'field.png'));
-    // The scan: the barn photo without its colour (L* kept), so its cells find themselves in the memory.
-    const lab = srgbToLab(photo(0), 3);
+    // The scan: the first memory photo without its colour (L* kept), so its cells find themselves in the memory.
+    const { data } = await sharp(join(root, 'memory', 'p0.png'))
+      .raw()
+      .toBuffer({ resolveWithObject: true });
+    const lab = srgbToLab(new Uint8Array(data), 3);
     const grey = labToSrgb({ L: lab.L, a: new Float32Array(W * H), b: new Float32Array(W * H) }, new Uint8Array(W * H * 3), 3);
     await png(grey, 3, join(root, 'scans', 'barn-scan.png'));
   });
@@ -221,7 +209,7 @@ describe('restore and score with --memory', () => {
   it('refuses a memory with a grey photo before any scan, naming the photo', async () => {
     const memory = join(root, 'grey-memory');
     await mkdir(memory);
-    await png(photo(0), 3, join(memory, 'barn.png'));
+    await writeSkyGrassPhotos(memory, 1);
     await png(new Uint8Array(W * H).fill(120), 1, join(memory, 'wall.png'));
     const run = cli(['restore', join(root, 'scans'), '--out', join(root, 'out-grey'), '--model', join(root, 'model'), '--memory', memory]);
     expect(run.status).toBe(1);
@@ -231,15 +219,7 @@ describe('restore and score with --memory', () => {
   });
 
   it('score puts each model beside itself with the memory', () => {
-    const run = cli([
-      'score',
-      join(root, 'memory', 'field.png'),
-      '--model',
-      join(root, 'model'),
-      '--memory',
-      join(root, 'memory'),
-      '--json',
-    ]);
+    const run = cli(['score', join(root, 'memory', 'p1.png'), '--model', join(root, 'model'), '--memory', join(root, 'memory'), '--json']);
     expect(run.status, run.stderr).toBe(0);
     const report = JSON.parse(run.stdout);
     const ids = report.methods.map((m: { id: string }) => m.id);
