@@ -36,8 +36,8 @@ export const NOTICEABLE_AB = 2.3;
  * The colour memory as a guide for one scan whose decoder features (at the model's output cells) are
  * known: each cell moves towards the colour its nearest memory cells recall, by the weight the recall
  * deserves, and the change is carried to the working size edge-aware. A cell the memory does not
- * recognise keeps the model's colour exactly. Its record: the memory's hash, photos and cells, and the
- * working-size pixels it changed noticeably.
+ * recognise keeps the model's colour (exactly, where no recognised cell is near). Its record: the memory's
+ * hash, photos and cells, and the working-size pixels it changed noticeably.
  * @example
  *   const guide = memoryGuide(memory, predicted);
  */
