@@ -159,6 +159,10 @@ describe('kinhue train on the command line', () => {
       expect(first).toMatch(
         /CIEDE2000  PSNR \(dB\)  colourfulness  right hue  false colour  left grey\n {2}originals {20,}\d+\.\d\n {2}grey \(L\* only\)[ \d.]+0\.0%\s+0\.0%\s+100\.0%\n/,
       );
+      // The validation figures that choose the best step, both of them, and the rule.
+      expect(first).toMatch(
+        /validation photos: CIEDE2000 [\d.]+(, right hue [\d.]+%)? at start, best [\d.]+(, right hue [\d.]+%)? at step \d \(grey [\d.]+; chosen by CIEDE2000 less right hue \/ 6\)/,
+      );
       expect(first).toMatch(/checkpoint kept \(--keep-checkpoint\)/);
       expect(first).toMatch(/model card: .*MODEL_CARD\.md, measured as restore colours on the 2 held-out photos:\n {2}model model: /);
 

@@ -14,7 +14,8 @@ import {
   type Guide,
 } from '../colour/index.js';
 import type { FaceFinder, KinhueModel } from '../model/index.js';
-import { applyGuides, skinGuide } from './stages/guide.js';
+import type { ModelMemory } from './memory.js';
+import { applyGuides, scanGuides } from './stages/guide.js';
 import { predictColour, type PredictSettings } from './stages/predict.js';
 import { fullSizeGrid } from './stages/render.js';
 
@@ -25,6 +26,8 @@ export interface ColouriseOptions extends PredictSettings {
   guides?: readonly Guide[];
   /** Finds faces for the skin prior, applied before the guides (as restore does); without it, no skin prior. */
   faceFinder?: FaceFinder;
+  /** The colour memory, remembered through this model (memory.ts), applied after the skin prior and before the guides. */
+  memory?: ModelMemory;
 }
 
 /**
@@ -53,9 +56,8 @@ export async function colouriseLightness(
   // Shrink as restore does: average sRGB-encoded grey, not L* (see workingLab).
   const grey = lightnessToGrey(L, new Float32Array(L.length));
   const Lwork = greyToLightness(shrinkPlane(grey, width, height, ws.width, ws.height), 1);
-  const predicted = await predictColour(Lwork, ws.width, ws.height, model, options);
-  const guides = options.faceFinder ? [skinGuide(options.faceFinder), ...(options.guides ?? [])] : (options.guides ?? []);
-  const { colour } = applyGuides(predicted, guides);
+  const predicted = await predictColour(Lwork, ws.width, ws.height, model, { ...options, features: options.memory !== undefined });
+  const { colour } = applyGuides(predicted, scanGuides(predicted, options, options.guides ?? []));
   const a = new Float32Array(width * height);
   const b = new Float32Array(width * height);
   sliceRows(fullSizeGrid(colour), L, width, height, 0, height, a, b);

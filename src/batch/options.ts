@@ -56,6 +56,11 @@ export interface RestoreOptions {
   hints?: string | false;
   /** A reference colour photograph, or a folder of them, for every scan (Welsh et al. 2002). */
   reference?: string;
+  /**
+   * A folder of the archive's own colour photographs (the same people and places) remembered through the
+   * model: each scan's regions take the colours of the regions they resemble most (batch/memory.ts).
+   */
+  memory?: string;
   /** Give the faces found a skin hue (the skin prior). Default true. */
   skin?: boolean;
   /** Take out dust, hairs and scratches before colouring, and write `<name>.repair.png`. Default false. */
@@ -97,6 +102,8 @@ export interface RestoreSettings {
   hints?: string | false;
   /** Absolute reference photo or folder, when given. */
   reference?: string;
+  /** The colour memory's absolute folder and the SHA-256 of its photos, when one is used. */
+  memory?: { folder: string; sha256: string };
   /** False when the skin prior is off (absent when on, the default). */
   skin?: false;
   /** The repair model and how it is used, when scans are repaired before colouring (absent when off, the default). */

@@ -8,7 +8,7 @@ import { basename, join } from 'node:path';
 import { writeFileAtomic } from '../files/index.js';
 import { BACKBONE_TOPOLOGY_FILE, BACKBONE_WEIGHTS_FILE, METADATA_FILE, TOPOLOGY_FILE, WEIGHTS_FILE } from '../model/index.js';
 import { score, type ScoreReport } from '../report/index.js';
-import { CHECKPOINT_FILE, SUMMARY_FILE, TRAINING_LOG_FILE, type FitResult } from '../training/index.js';
+import { CHECKPOINT_FILE, RIGHT_HUE_PER_CIEDE2000, SUMMARY_FILE, TRAINING_LOG_FILE, type FitResult } from '../training/index.js';
 import { VERSION } from '../version.js';
 import { formatDuration } from './progress.js';
 
@@ -93,7 +93,7 @@ Use it with \`npx kinhue restore scans/ --out restored --model ${name}\`.
 
 ## How
 - ${result.steps} steps of ${o.batch} crops of ${o.crop} px in ${formatDuration(result.seconds)}; ${stopped(result)}.
-- Weights kept: step ${result.heldOut.keptStep}, ${o.keep === 'best' ? `the best on the ${result.photos.validation || result.heldOut.after.photos} validation photos (CIEDE2000 ${figure(result.validation.best.ciede2000)}, ${figure(result.validation.before.ciede2000)} at start)` : 'the last'}.
+- Weights kept: step ${result.heldOut.keptStep}, ${o.keep === 'best' ? `the best on the ${result.photos.validation || result.heldOut.after.photos} validation photos by CIEDE2000 less right hue / ${RIGHT_HUE_PER_CIEDE2000} (CIEDE2000 ${figure(result.validation.best.ciede2000)} and right hue ${percent(result.validation.best.rightHue)}; ${figure(result.validation.before.ciede2000)} and ${percent(result.validation.before.rightHue)} at start)` : 'the last'}.
 - Learning rate ${o.learningRate}${o.freezeEncoder ? ', encoder kept fixed (only the decoder learnt)' : ''}, seed ${o.seed}; class weights ${weights}.
 
 ## Figures on the held-out photos

@@ -8,6 +8,7 @@ import {
   fit,
   FIT_OPTIONS,
   fitDefault,
+  RIGHT_HUE_PER_CIEDE2000,
   type BestSoFar,
   type Evaluation,
   type FitEvent,
@@ -87,9 +88,14 @@ export function fitOptionsFrom(argv: FitArgs, mode: FitMode): FitOptions {
   return options;
 }
 
-/** "CIEDE2000 9.80 at step 200": a best or last figure for live lines. */
+/** "9.80, right hue 61.2%": the validation figures that choose a step. */
+function choiceFigures(figure: Pick<BestSoFar, 'ciede2000' | 'rightHue'>): string {
+  return `${figure.ciede2000.toFixed(2)}${figure.rightHue === null ? '' : `, right hue ${figure.rightHue.toFixed(1)}%`}`;
+}
+
+/** "9.80, right hue 61.2% at step 200": a best or last figure for live lines. */
 function atStep(figure: BestSoFar): string {
-  return `${figure.ciede2000.toFixed(2)} at step ${figure.step}`;
+  return `${choiceFigures(figure)} at step ${figure.step}`;
 }
 
 /**
@@ -151,7 +157,7 @@ export async function runWithProgress(options: Omit<FitOptions, 'signal'>): Prom
         progress.update(
           event.fraction,
           `step ${event.step}  loss ${event.loss.toFixed(3)}` +
-            (event.last ? `  validation CIEDE2000 ${event.last.ciede2000.toFixed(2)}` : '') +
+            (event.last ? `  validation CIEDE2000 ${atStep(event.last)}` : '') +
             (event.best ? `  best ${atStep(event.best)}` : '') +
             `  ${formatDuration(event.secondsLeft)} left`,
         );
@@ -165,7 +171,7 @@ export async function runWithProgress(options: Omit<FitOptions, 'signal'>): Prom
         break;
       case 'stalled':
         progress.log(
-          `no improvement since step ${event.bestStep} (validation CIEDE2000 ${event.ciede2000.toFixed(2)}) in ${event.patience} evaluation${event.patience === 1 ? '' : 's'}: ` +
+          `no improvement since step ${event.bestStep} (validation CIEDE2000 ${choiceFigures(event)}) in ${event.patience} evaluation${event.patience === 1 ? '' : 's'}: ` +
             'stopping early (--patience)',
         );
         break;
@@ -219,7 +225,10 @@ export function summaryTable(result: FitResult): string {
     ]);
   const { grey, before, after, keptStep } = result.heldOut;
   const { validation } = result;
-  const onValidation = `CIEDE2000 ${validation.before.ciede2000.toFixed(2)} at start, best ${validation.best.ciede2000.toFixed(2)} at step ${validation.bestStep} (grey ${validation.grey.ciede2000.toFixed(2)})`;
+  const onValidation =
+    `CIEDE2000 ${choiceFigures(validation.before)} at start, ` +
+    `best ${atStep({ step: validation.bestStep, ...validation.best })} (grey ${validation.grey.ciede2000.toFixed(2)}; ` +
+    `chosen by CIEDE2000 less right hue / ${RIGHT_HUE_PER_CIEDE2000})`;
   const chosen =
     result.photos.validation === 0
       ? 'steps chosen on the held-out photos (a run from before the validation split): the figures below are not independent'

@@ -38,6 +38,11 @@ export interface GuidanceRecord {
   reference?: { files: string[]; samples: number; notes?: string[]; milliseconds?: number };
   /** The skin prior, when it found faces (applied before hints, which override it). */
   skin?: SkinRecord;
+  /**
+   * The colour memory (batch/memory.ts): the SHA-256 of its photos, how many, the cells remembered, and the
+   * working-size pixels whose a*b* it changed noticeably, also as a share of all.
+   */
+  memory?: { sha256: string; photos: number; cells: number; pixels: number; share: number; milliseconds?: number };
 }
 
 /** How many colour adjustments a record (and so the run's output) lists one by one; the rest are counted. */

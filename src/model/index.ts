@@ -11,6 +11,8 @@ export * from './train-step.js';
 export * from './metadata.js';
 export * from './storage.js';
 export * from './predict.js';
+export * from './cell-features.js';
+export * from './colour-memory.js';
 export * from './calibration.js';
 export * from './backbone.js';
 export * from './region-pooling.js';

@@ -7,6 +7,7 @@ import { shrinkPlane } from '../colour/index.js';
 import { type Backbone, type BackboneFeatures, backboneFeatures, borrowedInputs } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
 import { annealedMeanTensor, chooseDecoding, DEFAULT_DECODING, decodingWeights, leastCiede2000, type Decoding } from './decoding.js';
+import { featuresFromLogits } from './cell-features.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
 import { runNetwork } from './native-inference.js';
 import { type PoolingSettings, poolRegions } from './region-pooling.js';
@@ -37,6 +38,8 @@ export interface PredictOptions {
   /** For a network that reads a backbone: the picture's features, or the backbone to compute them with (a loaded model brings its own). */
   features?: BackboneFeatures;
   backbone?: Backbone;
+  /** Also give the decoder's features at each output cell (cell-features.ts), for the colour memory. */
+  cellFeatures?: boolean;
 }
 
 export interface Prediction {
@@ -48,6 +51,8 @@ export interface Prediction {
   /** Output size: ceil(input / 4) on each side. */
   width: number;
   height: number;
+  /** With `cellFeatures`: the decoder's features, row-major [cells, dims]. */
+  features?: { data: Float32Array; dims: number };
 }
 
 /** Copies a plane into a larger one, repeating the last column and row. */
@@ -121,6 +126,7 @@ export function predict(
     const logits = runNetwork(network, networkInputs(input, 1, ph, pw, borrowed));
     return tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]) as tf.Tensor2D;
   });
+  const features = options.cellFeatures ? featuresFromLogits(network, raw) : undefined;
   // Pooled distributions stand in for the network's own from here on: as log-probabilities, which
   // every decoding and the confidence read as logits.
   const scores = pooling ? pooledLogits(raw, q, shrinkPlane(L, width, height, ow, oh), ow, oh, pooling) : raw;
@@ -143,7 +149,7 @@ export function predict(
     a[i] = abData[2 * i];
     b[i] = abData[2 * i + 1];
   }
-  return { a, b, confidence, width: ow, height: oh };
+  return { a, b, confidence, width: ow, height: oh, ...(features ? { features } : {}) };
 }
 
 /** The backbone's inputs for a picture padded from width x height to pw x ph (the padding repeats the edge). */

@@ -32,7 +32,7 @@ export interface ScoreFigures {
 
 /** One way of putting colour back: a baseline or a model. */
 export interface ScoreMethod {
-  /** Key in `figures` maps: 'grey', 'transfer:<model>' or 'model:<model>'. */
+  /** Key in `figures` maps: 'grey', 'transfer:<model>', 'model:<model>' or 'memory:<model>' (the model with the colour memory). */
   id: string;
   /** Label in tables and CSV. */
   label: string;
@@ -41,6 +41,8 @@ export interface ScoreMethod {
   model?: string;
   /** Model rows: the weights' hash from the model folder, when it records one. */
   weightsHash?: string;
+  /** Model rows coloured with the colour memory: the SHA-256 of its photos and how many. */
+  memory?: { sha256: string; photos: number };
   /** Transfer rows: the target a*b* statistics and where they came from. */
   target?: { statistics: LabStatistics; source: TrainingColourSource; description: string };
 }

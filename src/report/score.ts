@@ -5,7 +5,7 @@
  * would deliver at the same working size.
  */
 import { mkdir, readdir } from 'node:fs/promises';
-import { join, relative } from 'node:path';
+import { dirname, join, relative, resolve } from 'node:path';
 import {
   clearlyColouredShare,
   colourfulness,
@@ -17,7 +17,7 @@ import {
   srgbToLab,
   type LabPlanes,
 } from '../colour/index.js';
-import { colouriseLightness } from '../batch/index.js';
+import { cachedMemory, colouriseLightness, type ModelMemory } from '../batch/index.js';
 import { ErrorCodes, InputError, KinhueError } from '../errors.js';
 import { discoverInputs, InputGuard, writeFileAtomic } from '../files/index.js';
 import { classifyTone, decodeImage, type Pixels } from '../image/index.js';
@@ -52,6 +52,11 @@ export interface ScoreOptions {
   vividness?: number;
   /** Give the faces found a skin hue, as restore does by default. Default true. */
   skin?: boolean;
+  /**
+   * A folder of colour photographs to use as the colour memory (as restore's `memory`): each model is
+   * then scored twice, alone and with the memory.
+   */
+  memory?: string;
   /** Pixel limit per image; default the image module's. */
   maxPixels?: number;
   /**
@@ -190,9 +195,9 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
     if (needsPool) pooled = await pooledStatistics(files, options.maxPixels);
     const labels = modelLabels(models);
     const methods: ScoreMethod[] = [{ id: 'grey', label: 'grey (L* only)', kind: 'grey' }];
-    const modelOf = new Map<string, KinhueModel>();
-    models.forEach((model, i) => {
-      modelOf.set(`model:${i + 1}`, model);
+    const modelOf = new Map<string, { model: KinhueModel; memory?: ModelMemory }>();
+    for (const [i, model] of models.entries()) {
+      modelOf.set(`model:${i + 1}`, { model });
       methods.push({
         id: `transfer:${i + 1}`,
         label: `Reinhard transfer (${labels[i]})`,
@@ -207,7 +212,19 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
         model: model.dir,
         weightsHash: model.meta.weightsSha256,
       });
-    });
+      if (options.memory) {
+        const memory = await cachedMemory(model, options.memory, options.workSize ?? model.meta.workingSize, options.maxPixels);
+        modelOf.set(`memory:${i + 1}`, { model, memory });
+        methods.push({
+          id: `memory:${i + 1}`,
+          label: `model ${labels[i]} + memory`,
+          kind: 'model',
+          model: model.dir,
+          weightsHash: model.meta.weightsSha256,
+          memory: { sha256: memory.sha256, photos: memory.photos },
+        });
+      }
+    }
 
     const photos: PhotoScore[] = [];
     // Folders that could not be searched and links that lead nowhere are listed like unreadable files.
@@ -225,13 +242,14 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
           else if (method.kind === 'transfer') {
             figures[method.id] = measure(reinhardTransfer(grey, method.target!.statistics, { channels: ['a', 'b'] }), original);
           } else {
-            const model = modelOf.get(method.id)!;
+            const { model, memory } = modelOf.get(method.id)!;
             const workSize = options.workSize ?? model.meta.workingSize;
             const { a, b } = await colouriseLightness(lab.L, width, height, model, {
               workSize,
               temperature: options.temperature,
               vividness: options.vividness,
               faceFinder,
+              memory,
             });
             figures[method.id] = measure({ L: lab.L, a, b }, original);
           }
@@ -266,6 +284,7 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
         (m) =>
           `Target of ${m.label}: ${m.target!.description} (a* ${m.target!.statistics.mean[1].toFixed(2)}, b* ${m.target!.statistics.mean[2].toFixed(2)}).`,
       ),
+      ...(options.memory ? [memoryNote(options.memory, files)] : []),
       ...(toned.length
         ? [
             `Colour of a single hue, as in a toned monochrome print: ${toned.join(', ')}. Scored; check these are colour photographs, not tinted prints.`,
@@ -287,6 +306,18 @@ export async function score(options: ScoreOptions): Promise<ScoreReport> {
   } finally {
     for (const model of models) model.network.dispose();
   }
+}
+
+/** What the memory rows are, and a warning when a scored photo is one of the memory's own. */
+function memoryNote(folder: string, files: { path: string }[]): string {
+  const dir = resolve(folder);
+  const own = files.filter((f) => dirname(resolve(f.path)) === dir).length;
+  return (
+    `"+ memory": the model with the colour memory of ${folder} (restore's --memory), applied after the skin prior.` +
+    (own
+      ? ` ${own} scored photo${own === 1 ? ' is' : 's are'} in the memory itself: those figures flatter it; score photos the memory does not hold.`
+      : '')
+  );
 }
 
 /** The two files `--out` writes. */

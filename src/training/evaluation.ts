@@ -39,6 +39,25 @@ export interface Evaluation {
   colouredPhotos: number;
 }
 
+/**
+ * Right-hue points that weigh as much as 1 of mean CIEDE2000 when a step is chosen: `score`'s verdict
+ * counts 3 points of right hue and 0.5 of CIEDE2000 as the least differences that matter (report/verdict.ts),
+ * so 6 points trade for 1. Our own rate.
+ */
+export const RIGHT_HUE_PER_CIEDE2000 = 6;
+
+/**
+ * What chooses the step a run keeps (lower is better): mean CIEDE2000 less right hue over
+ * RIGHT_HUE_PER_CIEDE2000. CIEDE2000 alone prefers cautious, greyish steps (grey is often close in
+ * CIEDE2000), right hue alone bold ones; together a step must earn its hues without losing more in
+ * CIEDE2000 than they are worth. Photos without clearly coloured pixels have no right hue: CIEDE2000 alone then.
+ * @example
+ *   choiceScore({ ...evaluation, ciede2000: 7, rightHue: 60 }); // -3
+ */
+export function choiceScore(evaluation: { ciede2000: number; rightHue?: number | null }): number {
+  return evaluation.ciede2000 - (evaluation.rightHue ?? 0) / RIGHT_HUE_PER_CIEDE2000;
+}
+
 /** a*b* predicted for an L* plane, at any resolution of the same aspect (the model's is a quarter). */
 export interface AbPrediction {
   a: Float32Array;

@@ -86,10 +86,12 @@ export interface FitOptions {
   signal?: AbortSignal;
 }
 
-/** The best validation figure so far and the step it was reached at. */
+/** A validation evaluation's figures that choose the step (evaluation.ts' choiceScore) and the step it was made at. */
 export interface BestSoFar {
   step: number;
   ciede2000: number;
+  /** Null when no validation photo has clearly coloured pixels. */
+  rightHue: number | null;
 }
 
 /** What the loop reports while it runs. */
@@ -113,7 +115,7 @@ export type FitEvent =
   | { type: 'step'; step: number; loss: number; seconds: number; secondsLeft: number; fraction: number; last?: BestSoFar; best?: BestSoFar }
   | { type: 'evaluation'; step: number; loss: number | null; evaluation: Evaluation; best: boolean; bestSoFar: BestSoFar }
   /** Early stopping: `patience` evaluations in a row without improvement since `bestStep`. */
-  | { type: 'stalled'; step: number; bestStep: number; ciede2000: number; patience: number }
+  | { type: 'stalled'; step: number; bestStep: number; ciede2000: number; rightHue: number | null; patience: number }
   | { type: 'checkpoint'; step: number; file: string }
   | { type: 'model'; step: number; dir: string }
   /** Something to tell the user, e.g. that the starting model's layout could not be checked. */

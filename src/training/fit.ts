@@ -1,8 +1,8 @@
 /**
  * The fit loop behind `kinhue train` and `kinhue tune`: read the photos, draw batches of crops,
  * take optimiser steps within a step and/or time budget, evaluate on the held-out photos every so
- * often, write checkpoints atomically, and save the model (the last one for train, the best by
- * held-out error for tune). A resumed run continues from its checkpoint and reaches the same weights
+ * often, write checkpoints atomically, and save the model (the last one for train, for tune the best on
+ * the validation photos by CIEDE2000 and right hue together: evaluation.ts' choiceScore). A resumed run continues from its checkpoint and reaches the same weights
  * as an uninterrupted one with the same seed.
  */
 import { mkdir, readdir, rm, stat } from 'node:fs/promises';
@@ -41,7 +41,7 @@ import {
 import { VERSION } from '../version.js';
 import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js';
 import { type CropDraw, CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
-import { evaluatePhotos, type Evaluation } from './evaluation.js';
+import { choiceScore, evaluatePhotos, type Evaluation } from './evaluation.js';
 import {
   fitDefault,
   SUMMARY_FILE,
@@ -50,6 +50,7 @@ import {
   type FitMode,
   type FitOptions,
   type FitResult,
+  type BestSoFar,
   type FitSettings,
   type StoppedBy,
 } from './fit-options.js';
@@ -82,7 +83,7 @@ interface CheckpointState {
   trainer: unknown;
 }
 
-/** An improvement of the validation error smaller than this is rounding, not learning (our own margin). */
+/** An improvement of the validation choice score (choiceScore) smaller than this is rounding, not learning (our own margin). */
 export const MIN_IMPROVEMENT = 0.01;
 
 /**
@@ -412,7 +413,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   const recordEvaluation = async (): Promise<void> => {
     const evaluation = await evaluate(validationSet);
     lastEvaluation = { step, evaluation };
-    const improved = !best || evaluation.ciede2000 < best.evaluation.ciede2000 - MIN_IMPROVEMENT;
+    const improved = !best || choiceScore(evaluation) < choiceScore(best.evaluation) - MIN_IMPROVEMENT;
     if (improved) {
       best = { step, evaluation };
       sinceBest = 0;
@@ -442,7 +443,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       loss,
       evaluation,
       best: improved,
-      bestSoFar: { step: best!.step, ciede2000: best!.evaluation.ciede2000 },
+      bestSoFar: figuresAt(best!),
     });
     lossSum = 0;
     lossCount = 0;
@@ -503,14 +504,15 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         seconds,
         secondsLeft: Math.max(0, secondsLeft),
         fraction: Math.min(1, fraction),
-        ...(lastEvaluation ? { last: { step: lastEvaluation.step, ciede2000: lastEvaluation.evaluation.ciede2000 } } : {}),
-        ...(best ? { best: { step: best.step, ciede2000: best.evaluation.ciede2000 } } : {}),
+        ...(lastEvaluation ? { last: figuresAt(lastEvaluation) } : {}),
+        ...(best ? { best: figuresAt(best) } : {}),
       });
 
       if (step % evalEvery === 0) await recordEvaluation();
       if (stalled()) {
         stoppedBy = 'no-improvement';
-        onEvent({ type: 'stalled', step, bestStep: best!.step, ciede2000: best!.evaluation.ciede2000, patience: settings.patience! });
+        const { ciede2000, rightHue } = best!.evaluation;
+        onEvent({ type: 'stalled', step, bestStep: best!.step, ciede2000, rightHue, patience: settings.patience! });
         break;
       }
       if (Date.now() - lastCheckpoint >= checkpointMs) {
@@ -584,6 +586,11 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   trainer.dispose?.();
   network.dispose();
   return result;
+}
+
+/** The figures that choose a step, with its step. */
+function figuresAt(at: { step: number; evaluation: Evaluation }): BestSoFar {
+  return { step: at.step, ciede2000: at.evaluation.ciede2000, rightHue: at.evaluation.rightHue };
 }
 
 /** The weights of the model folder `dir` (the best kept so far, written when it was reached). */

@@ -5,13 +5,15 @@
 import { supports16Bit, estimateStatement, type BitDepth, type Pixels } from '../../image/index.js';
 import { guidanceWarnings, prepareGuides, type HintsSource } from '../../hints/index.js';
 import type { FaceFinder, KinhueModel } from '../../model/index.js';
+import { ErrorCodes, InputError } from '../../errors.js';
 import { VERSION } from '../../version.js';
 import { mean } from '../colourise.js';
 import { repairOutputs, type PlannedOutputs } from '../naming.js';
 import { sharedRepairModel } from '../../repair/index.js';
 import type { RestoreSettings } from '../options.js';
 import { analyse } from './analyse.js';
-import { applyGuides, skinGuide } from './guide.js';
+import { cachedMemory } from '../memory.js';
+import { applyGuides, scanGuides } from './guide.js';
 import { predictColour } from './predict.js';
 import { confidenceGrey, render } from './render.js';
 import { baseName, writeResult, type ProvenanceRecord, type RepairRecord } from './write.js';
@@ -58,14 +60,20 @@ export async function restoreFile(
   let t = performance.now();
 
   const guidance = await prepareGuides({ hints: job.hints, reference: settings.reference }, W, H);
+  const memory = settings.memory ? await cachedMemory(model, settings.memory.folder, settings.workSize, job.maxPixels) : undefined;
+  if (memory && memory.sha256 !== settings.memory?.sha256) {
+    throw new InputError(ErrorCodes.BAD_DATA, 'the memory folder changed after the run started', {
+      file: settings.memory?.folder,
+      hint: 'leave the memory folder as it is while a run uses it, then run again',
+    });
+  }
   // The plan resolved every setting: a vividness it left out is 0, not the model's own.
   const predicted = await predictColour(working.L, working.width, working.height, model, {
     ...settings,
     vividness: settings.vividness ?? 0,
+    features: memory !== undefined,
   });
-  // The skin prior goes first: reference photos and hints, which the archivist chose, have the last word.
-  const guides = options.faceFinder ? [skinGuide(options.faceFinder), ...guidance.guides] : guidance.guides;
-  const guided = applyGuides(predicted, guides);
+  const guided = applyGuides(predicted, scanGuides(predicted, { faceFinder: options.faceFinder, memory }, guidance.guides));
   const records = guidance.record as Record<string, object>;
   for (const [name, fields] of Object.entries(guided.records)) {
     if (Object.keys(fields).length) records[name] = Object.assign(records[name] ?? {}, fields);

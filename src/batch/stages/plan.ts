@@ -11,6 +11,7 @@ import { ErrorCodes, KinhueError, ModelError, UsageError } from '../../errors.js
 import { discoverInputs, hostLabel, identify, InputGuard, underFolder } from '../../files/index.js';
 import { resolveMaxPixels } from '../../image/index.js';
 import { cachedReference, findHints, type HintsSource } from '../../hints/index.js';
+import { cachedMemoryPhotos } from '../memory.js';
 import { chooseDecoding, DEFAULT_MODEL_DIR, type Decoding } from '../../model/index.js';
 import { fileSha256 } from '../hash.js';
 import type { ManifestRecord } from '../manifest.js';
@@ -125,8 +126,12 @@ export async function planRestore(options: RestoreOptions): Promise<RestorePlan>
     ...(options.repair || options.repairedScan ? { repair: await repairSettings() } : {}),
     ...(options.repairedScan ? { repairedScan: true as const } : {}),
   };
-  // A reference that cannot be used (grey, missing, not an image) stops the run before it starts.
+  // A reference or memory that cannot be used (grey, missing, not an image) stops the run before it starts.
   if (settings.reference) await cachedReference(settings.reference);
+  if (options.memory) {
+    const memory = await cachedMemoryPhotos(options.memory, settings.workSize, maxPixels);
+    settings.memory = { folder: memory.folder, sha256: memory.sha256 };
+  }
   const key = settingsKey(settings);
   const hintsNotUsed: HintsNotUsed[] = [];
   if (typeof settings.hints === 'string') {

@@ -106,6 +106,12 @@ const CORE_FLAGS: OptionTable<CoreFlags> = {
     describe: 'a colour photograph of the same scene or people (or a folder of them, for a series) to take colours from',
     check: checks.folder('reference', 'a colour photograph or a folder of them'),
   },
+  memory: {
+    type: 'string',
+    describe:
+      "a folder of the archive's own colour photographs (the same people and places): each scan's regions take the colours of the regions in them the model sees as most alike",
+    check: checks.folder('memory', 'a folder of colour photographs'),
+  },
   repair: {
     type: 'boolean',
     default: RESTORE_DEFAULTS.repair,

@@ -13,7 +13,7 @@ import { Progress } from '../progress.js';
 const EXAMPLE = 'kinhue score demo-photos/originals --model models/kinhue-base --model models/mine';
 
 /** The core options the command line offers. */
-type CoreFlags = Pick<ScoreOptions, 'out' | 'workSize' | 'vividness' | 'skin'>;
+type CoreFlags = Pick<ScoreOptions, 'out' | 'workSize' | 'vividness' | 'skin' | 'memory'>;
 
 /** Options of the command line only: `--model`, repeated, gives the core's `models`. */
 interface CommandFlags {
@@ -41,6 +41,11 @@ const CORE_FLAGS: OptionTable<CoreFlags> = {
     type: 'boolean',
     default: true,
     describe: 'give the faces found a skin hue, as restore does; --no-skin to score the model alone',
+  },
+  memory: {
+    type: 'string',
+    describe: "a folder of colour photographs used as restore's --memory: each model is scored alone and with it",
+    check: checks.folder('memory', 'a folder of colour photographs'),
   },
 };
 
@@ -82,7 +87,11 @@ export const command: CommandModule<object, ScoreArgs> = {
       addOptions(addOptions(yargs, COMMAND_FLAGS), CORE_FLAGS)
         .positional('photos', { type: 'string', array: true, describe: 'colour originals: files and folders (searched recursively)' })
         .example(EXAMPLE, 'compare the shipped model with a tuned one on the demo originals')
-        .example('kinhue score originals/ --out scores/ --json', 'write CSV and JSON, and print JSON') as unknown as Argv<ScoreArgs>
+        .example('kinhue score originals/ --out scores/ --json', 'write CSV and JSON, and print JSON')
+        .example(
+          'kinhue score farm-album/test --memory farm-album/tune',
+          'the shipped model alone and with a colour memory of other photos of the same places',
+        ) as unknown as Argv<ScoreArgs>
     ).check((argv) => check(argv as Partial<ScoreArgs>)),
   handler: async (argv: ArgumentsCamelCase<ScoreArgs>) => {
     const progress = new Progress();
