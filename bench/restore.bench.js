@@ -1,13 +1,16 @@
 // Restore throughput and memory. Prints, for a folder of 6-megapixel 8-bit JPEG scans: images per minute
-// with --jobs 1 and --jobs 2, the time of decode plus encode alone on the same files (the floor) and the
-// ratio to it, the time per stage and the backend that ran the model (and, where that is ONNX Runtime,
-// the same at --jobs 1 with TensorFlow.js on WebAssembly); then the peak resident memory of restoring a
+// with --jobs 1 and --jobs 2, both as a whole run (start-up included) and in steady state (a run of 2 scans
+// subtracted from the run of all, which cancels the start-up), the time of decode plus encode alone on the
+// same files (the floor) and the ratio to it, CPU time per image, the time per stage and the backend that
+// ran the model (and, where that is ONNX Runtime, the same at --jobs 1 with TensorFlow.js on WebAssembly);
+// the CPU time of each stage for one scan in one process; then the peak resident memory of restoring a
 // 100-megapixel 16-bit greyscale TIFF.
-// Goal (issue 4): at least 60 images per minute on a 2-core machine. Figures only, no assertions.
+// Goal (issue 13): --jobs 2 at least 100 images per minute on a 2-core machine, within 2.5x the floor.
+// Figures only, no assertions.
 // Uses models/kinhue-base when present, else a freshly created (untrained) network of the default size:
 // colour quality plays no part in speed.
 import { spawnSync } from 'node:child_process';
-import { existsSync, mkdirSync, mkdtempSync, readFileSync, readdirSync, rmSync } from 'node:fs';
+import { copyFileSync, existsSync, mkdirSync, mkdtempSync, readFileSync, readdirSync, rmSync } from 'node:fs';
 import { availableParallelism, loadavg, tmpdir } from 'node:os';
 import { dirname, join } from 'node:path';
 import { fileURLToPath } from 'node:url';
@@ -51,6 +54,11 @@ if (process.argv[2] === '--restore-in-process') {
   const summary = await kinhue.restore({ inputs: [input], out, model, jobs: 1 });
   const seconds = (performance.now() - t0) / 1000;
   console.log(JSON.stringify({ seconds, maxRssMB: process.resourceUsage().maxRSS / 1024, done: summary.done, failed: summary.failed }));
+  process.exit(0);
+}
+
+if (process.argv[2] === '--stage-cpu') {
+  console.log(JSON.stringify(await stageCpu(process.argv.slice(4), process.argv[3])));
   process.exit(0);
 }
 
@@ -123,34 +131,27 @@ async function main() {
 
   // The backend kinhue picks, at one and two jobs; then, where that is ONNX Runtime, TensorFlow.js on
   // WebAssembly alone (KINHUE_BACKEND=wasm) at one job, so that the model stage compares per backend.
+  // Each setting also restores the first 2 scans alone: the difference between the two runs is the
+  // steady state of a long batch, without the start-up (workers, model, ONNX export, face finder).
+  const few = join(tmp, 'few');
+  mkdirSync(few);
+  for (const f of files.slice(0, 2)) copyFileSync(f, join(few, f.split('/').pop()));
   const runs = [{ jobs: 1 }, { jobs: 2 }];
+  const ratios = {};
   for (let k = 0; k < runs.length; k++) {
     const { jobs, backend } = runs[k];
-    const out = join(tmp, `out-${k}`);
-    const t0 = performance.now();
-    const args = [BIN, 'restore', scans, '--out', out, '--model', modelDir, '--jobs', String(jobs), '--json'];
-    const env = backend ? { ...process.env, KINHUE_BACKEND: backend } : process.env;
-    // GNU time, where present, adds the CPU seconds used: a figure other load on the machine does not inflate.
-    const timed = existsSync('/usr/bin/time');
-    const r = timed
-      ? spawnSync('/usr/bin/time', ['-f', 'kinhue-bench-cpu %U %S', process.execPath, ...args], {
-          encoding: 'utf8',
-          maxBuffer: 64 << 20,
-          env,
-        })
-      : spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 64 << 20, env });
-    const seconds = (performance.now() - t0) / 1000;
-    const cpuLine = /kinhue-bench-cpu ([\d.]+) ([\d.]+)/.exec(r.stderr ?? '');
-    const cpuSeconds = cpuLine ? Number(cpuLine[1]) + Number(cpuLine[2]) : undefined;
-    if (r.status !== 0) {
-      console.log(`restore --jobs ${jobs} failed (exit ${r.status}): ${r.stderr.slice(-500)}`);
+    const label = `restore --jobs ${jobs}${backend ? ` (KINHUE_BACKEND=${backend})` : ''}`;
+    const all = timedRestore(scans, join(tmp, `out-${k}`), modelDir, jobs, backend);
+    if (all.error) {
+      console.log(`${label} failed: ${all.error}`);
       continue;
     }
+    const part = timedRestore(few, join(tmp, `few-${k}`), modelDir, jobs, backend);
     const records = files.map((f) =>
       JSON.parse(
         readFileSync(
           join(
-            out,
+            all.out,
             f
               .split('/')
               .pop()
@@ -161,24 +162,55 @@ async function main() {
       ),
     );
     const stage = (k) => mean(records.map((x) => x.timings[k]));
-    const perImage = seconds / files.length;
-    const label = `restore --jobs ${jobs}${backend ? ` (KINHUE_BACKEND=${backend})` : ''}`;
+    const perImage = all.seconds / files.length;
     console.log(
-      `${label}: ${(60 / perImage).toFixed(1)} images/min (${seconds.toFixed(1)} s for ${files.length}, start-up included); ` +
+      `${label}: ${(60 / perImage).toFixed(1)} images/min (${all.seconds.toFixed(1)} s for ${files.length}, start-up included); ` +
         `ratio to the floor ${(perImage / floorPerImage).toFixed(1)}x`,
     );
-    if (cpuSeconds !== undefined) {
+    const n = files.length - 2;
+    if (!part.error && all.seconds > part.seconds) {
+      const steady = (all.seconds - part.seconds) / n;
+      ratios[label] = steady / floorPerImage;
       console.log(
-        `  CPU time ${(cpuSeconds / files.length).toFixed(2)} s per image (all threads, start-up included): ` +
-          `${((60 * availableParallelism()) / (cpuSeconds / files.length)).toFixed(1)} images/min if all ${availableParallelism()} cores were free for it`,
+        `  steady state (${files.length} scans minus 2, start-up cancelled): ${(60 / steady).toFixed(1)} images/min; ` +
+          `ratio to the floor ${(steady / floorPerImage).toFixed(1)}x; start-up about ${(part.seconds - 2 * steady).toFixed(1)} s`,
+      );
+    } else console.log(`  steady state: not measured (${part.error ?? 'the 2-scan run took as long as the whole run'})`);
+    if (all.cpuSeconds !== undefined) {
+      const steadyCpu = part.cpuSeconds !== undefined ? ` (steady state ${((all.cpuSeconds - part.cpuSeconds) / n).toFixed(2)} s)` : '';
+      console.log(
+        `  CPU time ${(all.cpuSeconds / files.length).toFixed(2)} s per image, all threads, start-up included${steadyCpu}: ` +
+          `${((60 * availableParallelism()) / (all.cpuSeconds / files.length)).toFixed(1)} images/min if all ${availableParallelism()} cores were free for it`,
       );
     }
     console.log(
-      `  per image, ms (mean): decode ${stage('decode')}, working size ${stage('lightness')}, model ${stage('model')}, ` +
+      `  per image, ms of wall time (mean): decode ${stage('decode')}, working size ${stage('lightness')}, model ${stage('model')}, ` +
         `colour ${stage('colour')}, encode ${stage('encode')}, total ${stage('total')}; backend ${records[0].backend}`,
     );
     if (k === 0 && records[0].backend === 'onnxruntime') runs.push({ jobs: 1, backend: 'wasm' });
   }
+  const two = ratios['restore --jobs 2'];
+  if (two !== undefined) {
+    const rate = 60 / (two * floorPerImage);
+    console.log(
+      `goal: --jobs 2 at least 100 images/min and within 2.5x the floor (steady state): ${rate.toFixed(1)} images/min, ${two.toFixed(1)}x: ` +
+        `${rate >= 100 && two <= 2.5 ? 'met' : 'not met'}`,
+    );
+  }
+
+  // CPU time of each stage for one scan, in this process's child on one core (process.cpuUsage: all its
+  // threads, so libvips' and ONNX Runtime's threads count), after a first scan that warms everything up.
+  const cpu = spawnSync(process.execPath, [fileURLToPath(import.meta.url), '--stage-cpu', modelDir, ...files.slice(0, 3)], {
+    encoding: 'utf8',
+  });
+  if (cpu.status === 0) {
+    const t = JSON.parse(cpu.stdout.trim().split('\n').pop());
+    console.log(
+      `per image at 1 job, CPU ms by stage (mean of scans 2-3, one process): ${Object.entries(t)
+        .map(([k, v]) => `${k} ${v}`)
+        .join(', ')}`,
+    );
+  } else console.log(`stage CPU times failed: ${cpu.stderr.slice(-300)}`);
 
   // Peak memory for a 100-megapixel 16-bit greyscale TIFF (10000 x 10000).
   const side = Number(process.env.KINHUE_BENCH_BIG_SIDE ?? 10000);
@@ -212,4 +244,70 @@ function expandGrey(data) {
 
 function mean(values) {
   return Math.round(values.reduce((s, v) => s + v, 0) / values.length);
+}
+
+/** Restores a folder with the CLI under GNU time (where present: it adds the CPU seconds of all threads). */
+function timedRestore(folder, out, modelDir, jobs, backend) {
+  const t0 = performance.now();
+  const args = [BIN, 'restore', folder, '--out', out, '--model', modelDir, '--jobs', String(jobs), '--json'];
+  const env = backend ? { ...process.env, KINHUE_BACKEND: backend } : process.env;
+  const timed = existsSync('/usr/bin/time');
+  const r = timed
+    ? spawnSync('/usr/bin/time', ['-f', 'kinhue-bench-cpu %U %S', process.execPath, ...args], {
+        encoding: 'utf8',
+        maxBuffer: 64 << 20,
+        env,
+      })
+    : spawnSync(process.execPath, args, { encoding: 'utf8', maxBuffer: 64 << 20, env });
+  const seconds = (performance.now() - t0) / 1000;
+  if (r.status !== 0) return { error: `exit ${r.status}: ${(r.stderr ?? '').slice(-500)}` };
+  const cpuLine = /kinhue-bench-cpu ([\d.]+) ([\d.]+)/.exec(r.stderr ?? '');
+  return { out, seconds, cpuSeconds: cpuLine ? Number(cpuLine[1]) + Number(cpuLine[2]) : undefined };
+}
+
+/** CPU ms of each restore stage (the pipeline's own steps, in order), mean over all scans but the first. */
+async function stageCpu(scans, modelDir) {
+  const stages = (name) => import(join(root, 'dist', 'batch', 'stages', `${name}.js`));
+  const [{ analyse }, { predictColour }, { applyGuides, skinGuide }, { render, confidenceGrey }, { writeResult }] = await Promise.all(
+    ['analyse', 'predict', 'guide', 'render', 'write'].map(stages),
+  );
+  const { RESTORE_DEFAULTS } = await import(join(root, 'dist', 'batch', 'options.js'));
+  await kinhue.initBackend();
+  const model = await kinhue.loadModel(modelDir);
+  const finder = await kinhue.loadFaceFinder();
+  const out = mkdtempSync(join(tmpdir(), 'kinhue-bench-stages-'));
+  const sums = {};
+  try {
+    for (let k = 0; k < scans.length; k++) {
+      let c = process.cpuUsage();
+      const lap = (name) => {
+        const d = process.cpuUsage(c);
+        if (k > 0) sums[name] = (sums[name] ?? 0) + (d.user + d.system) / 1000;
+        c = process.cpuUsage();
+      };
+      const scan = await analyse(scans[k], model.meta.workingSize);
+      lap('hash, decode, working size');
+      const { L, width, height } = scan.working;
+      const predicted = await predictColour(L, width, height, model);
+      lap('model');
+      const { colour } = applyGuides(predicted, [skinGuide(finder)]);
+      lap('skin prior');
+      const image = render(scan.decoded.pixels, colour, 8);
+      lap('colour');
+      const name = `scan-${k}`;
+      const settings = { ...RESTORE_DEFAULTS, model: 'bench', weightsSha256: '', confidence: true };
+      const outputs = { image: `${name}.jpg`, confidence: `${name}.confidence.png`, record: `${name}.kinhue.json`, format: 'jpeg' };
+      const grey = { grey: confidenceGrey(colour), width: colour.confidenceWidth, height: colour.confidenceHeight };
+      await writeResult(
+        { outDir: out, outputs, source: scans[k], sha256: scan.sha256, settings, meanConfidence: 0.5 },
+        image,
+        { exif: scan.decoded.exif, icc: scan.decoded.icc },
+        grey,
+      );
+      lap('encode (image, confidence map)');
+    }
+  } finally {
+    rmSync(out, { recursive: true, force: true });
+  }
+  return Object.fromEntries(Object.entries(sums).map(([k, v]) => [k, Math.round(v / (scans.length - 1))]));
 }

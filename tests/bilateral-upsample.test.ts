@@ -1,5 +1,5 @@
 import { describe, expect, it } from 'vitest';
-import { bilateralGrid, bilateralUpsample, resizePlane, shrinkPlane, sliceRows, PlaneShrinker } from '../src/colour/index.js';
+import { bilateralGrid, bilateralUpsample, GridReader, resizePlane, shrinkPlane, sliceRows, PlaneShrinker } from '../src/colour/index.js';
 import { random } from './helpers/random.js';
 
 /**
@@ -106,6 +106,16 @@ describe('edge-aware upsampling (joint bilateral upsampling, Kopf et al. 2007, o
       for (let i = 0; i < n * s.W; i++) if (a[i] !== whole.a[y * s.W + i] || b[i] !== whole.b[y * s.W + i]) differ++;
       expect(differ).toBe(0);
     }
+    // One reader for the whole image, read in bands of a few rows (as restore's render does).
+    const reader = new GridReader(grid, s.W, s.H);
+    const banded = { a: new Float32Array(s.W * s.H), b: new Float32Array(s.W * s.H) };
+    for (let y = 0; y < s.H; y += 3) {
+      const n = Math.min(3, s.H - y);
+      const part = (p: Float32Array) => p.subarray(y * s.W, (y + n) * s.W);
+      reader.read(part(s.L), y, n, part(banded.a), part(banded.b));
+    }
+    expect(banded.a).toEqual(whole.a);
+    expect(banded.b).toEqual(whole.b);
   });
 });
 

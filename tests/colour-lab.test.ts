@@ -279,6 +279,31 @@ describe('grey data and lightness', () => {
     }
   });
 
+  it('greyToLightness gives the same L* for 8-bit RGB when colours repeat and when they outnumber its memory of recent ones', () => {
+    const rnd = random(7);
+    // 200,000 random colours (more than the 65,536 it remembers, so remembered ones are replaced), then a
+    // toned image with few colours read three times over.
+    const many = new Uint8Array(600_000).map(() => rnd() * 256);
+    const toned = new Uint8Array(3 * 50_000);
+    for (let i = 0; i < 50_000; i++) {
+      const v = Math.floor(rnd() * 40) + 100;
+      toned.set([v + 18, Math.round(v * 0.86 + 8), Math.round(v * 0.68)], 3 * i);
+    }
+    for (const data of [many, toned, toned, many, toned]) {
+      expect(Array.from(greyToLightness(data, 3))).toEqual(Array.from(srgbToLab(data, 3).L));
+    }
+  });
+
+  it('greyToLightness writes into a buffer given for it and returns the part it filled', () => {
+    const data = new Uint8Array([10, 200, 30, 119, 119, 119]);
+    const out = new Float32Array(5).fill(-1);
+    const L = greyToLightness(data, 3, out);
+    expect(L.length).toBe(2);
+    expect(L.buffer).toBe(out.buffer);
+    expect(Array.from(out)).toEqual([...Array.from(srgbToLab(data, 3).L), -1, -1, -1]);
+    expect(() => greyToLightness(data, 3, new Float32Array(1))).toThrow(RangeError);
+  });
+
   it('lightnessToGrey renders L* as the nearest grey and round-trips L*', () => {
     // Every 8-bit grey level comes back exactly.
     const codes = new Uint8Array(256).map((_, i) => i);

@@ -1,6 +1,6 @@
 import { describe, expect, it } from 'vitest';
 import { workingLab } from '../src/batch/working-lab.js';
-import { downscaleToFloatRgb, resizePlane, sampleCrop, srgbToLab } from '../src/colour/index.js';
+import { areaMean, downscaleToFloatRgb, resizePlane, sampleCrop, srgbToLab, type Samples } from '../src/colour/index.js';
 import { random } from './helpers/random.js';
 
 describe('resampling', () => {
@@ -15,6 +15,36 @@ describe('resampling', () => {
     expect(out.data[1]).toBeCloseTo((255 * 4 - 100) / 4 / 255, 6);
     // Bottom-right block: pixels 10, 11, 14, 15 -> red (100 + 110 + 140 + 150) / 4 = 125.
     expect(out.data[9]).toBeCloseTo(125 / 255, 6);
+  });
+
+  it('area-averages at ratios that do not divide, up and down, every layout: each output the mean of the source pixels x, y with floor(x * w / W), floor(y * h / H) on it (by definition)', () => {
+    const rnd = random(3);
+    for (const [W, H, channels, depth, w, h] of [
+      [37, 23, 3, 8, 5, 4],
+      [37, 23, 4, 16, 9, 23],
+      [10, 7, 1, 8, 3, 2],
+      [10, 7, 2, 16, 4, 7],
+      [5, 3, 3, 8, 11, 7],
+    ] as const) {
+      const max = depth === 16 ? 65535 : 255;
+      const data = (depth === 16 ? new Uint16Array(W * H * channels) : new Uint8Array(W * H * channels)).map(() => rnd() * (max + 1));
+      const px: Samples = { width: W, height: H, channels, depth, data };
+      const c = channels >= 3 ? 3 : 1;
+      const sums = new Float64Array(w * h * c);
+      const counts = new Float64Array(w * h);
+      for (let y = 0; y < H; y++) {
+        for (let x = 0; x < W; x++) {
+          const cell = Math.min(h - 1, Math.floor((y * h) / H)) * w + Math.min(w - 1, Math.floor((x * w) / W));
+          counts[cell]++;
+          for (let k = 0; k < c; k++) sums[cell * c + k] += data[(y * W + x) * channels + k]!;
+        }
+      }
+      const expected = Array.from(sums, (v, i) => Math.fround(counts[Math.floor(i / c)]! ? v / counts[Math.floor(i / c)]! / max : 0));
+      const got = areaMean(px, w, h);
+      expect(got.channels).toBe(c);
+      const worst = Math.max(...Array.from(got.data, (v, i) => Math.abs(v - expected[i]!)));
+      expect(worst).toBeLessThan(1e-6);
+    }
   });
 
   it('spreads 16-bit grey to three equal channels', () => {

@@ -6,7 +6,8 @@ import { decodeImage } from '../src/image/index.js';
 import { backboneFeatures, BACKBONE_CHANNELS, type BackboneFeatures } from '../src/model/backbone.js';
 import { initBackend } from '../src/model/backend.js';
 import { createNetwork } from '../src/model/network.js';
-import { runNetwork } from '../src/model/native-inference.js';
+import { annealedMeanTensor, decodingTable, leastCiede2000 } from '../src/model/decoding.js';
+import { runDecoding, runNetwork } from '../src/model/native-inference.js';
 import { graphModelToOnnx, type GraphModelJson } from '../src/model/onnx-graph.js';
 import { networkToOnnx } from '../src/model/onnx-network.js';
 import { onnxRuntimeVersion } from '../src/model/onnx-runtime.js';
@@ -186,5 +187,60 @@ describe('the export follows the network definition', () => {
     });
     expect(graphModelToOnnx(graph('Sigmoid'), new Uint8Array(0), ['y']).length).toBeGreaterThan(0);
     expect(() => graphModelToOnnx(graph('Softplus'), new Uint8Array(0), ['y'])).toThrow(/node y is a Softplus/);
+  });
+});
+
+describe('the decoding on ONNX Runtime', () => {
+  // Random logits over the shipped bins, with the shipped model's class weights: the graph against
+  // decoding.ts on TensorFlow.js (WebAssembly), fed logits and fed probabilities (as after region pooling).
+  it('chooses the colour TensorFlow.js chooses (or one of equal expected difference) and gives the same confidence', async () => {
+    const model = await loadShippedModel();
+    const q = model.bins.count;
+    const pixels = 600;
+    let s = 7;
+    const next = () => ((s = (Math.imul(s, 1664525) + 1013904223) >>> 0) / 4294967296) * 8 - 4;
+    const logits = Float32Array.from({ length: pixels * q }, next);
+    const table = decodingTable(model.bins);
+    expect((await initBackend({ prefer: 'wasm' })).model).toBe('wasm');
+    const probabilities = tf.tidy(() => tf.softmax(tf.tensor2d(logits, [pixels, q])).dataSync() as Float32Array);
+    for (const decoding of ['least-ciede2000', 'annealed-mean'] as const) {
+      const expected = tf.tidy(() => {
+        const scores = tf.tensor2d(logits, [pixels, q]);
+        const colour =
+          decoding === 'annealed-mean'
+            ? annealedMeanTensor(scores, model.bins, 0.38)
+            : leastCiede2000(scores, model.bins, model.classWeights);
+        const logp = tf.logSoftmax(scores);
+        const confidence = tf.add(1, tf.div(tf.sum(tf.mul(tf.exp(logp), logp), -1), Math.log(q)));
+        return { ab: colour.dataSync() as Float32Array, confidence: confidence.dataSync() as Float32Array };
+      });
+      // The expected CIEDE2000 difference of each candidate under a pixel's corrected distribution, in float64.
+      const risk = (i: number, c: number): number => {
+        let sum = 0;
+        let total = 0;
+        for (let j = 0; j < q; j++) {
+          const p = Math.exp(logits[i * q + j]!) / model.classWeights[j]!;
+          sum += p * table.difference[j * table.count + c]!;
+          total += p;
+        }
+        return sum / total;
+      };
+      expect((await initBackend({ prefer: 'onnxruntime' })).model).toBe('onnxruntime');
+      for (const input of ['logits', 'probabilities'] as const) {
+        const spec = { decoding, input, bins: model.bins, classWeights: model.classWeights, temperature: 0.38, confidenceTemperature: 1 };
+        const got = runDecoding(input === 'logits' ? logits : probabilities, pixels, spec);
+        expect(maxDifference(got.confidence, expected.confidence)).toBeLessThan(1e-4);
+        if (decoding === 'annealed-mean') {
+          expect(maxDifference(got.colour, expected.ab)).toBeLessThan(0.01);
+          continue;
+        }
+        for (let i = 0; i < pixels; i++) {
+          const c = got.colour[i]!;
+          const theirs = Array.from(table.a).findIndex((a, k) => a === expected.ab[2 * i] && table.b[k] === expected.ab[2 * i + 1]);
+          if (c !== theirs) expect(Math.abs(risk(i, c) - risk(i, theirs))).toBeLessThan(1e-4 * risk(i, theirs));
+        }
+      }
+      expect((await initBackend({ prefer: 'wasm' })).model).toBe('wasm');
+    }
   });
 });

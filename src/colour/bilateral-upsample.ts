@@ -131,53 +131,81 @@ export function sliceRows(
   outA: Float32Array,
   outB: Float32Array,
 ): void {
-  const { gw, gh, gz, data, cell } = grid;
-  const zMax = gz - 1;
-  const inv = 1 / grid.rangeStep;
-  const cellStride = gz * 3;
-  const rowStride = gw * cellStride;
-  const cx0 = new Int32Array(fullWidth);
-  const cx1 = new Int32Array(fullWidth);
-  const ctx = new Float32Array(fullWidth);
-  for (let x = 0; x < fullWidth; x++) {
-    const [i0, i1, t] = gridPoint(x, fullWidth, grid.width, cell, gw);
-    cx0[x] = i0 * cellStride;
-    cx1[x] = i1 * cellStride;
-    ctx[x] = t;
-  }
-  // The two grid rows around a pixel row, blended once per row: each pixel then reads 2 x 2 x 3 values.
-  const row = new Float32Array(rowStride);
-  let lastKey = -1;
-  for (let j = 0; j < rows; j++) {
-    const [r0, r1, ty] = gridPoint(y0 + j, fullHeight, grid.height, cell, gh);
-    const key = r0 * 4096 + Math.round(ty * 4095);
-    if (key !== lastKey) {
-      lastKey = key;
-      const o0 = r0 * rowStride;
-      const o1 = r1 * rowStride;
-      const uy = 1 - ty;
-      for (let k = 0; k < rowStride; k++) row[k] = uy * data[o0 + k]! + ty * data[o1 + k]!;
-    }
-    const base = j * fullWidth;
+  new GridReader(grid, fullWidth, fullHeight).read(L, y0, rows, outA, outB);
+}
+
+/**
+ * sliceRows for one image read in many small bands: each column's grid position is worked out once, and
+ * the blend of the two grid rows around a pixel row is kept from one band to the next.
+ * @example
+ *   const reader = new GridReader(grid, 4000, 3000);
+ *   for (let y = 0; y < 3000; y += 8) reader.read(bandL, y, 8, bandA, bandB);
+ */
+export class GridReader {
+  private readonly cx0: Int32Array;
+  private readonly cx1: Int32Array;
+  private readonly ctx: Float32Array;
+  private readonly row: Float32Array;
+  private lastKey = -1;
+
+  constructor(
+    private readonly grid: BilateralGrid,
+    private readonly fullWidth: number,
+    private readonly fullHeight: number,
+  ) {
+    const { gw, gz, cell } = grid;
+    const cellStride = gz * 3;
+    this.cx0 = new Int32Array(fullWidth);
+    this.cx1 = new Int32Array(fullWidth);
+    this.ctx = new Float32Array(fullWidth);
     for (let x = 0; x < fullWidth; x++) {
-      let z = L[base + x]! * inv;
-      if (!(z > 0)) z = 0;
-      else if (z > zMax) z = zMax;
-      let z0 = z | 0;
-      if (z0 > gz - 2) z0 = gz - 2;
-      const tz = z - z0;
-      const uz = 1 - tz;
-      const tx = ctx[x]!;
-      const ux = 1 - tx;
-      const p = cx0[x]! + z0 * 3;
-      const q = cx1[x]! + z0 * 3;
-      const sa = ux * (uz * row[p]! + tz * row[p + 3]!) + tx * (uz * row[q]! + tz * row[q + 3]!);
-      const sb = ux * (uz * row[p + 1]! + tz * row[p + 4]!) + tx * (uz * row[q + 1]! + tz * row[q + 4]!);
-      const sw = ux * (uz * row[p + 2]! + tz * row[p + 5]!) + tx * (uz * row[q + 2]! + tz * row[q + 5]!);
-      // Every cell holds the background weight, so sw > 0.
-      const r = 1 / sw;
-      outA[base + x] = sa * r;
-      outB[base + x] = sb * r;
+      const [i0, i1, t] = gridPoint(x, fullWidth, grid.width, cell, gw);
+      this.cx0[x] = i0 * cellStride;
+      this.cx1[x] = i1 * cellStride;
+      this.ctx[x] = t;
+    }
+    this.row = new Float32Array(gw * cellStride);
+  }
+
+  /** a* and b* of `rows` rows from `y0`, read at the L* given for them (row-major from row y0). */
+  read(L: Float32Array, y0: number, rows: number, outA: Float32Array, outB: Float32Array): void {
+    const { gh, gz, data, cell } = this.grid;
+    const { cx0, cx1, ctx, row, fullWidth } = this;
+    const zMax = gz - 1;
+    const inv = 1 / this.grid.rangeStep;
+    const rowStride = row.length;
+    for (let j = 0; j < rows; j++) {
+      // The two grid rows around a pixel row, blended once per row: each pixel then reads 2 x 2 x 3 values.
+      const [r0, r1, ty] = gridPoint(y0 + j, this.fullHeight, this.grid.height, cell, gh);
+      const key = r0 * 4096 + Math.round(ty * 4095);
+      if (key !== this.lastKey) {
+        this.lastKey = key;
+        const o0 = r0 * rowStride;
+        const o1 = r1 * rowStride;
+        const uy = 1 - ty;
+        for (let k = 0; k < rowStride; k++) row[k] = uy * data[o0 + k]! + ty * data[o1 + k]!;
+      }
+      const base = j * fullWidth;
+      for (let x = 0; x < fullWidth; x++) {
+        let z = L[base + x]! * inv;
+        if (!(z > 0)) z = 0;
+        else if (z > zMax) z = zMax;
+        let z0 = z | 0;
+        if (z0 > gz - 2) z0 = gz - 2;
+        const tz = z - z0;
+        const uz = 1 - tz;
+        const tx = ctx[x]!;
+        const ux = 1 - tx;
+        const p = cx0[x]! + z0 * 3;
+        const q = cx1[x]! + z0 * 3;
+        const sa = ux * (uz * row[p]! + tz * row[p + 3]!) + tx * (uz * row[q]! + tz * row[q + 3]!);
+        const sb = ux * (uz * row[p + 1]! + tz * row[p + 4]!) + tx * (uz * row[q + 1]! + tz * row[q + 4]!);
+        const sw = ux * (uz * row[p + 2]! + tz * row[p + 5]!) + tx * (uz * row[q + 2]! + tz * row[q + 5]!);
+        // Every cell holds the background weight, so sw > 0.
+        const r = 1 / sw;
+        outA[base + x] = sa * r;
+        outB[base + x] = sb * r;
+      }
     }
   }
 }

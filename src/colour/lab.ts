@@ -10,6 +10,7 @@ import {
   linearToSrgbClipped,
   quantiser16,
   quantiser8,
+  quantise,
   srgb16ToLinearTable,
   srgbToLinear,
   type Quantiser,
@@ -209,13 +210,15 @@ export function srgbToLab(data: PixelData, channels: 1 | 2 | 3 | 4): LabPlanes {
 
 /**
  * The L* plane alone (relative luminance Y to L*) of grey or RGB image data, for callers that need
- * lightness only. Equal to srgbToLab(data, channels).L.
+ * lightness only. Equal to srgbToLab(data, channels).L. Written into `out` when given (its first
+ * pixel-count values; strip-wise callers reuse one buffer).
  * @example
  * greyToLightness(new Uint8Array([119]), 1); // Float32Array [50.03...]
  */
-export function greyToLightness(data: PixelData, channels: 1 | 2 | 3 | 4): Float32Array {
+export function greyToLightness(data: PixelData, channels: 1 | 2 | 3 | 4, out?: Float32Array): Float32Array {
   const n = checkLayout(data.length, channels, [1, 2, 3, 4], 'greyToLightness');
-  const L = new Float32Array(n);
+  if (out && out.length < n) throw new RangeError(`greyToLightness: output holds ${out.length} values, expected at least ${n}`);
+  const L = out ? out.subarray(0, n) : new Float32Array(n);
   if (data instanceof Float32Array) {
     for (let i = 0, j = 0; i < n; i++, j += channels) {
       const y =
@@ -227,6 +230,10 @@ export function greyToLightness(data: PixelData, channels: 1 | 2 | 3 | 4): Float
     return L;
   }
   const is8 = data instanceof Uint8Array;
+  if (is8 && channels >= 3) {
+    rgb8Lightness(data, channels, L);
+    return L;
+  }
   const lin = is8 ? SRGB8_TO_LINEAR : srgb16ToLinearTable();
   const greyL = is8 ? GREY8_L : grey16Lightness();
   for (let i = 0, j = 0; i < n; i++, j += channels) {
@@ -242,19 +249,40 @@ export function greyToLightness(data: PixelData, channels: 1 | 2 | 3 | 4): Float
   return L;
 }
 
+// L* of recently seen 8-bit RGB triples, direct-mapped by a hash of the triple: [key, L*] side by side,
+// the key as int32 and L* as float32 over one buffer. A scan holds far fewer distinct colours than
+// pixels (a toned print lies near one curve through RGB), so most pixels find their L* here; the value
+// is the float32 the conversion stores anyway, so results are unchanged.
+const RGB8_SLOTS = 1 << 16;
+const rgb8Cache = new ArrayBuffer(RGB8_SLOTS * 8);
+new Int32Array(rgb8Cache).fill(-1);
+
+function rgb8Lightness(data: Uint8Array, channels: number, L: Float32Array): void {
+  const n = L.length;
+  const keys = new Int32Array(rgb8Cache);
+  const values = new Float32Array(rgb8Cache);
+  for (let i = 0, j = 0; i < n; i++, j += channels) {
+    const key = (data[j]! << 16) | (data[j + 1]! << 8) | data[j + 2]!;
+    const slot = (Math.imul(key, 0x9e3779b1) >>> 16) << 1;
+    if (keys[slot] === key) {
+      L[i] = values[slot + 1]!;
+    } else {
+      L[i] = rgb8ToLightness(data[j]!, data[j + 1]!, data[j + 2]!);
+      keys[slot] = key;
+      values[slot + 1] = L[i]!;
+    }
+  }
+}
+
+function rgb8ToLightness(r: number, g: number, b: number): number {
+  const lin = SRGB8_TO_LINEAR;
+  return r === g && g === b ? GREY8_L[r]! : fastLightness(M10 * lin[r]! + M11 * lin[g]! + M12 * lin[b]!);
+}
+
 function checkOut(out: PixelData, n: number, channels: number, what: string): void {
   if (out.length !== n * channels) {
     throw new RangeError(`${what}: output holds ${out.length} values, expected ${n} pixels x ${channels} channels`);
   }
-}
-
-/** Linear light to an integer code with the quantiser's tables (see srgb.ts), clipping to 0..max. */
-function toCode(v: number, first: Uint8Array | Uint16Array, thresholds: Float64Array, bins: number, max: number): number {
-  if (!(v > 0)) return 0;
-  if (v >= 1) return max;
-  let code = first[(v * bins) | 0];
-  while (v >= thresholds[code]) code++;
-  return code;
 }
 
 function labToIntegerRgb(lab: LabPlanes, out: Uint8Array | Uint16Array, channels: number, q: Quantiser): void {
@@ -264,17 +292,32 @@ function labToIntegerRgb(lab: LabPlanes, out: Uint8Array | Uint16Array, channels
   const thresholds = q.thresholds,
     first = q.first,
     bins = q.bins;
+  // The quantiser's lookup (see srgb.ts' quantise) is written out three times: as a function call
+  // it made this loop twice as slow.
   for (let i = 0, j = 0; i < n; i++, j += channels) {
-    const l = L[i];
+    const l = L[i]!;
     const fy = (l + 16) / 116;
-    const fx = fy + a[i] / 500;
-    const fz = fy - b[i] / 200;
+    const fx = fy + a[i]! / 500;
+    const fz = fy - b[i]! / 200;
     const x = fx > F_EPS ? fx * fx * fx : (116 * fx - 16) / KAPPA;
     const y = l > 8 ? fy * fy * fy : l / KAPPA;
     const z = fz > F_EPS ? fz * fz * fz : (116 * fz - 16) / KAPPA;
-    out[j] = toCode(N00 * x + N01 * y + N02 * z, first, thresholds, bins, max);
-    out[j + 1] = toCode(N10 * x + N11 * y + N12 * z, first, thresholds, bins, max);
-    out[j + 2] = toCode(N20 * x + N21 * y + N22 * z, first, thresholds, bins, max);
+    let v = N00 * x + N01 * y + N02 * z;
+    let code: number;
+    if (!(v > 0)) code = 0;
+    else if (v >= 1) code = max;
+    else for (code = first[(v * bins) | 0]!; v >= thresholds[code]!; ) code++;
+    out[j] = code;
+    v = N10 * x + N11 * y + N12 * z;
+    if (!(v > 0)) code = 0;
+    else if (v >= 1) code = max;
+    else for (code = first[(v * bins) | 0]!; v >= thresholds[code]!; ) code++;
+    out[j + 1] = code;
+    v = N20 * x + N21 * y + N22 * z;
+    if (!(v > 0)) code = 0;
+    else if (v >= 1) code = max;
+    else for (code = first[(v * bins) | 0]!; v >= thresholds[code]!; ) code++;
+    out[j + 2] = code;
     if (channels === 4) out[j + 3] = max;
   }
 }
@@ -321,9 +364,6 @@ export function lightnessToGrey<T extends PixelData>(L: Float32Array, out: T): T
     return out;
   }
   const q = out instanceof Uint8Array ? quantiser8() : quantiser16();
-  const { thresholds, first, bins, max } = q;
-  for (let i = 0; i < n; i++) {
-    out[i] = toCode(yFromLightness(L[i]), first, thresholds, bins, max);
-  }
+  for (let i = 0; i < n; i++) out[i] = quantise(q, yFromLightness(L[i]));
   return out;
 }

@@ -46,25 +46,42 @@ export function areaMean(px: Samples, width: number, height: number): { data: Fl
   const n = width * height;
   const sums = new Float64Array(n * c);
   const counts = new Float64Array(n);
-  const colOf = new Int32Array(W);
-  for (let x = 0; x < W; x++) colOf[x] = Math.min(width - 1, Math.floor((x * width) / W));
+  // Output column cx gathers source columns start[cx] to start[cx + 1] - 1 (floor(x * width / W) is
+  // monotonic). A run of one output pixel is summed in locals: adding pixel after pixel into the same
+  // array cell makes every addition wait for the last. Sums of integer codes are exact in float64, so the
+  // order of the additions does not change the means.
+  const start = new Int32Array(width + 1);
+  for (let x = 0, cx = 0; x <= W; x++) {
+    const to = x === W ? width : Math.min(width - 1, Math.floor((x * width) / W));
+    while (cx < to) start[++cx] = x;
+  }
+  start[width] = W;
   for (let y = 0; y < H; y++) {
     const cellRow = Math.min(height - 1, Math.floor((y * height) / H)) * width;
-    let i = y * W * channels;
-    if (c === 3) {
-      for (let x = 0; x < W; x++, i += channels) {
-        const cell = cellRow + colOf[x]!;
-        sums[cell * 3] += data[i]!;
-        sums[cell * 3 + 1] += data[i + 1]!;
-        sums[cell * 3 + 2] += data[i + 2]!;
-        counts[cell]! += 1;
+    const rowStart = y * W * channels;
+    for (let cx = 0; cx < width; cx++) {
+      const x0 = start[cx]!;
+      const x1 = start[cx + 1]!;
+      const cell = cellRow + cx;
+      const end = rowStart + x1 * channels;
+      if (c === 3) {
+        let r = 0,
+          g = 0,
+          b = 0;
+        for (let i = rowStart + x0 * channels; i < end; i += channels) {
+          r += data[i]!;
+          g += data[i + 1]!;
+          b += data[i + 2]!;
+        }
+        sums[cell * 3] += r;
+        sums[cell * 3 + 1] += g;
+        sums[cell * 3 + 2] += b;
+      } else {
+        let v = 0;
+        for (let i = rowStart + x0 * channels; i < end; i += channels) v += data[i]!;
+        sums[cell] += v;
       }
-    } else {
-      for (let x = 0; x < W; x++, i += channels) {
-        const cell = cellRow + colOf[x]!;
-        sums[cell] += data[i]!;
-        counts[cell]! += 1;
-      }
+      counts[cell] += x1 - x0;
     }
   }
   const max = px.depth === 16 ? 65535 : 255;

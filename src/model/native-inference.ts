@@ -1,15 +1,17 @@
 /**
- * What runs the network and the backbone when predict() and backboneFeatures() need them: TensorFlow.js,
- * or, once initBackend has chosen it, ONNX Runtime on their ONNX exports. The exports are made in memory
+ * What runs the network, the decoding of its output and the backbone when predict() and backboneFeatures()
+ * need them: TensorFlow.js, or, once initBackend has chosen it, ONNX Runtime on their ONNX exports. The exports are made in memory
  * from the live network and the backbone's files the first time each runs (a model folder holds no .onnx
  * file that could disagree with its weights), and a network's export is made again whenever its weights
  * have changed since (training assigns new tensors to its variables).
  */
 import * as tf from '@tensorflow/tfjs';
 import { ModelError } from '../errors.js';
+import type { AbBins } from './bins.js';
+import { type DecodingSpec, decodingToOnnx, softmaxToOnnx } from './onnx-decoding.js';
 import { graphModelToOnnx, type GraphModelJson } from './onnx-graph.js';
 import { networkToOnnx } from './onnx-network.js';
-import { OnnxSession } from './onnx-runtime.js';
+import { OnnxSession, type RuntimeOutput } from './onnx-runtime.js';
 
 let onnxRuntime = false;
 
@@ -65,11 +67,47 @@ function networkSession(network: tf.LayersModel): NetworkSession {
  */
 export function runNetwork(network: tf.LayersModel, inputs: tf.Tensor4D | tf.Tensor4D[]): tf.Tensor4D {
   if (!onnxRuntime) return network.predict(inputs) as tf.Tensor4D;
+  const out = networkOutput(network, inputs);
+  return tf.tensor4d(out.data, out.dims as [number, number, number, number]);
+}
+
+/**
+ * The network's output (channels-last) on ONNX Runtime, as plain values: predict reads them without
+ * passing them through TensorFlow.js.
+ * @example
+ * const { data, dims } = networkOutput(net, networkInputs(input, 1, h, w));
+ */
+export function networkOutput(network: tf.LayersModel, inputs: tf.Tensor4D | tf.Tensor4D[]): RuntimeOutput {
   const { session, inputs: names, output } = networkSession(network);
   const list = Array.isArray(inputs) ? inputs : [inputs];
   const feeds = Object.fromEntries(names.map((name, i) => [name, { data: list[i]!.dataSync() as Float32Array, dims: list[i]!.shape }]));
-  const [out] = session.run(feeds, [output]);
-  return tf.tensor4d(out!.data, out!.dims as [number, number, number, number]);
+  return session.run(feeds, [output])[0]!;
+}
+
+/** Decoding sessions per set of bins, by decoding, temperatures and class weights. */
+const decodings = new WeakMap<AbBins, Map<string, OnnxSession>>();
+
+/**
+ * The decoding of `scores` ([pixels, Q], logits or pooled probabilities, as `spec.input` says) on ONNX Runtime:
+ * `colour`, the chosen candidate per pixel (least-ciede2000) or a*b* pairs (annealed-mean), and `confidence`.
+ * @example
+ * const { colour, confidence } = runDecoding(scores, pixels, spec);
+ */
+export function runDecoding(scores: Float32Array, pixels: number, spec: DecodingSpec): { colour: Float32Array; confidence: Float32Array } {
+  let byKey = decodings.get(spec.bins);
+  if (!byKey) decodings.set(spec.bins, (byKey = new Map()));
+  const key = [spec.decoding, spec.input, spec.temperature, spec.confidenceTemperature, Array.from(spec.classWeights).join(',')].join('|');
+  let session = byKey.get(key);
+  if (!session) {
+    try {
+      session = new OnnxSession(decodingToOnnx(spec));
+    } catch (error) {
+      throw new ModelError(`the decoding cannot run on ONNX Runtime: ${(error as Error).message}`, { hint: RUN_ON_TFJS, cause: error });
+    }
+    byKey.set(key, session);
+  }
+  const [colour, confidence] = session.run({ scores: { data: scores, dims: [pixels, spec.bins.count] } }, ['colour', 'confidence']);
+  return { colour: colour!.data, confidence: confidence!.data };
 }
 
 /** A graph model with the bytes of its files (as a Backbone keeps them). */
@@ -105,4 +143,21 @@ export function runGraph(model: GraphModelFiles, input: tf.Tensor, outputs: read
   }
   const feeds = { [made.input]: { data: input.dataSync() as Float32Array, dims: input.shape } };
   return made.session.run(feeds, outputs).map((o) => tf.tensor(o.data, o.dims));
+}
+
+/** Softmax sessions by the number of bins. */
+const softmaxes = new Map<number, OnnxSession>();
+
+/**
+ * The softmax of each row of `logits` ([pixels, q]) on ONNX Runtime.
+ * @example
+ * const probabilities = runSoftmax(logits, pixels, 262);
+ */
+export function runSoftmax(logits: Float32Array, pixels: number, q: number): Float32Array {
+  let session = softmaxes.get(q);
+  if (!session) {
+    session = new OnnxSession(softmaxToOnnx(q));
+    softmaxes.set(q, session);
+  }
+  return session.run({ logits: { data: logits, dims: [pixels, q] } }, ['probabilities'])[0]!.data;
 }

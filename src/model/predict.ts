@@ -1,15 +1,26 @@
 /**
  * From an L* plane to a*b* and confidence at a quarter of its resolution: pad to the network's
- * multiple (edge pixels repeated), run the network, crop back, decode (see decoding.ts).
+ * multiple (edge pixels repeated), run the network, crop back, decode (see decoding.ts). With ONNX
+ * Runtime chosen, the network and the decoding both run there (onnx-network.ts, onnx-decoding.ts).
  */
 import * as tf from '@tensorflow/tfjs';
 import { shrinkPlane } from '../colour/index.js';
 import { type Backbone, type BackboneFeatures, backboneFeatures, borrowedInputs } from './backbone.js';
 import { type AbBins, abBins } from './bins.js';
-import { annealedMeanTensor, chooseDecoding, DEFAULT_DECODING, decodingWeights, leastCiede2000, type Decoding } from './decoding.js';
+import {
+  annealedMeanTensor,
+  chooseDecoding,
+  DEFAULT_DECODING,
+  decodingTable,
+  decodingWeights,
+  leastCiede2000,
+  type Decoding,
+} from './decoding.js';
 import { featuresFromLogits } from './cell-features.js';
 import { DEFAULT_TEMPERATURE } from './encoding.js';
-import { runNetwork } from './native-inference.js';
+import { networkOutput, onnxInference, runDecoding, runNetwork, runSoftmax } from './native-inference.js';
+import type { DecodingSpec } from './onnx-decoding.js';
+import type { RuntimeOutput } from './onnx-runtime.js';
 import { type PoolingSettings, poolRegions } from './region-pooling.js';
 import { NETWORK_MULTIPLE, OUTPUT_STRIDE, toNetworkInput } from './network.js';
 import type { KinhueModel } from './storage.js';
@@ -122,6 +133,11 @@ export function predict(
   const borrowed =
     network.inputs.length > 1 ? borrowedFor(L, width, height, pw, ph, options.features, options.backbone ?? own.backbone) : undefined;
   const pooling = options.pooling ?? own.pooling;
+  if (onnxInference()) {
+    const spec = { decoding, bins, classWeights, temperature, confidenceTemperature: CONFIDENCE_TEMPERATURE };
+    const at = { L, width, height, ow, oh, pooling, cellFeatures: options.cellFeatures };
+    return predictOnRuntime(network, networkInputs(input, 1, ph, pw, borrowed), at, spec);
+  }
   const raw = tf.tidy(() => {
     const logits = runNetwork(network, networkInputs(input, 1, ph, pw, borrowed));
     return tf.reshape(tf.slice(logits, [0, 0, 0, 0], [1, oh, ow, q]), [oh * ow, q]) as tf.Tensor2D;
@@ -150,6 +166,60 @@ export function predict(
     b[i] = abData[2 * i + 1];
   }
   return { a, b, confidence, width: ow, height: oh, ...(features ? { features } : {}) };
+}
+
+/**
+ * predict() on ONNX Runtime from the network's inputs on: the network, region pooling (in JavaScript, as
+ * on TensorFlow.js) and the decoding, with the values handed from one to the next as plain arrays.
+ */
+function predictOnRuntime(
+  network: tf.LayersModel,
+  inputs: tf.Tensor4D | tf.Tensor4D[],
+  at: { L: Float32Array; width: number; height: number; ow: number; oh: number; pooling?: PoolingSettings | false; cellFeatures?: boolean },
+  spec: Omit<DecodingSpec, 'input'>,
+): Prediction {
+  const { ow, oh } = at;
+  const q = spec.bins.count;
+  let out: RuntimeOutput;
+  try {
+    out = networkOutput(network, inputs);
+  } finally {
+    tf.dispose(inputs);
+  }
+  // The output is [1, padded height / 4, padded width / 4, Q]: keep the rows and columns of the picture.
+  const stride = out.dims[2]!;
+  const scores = new Float32Array(oh * ow * q);
+  for (let y = 0; y < oh; y++) scores.set(out.data.subarray(y * stride * q, (y * stride + ow) * q), y * ow * q);
+  const features = at.cellFeatures ? featuresOfScores(network, scores, ow * oh, q) : undefined;
+  const pooled = at.pooling
+    ? poolRegions(runSoftmax(scores, ow * oh, q), q, shrinkPlane(at.L, at.width, at.height, ow, oh), ow, oh, at.pooling)
+    : undefined;
+  const { colour, confidence } = runDecoding(pooled ?? scores, ow * oh, { ...spec, input: pooled ? 'probabilities' : 'logits' });
+  const a = new Float32Array(ow * oh);
+  const b = new Float32Array(ow * oh);
+  if (spec.decoding === 'least-ciede2000') {
+    const table = decodingTable(spec.bins);
+    for (let i = 0; i < ow * oh; i++) {
+      a[i] = table.a[colour[i]!]!;
+      b[i] = table.b[colour[i]!]!;
+    }
+  } else {
+    for (let i = 0; i < ow * oh; i++) {
+      a[i] = colour[2 * i]!;
+      b[i] = colour[2 * i + 1]!;
+    }
+  }
+  return { a, b, confidence: Float32Array.from(confidence), width: ow, height: oh, ...(features ? { features } : {}) };
+}
+
+/** The decoder's features behind logits held in a plain array ([cells, q]). */
+function featuresOfScores(network: tf.LayersModel, scores: Float32Array, cells: number, q: number): { data: Float32Array; dims: number } {
+  const logits = tf.tensor2d(scores, [cells, q]);
+  try {
+    return featuresFromLogits(network, logits);
+  } finally {
+    logits.dispose();
+  }
 }
 
 /** The backbone's inputs for a picture padded from width x height to pw x ph (the padding repeats the edge). */

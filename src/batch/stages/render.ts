@@ -1,14 +1,14 @@
 /**
  * Stage 5, render: the working colour carried to full resolution by a bilateral grid guided by the scan's
  * own L*, kept inside the sRGB gamut at that L*, and converted with it to sRGB at the output depth, alpha
- * kept. Runs in strips of rows, so a 100-megapixel scan never exists as float planes.
+ * kept. Runs in bands of a few rows, so a 100-megapixel scan never exists as float planes.
  */
 import {
   bilateralGrid,
   greyToLightness,
   labToSrgb,
   limitChroma,
-  sliceRows,
+  GridReader,
   type BilateralGrid,
   type WorkingColour,
 } from '../../colour/index.js';
@@ -26,9 +26,12 @@ export function fullSizeGrid(colour: WorkingColour): BilateralGrid {
   return bilateralGrid(colour.L, colour.a, colour.b, colour.width, colour.height, TO_FULL_SIZE);
 }
 
-/** Rows per strip: about a million pixels, so strip buffers stay near 20 MB whatever the image size. */
-function stripRows(width: number): number {
-  return Math.max(1, Math.floor((1 << 20) / width));
+/**
+ * Rows per band: about 32 thousand pixels, so a band's L*, a* and b* (and its samples) stay in the
+ * processor's cache from one step to the next, whatever the image size.
+ */
+function bandRows(width: number): number {
+  return Math.max(1, Math.floor((1 << 15) / width));
 }
 
 /**
@@ -38,24 +41,23 @@ function stripRows(width: number): number {
  */
 export function render(px: Pixels, colour: WorkingColour, depth: BitDepth): Pixels {
   const { width: W, height: H, channels } = px;
-  const grid = fullSizeGrid(colour);
+  const reader = new GridReader(fullSizeGrid(colour), W, H);
   const alpha = channels === 2 || channels === 4;
   const outChannels = alpha ? 4 : 3;
   const out = depth === 16 ? new Uint16Array(W * H * outChannels) : new Uint8Array(W * H * outChannels);
-  const rowsPer = stripRows(W);
+  const rowsPer = bandRows(W);
+  const L = new Float32Array(rowsPer * W);
   const a = new Float32Array(rowsPer * W);
   const b = new Float32Array(rowsPer * W);
   for (let y = 0; y < H; y += rowsPer) {
     const rows = Math.min(rowsPer, H - y);
     const n = rows * W;
     const strip = stripOf(px, y, rows);
-    const L = greyToLightness(strip, channels);
-    const sa = a.subarray(0, n);
-    const sb = b.subarray(0, n);
-    sliceRows(grid, L, W, H, y, rows, sa, sb);
-    limitChroma(L, sa, sb);
+    const band = { L: greyToLightness(strip, channels, L), a: a.subarray(0, n), b: b.subarray(0, n) };
+    reader.read(band.L, y, rows, band.a, band.b);
+    limitChroma(band.L, band.a, band.b);
     const target = out.subarray(y * W * outChannels, (y + rows) * W * outChannels);
-    labToSrgb({ L, a: sa, b: sb }, target, outChannels);
+    labToSrgb(band, target, outChannels);
     if (alpha) copyAlpha(strip, channels, px.depth, target, depth);
   }
   return { width: W, height: H, channels: outChannels, depth, data: out } as Pixels;
