@@ -15,6 +15,7 @@ const root = join(here, '..');
 const repair = await import(join(root, 'dist', 'repair', 'index.js'));
 const training = await import(join(root, 'dist', 'training', 'index.js'));
 const kinhue = await import(join(root, 'dist', 'index.js'));
+const colour = await import(join(root, 'dist', 'colour', 'index.js'));
 const sharp = (await import('sharp')).default;
 
 const pool = process.env.KINHUE_BENCH_POOL ?? join(root, '.data', 'pool');
@@ -131,7 +132,7 @@ try {
   const plane = new Float32Array(w * h);
   for (let y = 0; y < h; y++) for (let x = 0; x < w; x++) plane[y * w + x] = 50 + 25 * Math.sin(x / 230) * Math.cos(y / 170);
   const damaged = repair.drawDamage(plane, w, h, new training.Random(3), { perMegapixel: 30 });
-  const grey = kinhue.lightnessToGrey(damaged.L, new Uint8Array(w * h));
+  const grey = colour.lightnessToGrey(damaged.L, new Uint8Array(w * h));
   const scan = join(dir, 'scan.jpg');
   await sharp(grey, { raw: { width: w, height: h, channels: 1 } })
     .toColourspace('b-w')
