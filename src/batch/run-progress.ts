@@ -100,7 +100,7 @@ export function runProgress(run: RunFolder, now: number = Date.now()): RunProgre
       failed,
       pending,
       perMinute,
-      secondsLeft: pending === 0 ? 0 : pending !== null && perMinute ? (pending * 60) / perMinute : null,
+      secondsLeft: secondsLeft(pending, perMinute),
       lastRecord,
     });
   }
@@ -123,7 +123,12 @@ export function runProgress(run: RunFolder, now: number = Date.now()): RunProgre
       failed,
       pending,
       perMinute,
-      secondsLeft: pending === 0 ? 0 : pending !== null && perMinute ? (pending * 60) / perMinute : null,
+      secondsLeft: secondsLeft(pending, perMinute),
     },
   };
+}
+
+/** Seconds until `pending` files are done at `perMinute`: 0 when none are left, null when either is unknown. */
+function secondsLeft(pending: number | null, perMinute: number | null): number | null {
+  return pending === 0 ? 0 : pending !== null && perMinute ? (pending * 60) / perMinute : null;
 }

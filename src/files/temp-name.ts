@@ -78,8 +78,12 @@ export function tempPathFor(path: string): string {
 /** Who made a temporary file of this name, or undefined when it is not one. */
 export function temporaryOwner(name: string): TemporaryOwner | undefined {
   const match = TEMP_PATTERN.exec(name);
-  if (!match) return undefined;
-  return match[2] === undefined ? { pid: Number(match[1]) } : { pid: Number(match[1]), host: match[2] };
+  return match ? ownerNamed(match[1]!, match[2]) : undefined;
+}
+
+/** The owner a name gives as its process id's digits and, in names that carry one, its machine. */
+export function ownerNamed(pid: string, host: string | undefined): TemporaryOwner {
+  return host === undefined ? { pid: Number(pid) } : { pid: Number(pid), host };
 }
 
 /**

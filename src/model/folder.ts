@@ -14,7 +14,7 @@ import { randomBytes } from 'node:crypto';
 import { copyFile, link, mkdir, readdir, readFile, rename, rm, stat, writeFile } from 'node:fs/promises';
 import { join, resolve } from 'node:path';
 import { ModelError } from '../errors.js';
-import { hostLabel, leftByEndedProcess, type TemporaryOwner, temporaryOwner } from '../files/temp-name.js';
+import { hostLabel, leftByEndedProcess, ownerNamed, type TemporaryOwner, temporaryOwner } from '../files/temp-name.js';
 import { sha256 } from './digest.js';
 import { BACKBONE_MISSING_HINT, BACKBONE_TOPOLOGY_FILE, BACKBONE_WEIGHTS_FILE, checkBackboneFiles } from './backbone.js';
 import { METADATA_FILE, type ModelMetadata, parseMetadata, TOPOLOGY_FILE, WEIGHTS_FILE } from './metadata.js';
@@ -171,11 +171,12 @@ const OLDER_TEMP = /\.(\d+)\.[0-9a-z]+\.tmp$/;
 /** Who wrote a staging folder, swap file or single-file temporary (checkpoints, logs), or undefined for names that are not ours. */
 function writerOf(name: string): TemporaryOwner | undefined {
   const prefix = [STAGING_PREFIX, TEMP_PREFIX].find((p) => name.startsWith(p));
-  const older = prefix === undefined ? OLDER_TEMP.exec(name) : null;
-  if (prefix === undefined) return temporaryOwner(name) ?? (older ? { pid: Number(older[1]) } : undefined);
+  if (prefix === undefined) {
+    const older = OLDER_TEMP.exec(name);
+    return temporaryOwner(name) ?? (older ? ownerNamed(older[1]!, undefined) : undefined);
+  }
   const match = WRITER.exec(name.slice(prefix.length));
-  if (!match) return undefined;
-  return match[2] === undefined ? { pid: Number(match[1]) } : { pid: Number(match[1]), host: match[2] };
+  return match ? ownerNamed(match[1]!, match[2]) : undefined;
 }
 
 /** `<pid>@<host>.<random>`: this writer's part of a staging or swap name. */
