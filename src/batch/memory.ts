@@ -4,11 +4,11 @@
  * with them (the features are the model's own, so a memory belongs to one model and one working size).
  */
 import { createHash } from 'node:crypto';
-import { readdir, stat } from 'node:fs/promises';
-import { join, resolve } from 'node:path';
+import { stat } from 'node:fs/promises';
+import { basename, resolve } from 'node:path';
 import { shrinkPlane, type LabPlanes } from '../colour/index.js';
 import { ErrorCodes, InputError } from '../errors.js';
-import { hasImageExtension } from '../files/index.js';
+import { folderImages } from '../files/index.js';
 import { classifyTone, decodeImage } from '../image/index.js';
 import { predict, rememberCells, type ColourMemory, type KinhueModel } from '../model/index.js';
 import { workingSize } from './colourise.js';
@@ -47,13 +47,13 @@ export async function readMemoryPhotos(folder: string, workSize: number, maxPixe
       'give a folder of colour photographs of the same people and places',
     );
   }
-  const files = (await readdir(dir)).filter(hasImageExtension).sort();
+  const paths = await folderImages(dir);
+  const files = paths.map((path) => basename(path));
   if (files.length === 0) throw refuse(dir, 'the memory folder holds no images', 'put colour photographs (JPEG, PNG, TIFF, WebP) in it');
   const digest = createHash('sha256');
   const photos: MemoryPhotos['photos'] = [];
-  for (const name of files) {
-    const file = join(dir, name);
-    digest.update(`${name}\0${await fileSha256(file)}\n`);
+  for (const [k, file] of paths.entries()) {
+    digest.update(`${files[k]}\0${await fileSha256(file)}\n`);
     const { pixels } = await decodeImage(file, { maxPixels });
     const ws = workingSize(pixels.width, pixels.height, workSize);
     const lab = workingLab(pixels, ws.width, ws.height);

@@ -5,7 +5,7 @@
  * compared by where they really lead (links, bind mounts), so each scan is found once, and an
  * output folder that is an input folder under another name is refused.
  */
-import { lstat, stat } from 'node:fs/promises';
+import { lstat, readdir, stat } from 'node:fs/promises';
 import { dirname, extname, join, relative, resolve, sep } from 'node:path';
 import { glob, isDynamicPattern } from 'tinyglobby';
 import { ErrorCodes, UsageError } from '../errors.js';
@@ -57,6 +57,19 @@ export interface DiscoveryOptions {
  */
 export function hasImageExtension(path: string): boolean {
   return IMAGE_EXTENSIONS.includes(extname(path).toLowerCase());
+}
+
+/**
+ * The images directly in a folder (not its subfolders), as paths in name order: the photos of a
+ * reference or memory folder, which name one set of colour photographs rather than a tree of scans.
+ * @example
+ *   await folderImages('family-colour'); // ['family-colour/1968-garden.jpg', ...]
+ */
+export async function folderImages(folder: string): Promise<string[]> {
+  return (await readdir(folder))
+    .filter(hasImageExtension)
+    .sort()
+    .map((name) => join(folder, name));
 }
 
 /** The folder a glob pattern starts from: its segments before the first one with a wildcard. */

@@ -5,12 +5,11 @@
  * and the standard deviation of luminance around it (5 x 5), weighted half and half as in the paper.
  * Several references (one for a series) pool their samples, each remapped by its own statistics.
  */
-import { readdir, stat } from 'node:fs/promises';
-import { join } from 'node:path';
+import { stat } from 'node:fs/promises';
 import { shrinkPlane, srgbToLab, type LabPlanes } from '../colour/index.js';
 import { classifyTone, decodeImage, type Pixels } from '../image/index.js';
 import { ErrorCodes, KinhueError } from '../errors.js';
-import { hasImageExtension } from '../files/index.js';
+import { folderImages } from '../files/index.js';
 import { smoothColour } from './propagate.js';
 import { seededUniform } from '../random.js';
 
@@ -58,10 +57,7 @@ export async function loadReference(path: string): Promise<ReferenceSet> {
   if (!info) throw refuse(path, 'reference photo not found', 'give the path of a colour photograph, or of a folder of them');
   let files = [path];
   if (info.isDirectory()) {
-    files = (await readdir(path))
-      .filter(hasImageExtension)
-      .sort()
-      .map((f) => join(path, f));
+    files = await folderImages(path);
     if (files.length === 0)
       throw refuse(path, 'the reference folder holds no images', 'put colour photographs (JPEG, PNG, TIFF, WebP) in it');
   }
