@@ -12,6 +12,7 @@ import { graphModelToOnnx, type GraphModelJson } from '../src/model/onnx-graph.j
 import { networkToOnnx } from '../src/model/onnx-network.js';
 import { onnxRuntimeVersion } from '../src/model/onnx-runtime.js';
 import { predict, type Prediction } from '../src/model/predict.js';
+import { loadRepairModel, networkPlanes } from '../src/repair/index.js';
 import type { KinhueModel } from '../src/model/storage.js';
 import { loadShippedModel } from './helpers/shipped-model.js';
 
@@ -124,6 +125,17 @@ describe('the export follows the network definition', () => {
     const { native, tfjs } = await both(() => predict(network, L, WIDTH, HEIGHT, { features }));
     expectSamePrediction(native, tfjs, true);
     network.dispose();
+  });
+
+  it('the shipped repair network gives the damage probability and the undamaged L* TensorFlow.js gives', async () => {
+    const model = await loadRepairModel('models/kinhue-repair');
+    const L = await photoLightness();
+    // Every other 32-pixel block, so the runtime sees the batched tiles restore gives it.
+    const blocks = Array.from({ length: Math.ceil(WIDTH / 32) * Math.ceil(HEIGHT / 32) }, (_, i) => i).filter((i) => i % 2 === 0);
+    const { native, tfjs } = await both(() => networkPlanes(L, WIDTH, HEIGHT, model, blocks));
+    expect(maxDifference(native.probability, tfjs.probability)).toBeLessThan(1e-4);
+    expect(maxDifference(native.lightness, tfjs.lightness)).toBeLessThan(0.01);
+    model.network.dispose();
   });
 
   it('a network built otherwise (5 x 5 and strided valid convolutions, a linear layer, upsampling by 3) gives the same logits', async () => {

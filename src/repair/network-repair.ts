@@ -4,6 +4,7 @@
  * nothing, and it decides there which pixels are damage and what lay under them.
  */
 import * as tf from '@tensorflow/tfjs';
+import { runNetwork } from '../model/native-inference.js';
 import { DETECTOR_SETTINGS, detectDamage, type DetectorSettings } from './detector.js';
 import { dilateMask } from './morphology.js';
 import { toRepairInput } from './network.js';
@@ -102,7 +103,11 @@ export function networkPlanes(
         for (let tx = 0; tx < TILE; tx++) input[(k * TILE + ty) * TILE + tx] = toRepairInput(L[y * w + reflect(x0 + tx, w)]!);
       }
     });
-    const out = tf.tidy(() => (model.network.predict(tf.tensor4d(input, [chunk.length, TILE, TILE, 1])) as tf.Tensor).dataSync());
+    // On the runtime restore chose (ONNX Runtime when it loads). Read outside tf.tidy: tidy walks what it
+    // returns looking for tensors, a typed array index by index.
+    const result = tf.tidy(() => runNetwork(model.network, tf.tensor4d(input, [chunk.length, TILE, TILE, 1])));
+    const out = result.dataSync();
+    result.dispose();
     chunk.forEach((b, k) => {
       const x0 = (b % bw) * BLOCK;
       const y0 = Math.floor(b / bw) * BLOCK;
