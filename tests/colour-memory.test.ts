@@ -7,6 +7,7 @@ import sharp from 'sharp';
 import { afterAll, beforeAll, describe, expect, it } from 'vitest';
 import { memoryGuide, type ModelMemory } from '../src/batch/index.js';
 import { labToSrgb, srgbToLab } from '../src/colour/index.js';
+import { seededUniform } from '../src/random.js';
 import { abBins, createNetwork, initBackend, predict, recallColours, rememberCells, type ColourMemory } from '../src/model/index.js';
 import { writeSkyGrassPhotos } from './helpers/sky-grass-photos.js';
 import { saveUntrainedModel } from './helpers/untrained-model.js';
@@ -69,6 +70,36 @@ describe('recallColours', () => {
     expect(out.b[0]).toBeCloseTo(0, 3);
     // Agreement 1 / (1 + (spread / 40)^2) = 0.5 at a spread of 40 (the setting's definition).
     expect(out.weight[0]).toBeCloseTo(0.5, 3);
+  });
+
+  it('recalls the same on ONNX Runtime as on TensorFlow.js', async () => {
+    // Random features (ties between neighbours all but impossible): float32 sums in another order differ
+    // by about 1e-6, far below the tolerances (ours) that a visible colour difference would need.
+    const next = seededUniform(7);
+    const random = (n: number) => Float32Array.from({ length: n }, () => next() * 2 - 1);
+    const cells = 600;
+    const memory = rememberCells([
+      { features: random(cells * 8), dims: 8, a: random(cells).map((v) => 60 * v), b: random(cells).map((v) => 60 * v) },
+    ]);
+    const query = random(1500 * 8);
+    // A low match floor, so that most cells get a weight to compare.
+    const settings = { matchFloor: 0.2, matchFull: 0.9 };
+    try {
+      expect((await initBackend({ prefer: 'onnxruntime' })).model).toBe('onnxruntime');
+      const native = recallColours(memory, query, settings);
+      expect((await initBackend({ prefer: 'wasm' })).model).toBe('wasm');
+      const tfjs = recallColours(memory, query, settings);
+      let weighted = 0;
+      for (let i = 0; i < 1500; i++) {
+        expect(Math.abs(native.a[i]! - tfjs.a[i]!)).toBeLessThan(1e-3);
+        expect(Math.abs(native.b[i]! - tfjs.b[i]!)).toBeLessThan(1e-3);
+        expect(Math.abs(native.weight[i]! - tfjs.weight[i]!)).toBeLessThan(1e-4);
+        if (tfjs.weight[i]! > 0) weighted++;
+      }
+      expect(weighted).toBeGreaterThan(500);
+    } finally {
+      await initBackend();
+    }
   });
 
   it('keeps up to the asked number of cells per photo, the same ones on every run', () => {

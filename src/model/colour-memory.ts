@@ -8,6 +8,7 @@
  */
 import * as tf from '@tensorflow/tfjs';
 import { seededUniform } from '../random.js';
+import { onnxInference, runNearest } from './native-inference.js';
 
 /** The remembered cells: unit-length features with their colour. */
 export interface ColourMemory {
@@ -135,30 +136,47 @@ export function recallColours(memory: ColourMemory, features: Float32Array, sett
   if (count === 0 || cells === 0) return out;
   const k = Math.min(s.neighbours, count);
   const query = normaliseRows(Float32Array.from(features), dims);
-  const remembered = tf.tensor2d(memory.features, [count, dims]);
+  const search = nearestSearch(memory, k);
   try {
     for (let start = 0; start < cells; start += CHUNK) {
       const rows = Math.min(CHUNK, cells - start);
-      const found = tf.tidy(() => {
-        const q = tf.tensor2d(query.subarray(start * dims, (start + rows) * dims), [rows, dims]);
-        return tf.topk(tf.matMul(q, remembered, false, true), k);
-      });
-      const similarity = found.values.dataSync() as Float32Array;
-      const index = found.indices.dataSync() as Int32Array;
-      tf.dispose([found.values, found.indices]);
+      const { similarity, index } = search.run(query.subarray(start * dims, (start + rows) * dims), rows);
       for (let r = 0; r < rows; r++) blendNeighbours(memory, similarity, index, r * k, k, s, out, start + r);
     }
   } finally {
-    remembered.dispose();
+    search.dispose();
   }
   return out;
+}
+
+/** The k nearest remembered cells of a chunk of query rows: their similarities (descending) and row numbers. */
+interface NearestSearch {
+  run(query: Float32Array, rows: number): { similarity: Float32Array; index: ArrayLike<number> };
+  dispose(): void;
+}
+
+/** The search on the chosen runtime: ONNX Runtime when restore runs the network there, else TensorFlow.js. */
+function nearestSearch(memory: ColourMemory, k: number): NearestSearch {
+  const { dims, features } = memory;
+  if (onnxInference()) return { run: (query, rows) => runNearest(features, dims, query, rows, k), dispose: () => undefined };
+  const remembered = tf.tensor2d(features, [features.length / dims, dims]);
+  return {
+    run(query, rows) {
+      const found = tf.tidy(() => tf.topk(tf.matMul(tf.tensor2d(query, [rows, dims]), remembered, false, true), k));
+      const similarity = found.values.dataSync() as Float32Array;
+      const index = found.indices.dataSync() as Int32Array;
+      tf.dispose([found.values, found.indices]);
+      return { similarity, index };
+    },
+    dispose: () => remembered.dispose(),
+  };
 }
 
 /** One cell's colour from its k neighbours (similarities in descending order from `at`). */
 function blendNeighbours(
   memory: ColourMemory,
   similarity: Float32Array,
-  index: Int32Array,
+  index: ArrayLike<number>,
   at: number,
   k: number,
   s: RecallSettings,

@@ -11,6 +11,7 @@ import type { AbBins } from './bins.js';
 import { type DecodingSpec, decodingToOnnx, softmaxToOnnx } from './onnx-decoding.js';
 import { graphModelToOnnx, type GraphModelJson } from './onnx-graph.js';
 import { networkToOnnx } from './onnx-network.js';
+import { nearestToOnnx } from './onnx-nearest.js';
 import { OnnxSession, type RuntimeOutput } from './onnx-runtime.js';
 
 let onnxRuntime = false;
@@ -160,4 +161,31 @@ export function runSoftmax(logits: Float32Array, pixels: number, q: number): Flo
     softmaxes.set(q, session);
   }
   return session.run({ logits: { data: logits, dims: [pixels, q] } }, ['probabilities'])[0]!.data;
+}
+
+/** Memory-search sessions by the remembered features and the number of neighbours. */
+const searches = new WeakMap<Float32Array, Map<number, OnnxSession>>();
+
+/**
+ * The `k` remembered rows most similar (by dot product) to each of `rows` query rows, on ONNX Runtime:
+ * their similarities in descending order and their row numbers, [rows, k] each.
+ * @example
+ * const { similarity, index } = runNearest(memory.features, memory.dims, query, rows, 16);
+ */
+export function runNearest(
+  remembered: Float32Array,
+  dims: number,
+  query: Float32Array,
+  rows: number,
+  k: number,
+): { similarity: Float32Array; index: Float32Array } {
+  let byK = searches.get(remembered);
+  if (!byK) searches.set(remembered, (byK = new Map()));
+  let session = byK.get(k);
+  if (!session) {
+    session = new OnnxSession(nearestToOnnx(remembered, remembered.length / dims, dims, k));
+    byK.set(k, session);
+  }
+  const [similarity, index] = session.run({ query: { data: query, dims: [rows, dims] } }, ['similarity', 'index']);
+  return { similarity: similarity!.data, index: index!.data };
 }
