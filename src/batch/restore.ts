@@ -5,6 +5,7 @@
  * run goes on; a stop request lets files in progress finish and starts no new one.
  */
 import { mkdir } from 'node:fs/promises';
+import { availableParallelism } from 'node:os';
 import { basename, dirname } from 'node:path';
 import pLimit from 'p-limit';
 import { ErrorCodes, isKinhueError, UsageError } from '../errors.js';
@@ -128,7 +129,11 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     return summary;
   }
 
-  const pool = new WorkerPool(Math.min(plan.jobs, todo.length), { modelDir: plan.model.dir });
+  const workers = Math.min(plan.jobs, todo.length);
+  const pool = new WorkerPool(workers, {
+    modelDir: plan.model.dir,
+    onnxThreads: Math.max(1, Math.floor(availableParallelism() / workers)),
+  });
   const limit = pLimit(Math.min(plan.jobs, todo.length));
   let stopping = false;
   let hard = false;

@@ -9,6 +9,8 @@ export { reviveError, serialiseError, type SerialisedError } from '../errors.js'
 
 export interface WorkerInit {
   modelDir: string;
+  /** Threads each ONNX Runtime operation may use in this worker: its share of the cores. */
+  onnxThreads: number;
 }
 
 export type ToWorker = { type: 'job'; id: number; job: FileJob };

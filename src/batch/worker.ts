@@ -4,6 +4,7 @@
  */
 import { parentPort, workerData } from 'node:worker_threads';
 import { initBackend, loadFaceFinder, loadModel, type FaceFinder, type KinhueModel } from '../model/index.js';
+import { setOnnxThreads } from '../model/onnx-runtime.js';
 import { restoreFile } from './stages/pipeline.js';
 import { serialiseError, type FromWorker, type ToWorker, type WorkerInit } from './worker-protocol.js';
 
@@ -16,6 +17,7 @@ async function start(): Promise<void> {
   let model: KinhueModel;
   let backend: string;
   try {
+    setOnnxThreads(init.onnxThreads);
     const info = await initBackend();
     backend = info.model;
     model = await loadModel(init.modelDir);

@@ -28,6 +28,19 @@ interface Runtime {
 
 let runtime: Runtime | null | undefined;
 
+/** Threads for one operation of a new session: every core, unless a restore worker shares them (setOnnxThreads). */
+let sessionThreads = availableParallelism();
+
+/**
+ * Sets the threads new sessions use for one operation. Restore's workers each take their share of the
+ * cores: with more threads than cores in all, they wait on each other and spend more CPU time per scan.
+ * @example
+ * setOnnxThreads(Math.max(1, Math.floor(availableParallelism() / jobs)));
+ */
+export function setOnnxThreads(threads: number): void {
+  sessionThreads = Math.max(1, Math.floor(threads));
+}
+
 /** The package's binding, or null when it is absent or does not load on this machine. */
 function loadRuntime(): Runtime | null {
   if (runtime !== undefined) return runtime;
@@ -59,10 +72,10 @@ export class OnnxSession {
 
   /**
    * @param bytes an ONNX model file's bytes
-   * @param threads threads for one operation; default all cores (a busy-waiting pool would steal the
-   *   cores from restore's other workers, so idle threads sleep)
+   * @param threads threads for one operation; default all cores or setOnnxThreads' number (a busy-waiting
+   *   pool would steal the cores from restore's other workers, so idle threads sleep)
    */
-  constructor(bytes: Uint8Array, threads = availableParallelism()) {
+  constructor(bytes: Uint8Array, threads = sessionThreads) {
     const ort = loadRuntime();
     if (!ort) throw new Error('onnxruntime-node is not installed or does not load on this machine');
     this.runtime = ort;
