@@ -134,7 +134,7 @@ export async function restore(options: RestoreOptions, onEvent: (event: RestoreE
     modelDir: plan.model.dir,
     onnxThreads: Math.max(1, Math.floor(availableParallelism() / workers)),
   });
-  const limit = pLimit(Math.min(plan.jobs, todo.length));
+  const limit = pLimit(workers);
   let stopping = false;
   let hard = false;
   let fatal: Error | undefined;
