@@ -15,6 +15,9 @@ import {
   softScene,
   squareFilter,
 } from '../src/repair/index.js';
+import { onnxRuntimeVersion } from '../src/model/onnx-runtime.js';
+import { closing, opening } from '../src/repair/morphology.js';
+import { openingAndClosingOnRuntime } from '../src/repair/onnx-morphology.js';
 import { Random } from '../src/training/index.js';
 
 describe('damage generator', () => {
@@ -208,6 +211,25 @@ describe('morphology', () => {
       }
     }
   });
+
+  it.runIf(onnxRuntimeVersion() !== undefined)(
+    'the opening and closing on ONNX Runtime equal those in JavaScript bit for bit, edges included',
+    () => {
+      const rng = new Random(5);
+      // Planes narrower and shorter than the window, and a wide one, so windows reach past every edge.
+      for (const [w, h, r] of [
+        [41, 29, 5],
+        [7, 4, 5],
+        [1, 12, 2],
+        [300, 3, 4],
+      ] as const) {
+        const src = Float32Array.from({ length: w * h }, () => 100 * rng.next());
+        const { open, close } = openingAndClosingOnRuntime(src, w, h, r);
+        expect(Array.from(open)).toEqual(Array.from(opening(src, w, h, r)));
+        expect(Array.from(close)).toEqual(Array.from(closing(src, w, h, r)));
+      }
+    },
+  );
 });
 
 function transpose(mask: Uint8Array, n: number): Uint8Array {
