@@ -12,7 +12,7 @@ import { type DecodingSpec, decodingToOnnx, softmaxToOnnx } from './onnx-decodin
 import { graphModelToOnnx, type GraphModelJson } from './onnx-graph.js';
 import { networkToOnnx } from './onnx-network.js';
 import { nearestToOnnx } from './onnx-nearest.js';
-import { OnnxSession, type RuntimeOutput } from './onnx-runtime.js';
+import { keptSession, OnnxSession, type RuntimeOutput } from './onnx-runtime.js';
 
 let onnxRuntime = false;
 
@@ -155,12 +155,7 @@ const softmaxes = new Map<number, OnnxSession>();
  * const probabilities = runSoftmax(logits, pixels, 262);
  */
 export function runSoftmax(logits: Float32Array, pixels: number, q: number): Float32Array {
-  let session = softmaxes.get(q);
-  if (!session) {
-    session = new OnnxSession(softmaxToOnnx(q));
-    softmaxes.set(q, session);
-  }
-  return session.run({ logits: { data: logits, dims: [pixels, q] } }, ['probabilities'])[0]!.data;
+  return keptSession(softmaxes, q, () => softmaxToOnnx(q)).run({ logits: { data: logits, dims: [pixels, q] } }, ['probabilities'])[0]!.data;
 }
 
 /** Memory-search sessions by the remembered features and the number of neighbours. */
@@ -181,11 +176,7 @@ export function runNearest(
 ): { similarity: Float32Array; index: Float32Array } {
   let byK = searches.get(remembered);
   if (!byK) searches.set(remembered, (byK = new Map()));
-  let session = byK.get(k);
-  if (!session) {
-    session = new OnnxSession(nearestToOnnx(remembered, remembered.length / dims, dims, k));
-    byK.set(k, session);
-  }
+  const session = keptSession(byK, k, () => nearestToOnnx(remembered, remembered.length / dims, dims, k));
   const [similarity, index] = session.run({ query: { data: query, dims: [rows, dims] } }, ['similarity', 'index']);
   return { similarity: similarity!.data, index: index!.data };
 }

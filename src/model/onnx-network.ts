@@ -5,7 +5,7 @@
  * Inputs and output keep TensorFlow.js's channels-last layout; inside, the graph runs channels-first, the
  * layout ONNX convolutions take.
  */
-import * as tf from '@tensorflow/tfjs';
+import type * as tf from '@tensorflow/tfjs';
 import { encodeOnnxModel, type OnnxGraph, type OnnxNode, type OnnxTensor } from './onnx-file.js';
 
 /** Channels-last to channels-first and back. */

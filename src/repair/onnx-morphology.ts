@@ -7,7 +7,7 @@
  * values equal morphology.ts's bit for bit (tests/repair).
  */
 import { encodeOnnxModel, type OnnxNode } from '../model/onnx-file.js';
-import { OnnxSession } from '../model/onnx-runtime.js';
+import { keptSession, type OnnxSession } from '../model/onnx-runtime.js';
 
 /** Sessions by radius. */
 const sessions = new Map<number, OnnxSession>();
@@ -53,8 +53,7 @@ export function openingAndClosingOnRuntime(
   h: number,
   r: number,
 ): { open: Float32Array; close: Float32Array } {
-  let session = sessions.get(r);
-  if (!session) sessions.set(r, (session = new OnnxSession(morphologyToOnnx(r))));
+  const session = keptSession(sessions, r, () => morphologyToOnnx(r));
   const [open, close] = session.run({ plane: { data: src, dims: [1, 1, h, w] } }, ['opening', 'closing']);
   return { open: open!.data, close: close!.data };
 }
