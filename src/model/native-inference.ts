@@ -12,7 +12,7 @@ import { type DecodingSpec, decodingToOnnx, softmaxToOnnx } from './onnx-decodin
 import { graphModelToOnnx, type GraphModelJson } from './onnx-graph.js';
 import { networkToOnnx } from './onnx-network.js';
 import { nearestToOnnx } from './onnx-nearest.js';
-import { keptSession, OnnxSession, type RuntimeOutput } from './onnx-runtime.js';
+import { OnnxSession, type RuntimeOutput } from './onnx-runtime.js';
 
 let onnxRuntime = false;
 
@@ -38,6 +38,25 @@ const networks = new WeakMap<tf.LayersModel, NetworkSession>();
 const graphs = new WeakMap<tf.GraphModel, { session: OnnxSession; input: string; outputs: string }>();
 
 const RUN_ON_TFJS = "set KINHUE_BACKEND=wasm to run it on TensorFlow.js, and report the model to kinhue's maintainers";
+
+/**
+ * The session kept under `key`, made from `model()`'s bytes the first time: graphs built from a few settings
+ * (bins and weights, a radius) are built and loaded once. One ONNX Runtime cannot load is a ModelError that
+ * names `what` and the way back to TensorFlow.js.
+ * @example
+ * const session = keptRuntimeSession(softmaxes, 262, 'the softmax', () => softmaxToOnnx(262));
+ */
+export function keptRuntimeSession<K>(kept: Map<K, OnnxSession>, key: K, what: string, model: () => Uint8Array): OnnxSession {
+  let session = kept.get(key);
+  if (session) return session;
+  try {
+    session = new OnnxSession(model());
+  } catch (error) {
+    throw new ModelError(`${what} cannot run on ONNX Runtime: ${(error as Error).message}`, { hint: RUN_ON_TFJS, cause: error });
+  }
+  kept.set(key, session);
+  return session;
+}
 
 function networkSession(network: tf.LayersModel): NetworkSession {
   const weights = network.weights.map((w) => w.read().dataId);
@@ -98,15 +117,7 @@ export function runDecoding(scores: Float32Array, pixels: number, spec: Decoding
   let byKey = decodings.get(spec.bins);
   if (!byKey) decodings.set(spec.bins, (byKey = new Map()));
   const key = [spec.decoding, spec.input, spec.temperature, spec.confidenceTemperature, Array.from(spec.classWeights).join(',')].join('|');
-  let session = byKey.get(key);
-  if (!session) {
-    try {
-      session = new OnnxSession(decodingToOnnx(spec));
-    } catch (error) {
-      throw new ModelError(`the decoding cannot run on ONNX Runtime: ${(error as Error).message}`, { hint: RUN_ON_TFJS, cause: error });
-    }
-    byKey.set(key, session);
-  }
+  const session = keptRuntimeSession(byKey, key, 'the decoding', () => decodingToOnnx(spec));
   const [colour, confidence] = session.run({ scores: { data: scores, dims: [pixels, spec.bins.count] } }, ['colour', 'confidence']);
   return { colour: colour!.data, confidence: confidence!.data };
 }
@@ -155,7 +166,9 @@ const softmaxes = new Map<number, OnnxSession>();
  * const probabilities = runSoftmax(logits, pixels, 262);
  */
 export function runSoftmax(logits: Float32Array, pixels: number, q: number): Float32Array {
-  return keptSession(softmaxes, q, () => softmaxToOnnx(q)).run({ logits: { data: logits, dims: [pixels, q] } }, ['probabilities'])[0]!.data;
+  return keptRuntimeSession(softmaxes, q, 'the softmax', () => softmaxToOnnx(q)).run({ logits: { data: logits, dims: [pixels, q] } }, [
+    'probabilities',
+  ])[0]!.data;
 }
 
 /** Memory-search sessions by the remembered features and the number of neighbours. */
@@ -176,7 +189,9 @@ export function runNearest(
 ): { similarity: Float32Array; index: Float32Array } {
   let byK = searches.get(remembered);
   if (!byK) searches.set(remembered, (byK = new Map()));
-  const session = keptSession(byK, k, () => nearestToOnnx(remembered, remembered.length / dims, dims, k));
+  const session = keptRuntimeSession(byK, k, "the colour memory's search", () =>
+    nearestToOnnx(remembered, remembered.length / dims, dims, k),
+  );
   const [similarity, index] = session.run({ query: { data: query, dims: [rows, dims] } }, ['similarity', 'index']);
   return { similarity: similarity!.data, index: index!.data };
 }

@@ -109,18 +109,6 @@ export class OnnxSession {
 }
 
 /**
- * The session kept under `key`, made from `model()`'s bytes the first time: graphs built from a few
- * settings (a radius, a number of bins) are built and loaded once.
- * @example
- * const session = keptSession(softmaxes, 262, () => softmaxToOnnx(262));
- */
-export function keptSession<K>(kept: Map<K, OnnxSession>, key: K, model: () => Uint8Array): OnnxSession {
-  let session = kept.get(key);
-  if (!session) kept.set(key, (session = new OnnxSession(model())));
-  return session;
-}
-
-/**
  * Whether ONNX Runtime loads and runs here: one tiny model (a ReLU) through the same path predict takes.
  * Returns its version, or undefined.
  * @example

@@ -7,9 +7,8 @@
  * more than a plain sky; the mask then grows from the seeds into weaker response of the same sign
  * (hysteresis, Canny 1986) to take in soft edges, and by one pixel.
  */
-import { onnxInference } from '../model/native-inference.js';
-import { boxMean, closing, dilateMask, opening } from './morphology.js';
-import { openingAndClosingOnRuntime } from './onnx-morphology.js';
+import { boxMean, dilateMask } from './morphology.js';
+import { openingAndClosing } from './onnx-morphology.js';
 
 export interface DetectorSettings {
   /** Half the top-hat window: details up to about 2 * radius pixels across are found. */
@@ -70,9 +69,7 @@ export function detectDamage(L: Float32Array, w: number, h: number, settings: De
   // Grain decides the top-hat of a plain area (the window's extreme grain): a 3 x 3 mean first cuts
   // it to a third, while a speck or hair a pixel or more across keeps most of its contrast.
   const smooth = boxMean(L, w, h, 1);
-  const { open, close } = onnxInference()
-    ? openingAndClosingOnRuntime(smooth, w, h, settings.radius)
-    : { open: opening(smooth, w, h, settings.radius), close: closing(smooth, w, h, settings.radius) };
+  const { open, close } = openingAndClosing(smooth, w, h, settings.radius);
   const response = new Float32Array(n);
   const strength = new Float32Array(n);
   for (let i = 0; i < n; i++) {

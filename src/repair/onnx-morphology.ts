@@ -7,7 +7,9 @@
  * values equal morphology.ts's bit for bit (tests/repair).
  */
 import { encodeOnnxModel, type OnnxNode } from '../model/onnx-file.js';
-import { keptSession, type OnnxSession } from '../model/onnx-runtime.js';
+import { keptRuntimeSession, onnxInference } from '../model/native-inference.js';
+import type { OnnxSession } from '../model/onnx-runtime.js';
+import { closing, opening } from './morphology.js';
 
 /** Sessions by radius. */
 const sessions = new Map<number, OnnxSession>();
@@ -43,7 +45,18 @@ function morphologyToOnnx(r: number): Uint8Array {
 }
 
 /**
- * Opening and closing of a plane over a (2r+1)-pixel square, on ONNX Runtime.
+ * Opening and closing of a plane over a (2r+1)-pixel square, on the runtime the networks run on: ONNX
+ * Runtime when it was chosen, else morphology.ts.
+ * @example
+ * const { open, close } = openingAndClosing(smooth, w, h, 5);
+ */
+export function openingAndClosing(src: Float32Array, w: number, h: number, r: number): { open: Float32Array; close: Float32Array } {
+  if (!onnxInference()) return { open: opening(src, w, h, r), close: closing(src, w, h, r) };
+  return openingAndClosingOnRuntime(src, w, h, r);
+}
+
+/**
+ * Opening and closing of a plane over a (2r+1)-pixel square, on ONNX Runtime whether or not it was chosen.
  * @example
  * const { open, close } = openingAndClosingOnRuntime(smooth, w, h, 5);
  */
@@ -53,7 +66,7 @@ export function openingAndClosingOnRuntime(
   h: number,
   r: number,
 ): { open: Float32Array; close: Float32Array } {
-  const session = keptSession(sessions, r, () => morphologyToOnnx(r));
+  const session = keptRuntimeSession(sessions, r, "the damage detector's filters", () => morphologyToOnnx(r));
   const [open, close] = session.run({ plane: { data: src, dims: [1, 1, h, w] } }, ['opening', 'closing']);
   return { open: open!.data, close: close!.data };
 }
