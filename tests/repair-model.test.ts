@@ -123,4 +123,34 @@ describe('the shipped repair model (models/kinhue-repair)', () => {
     const [chosen, other] = model.meta.fill === 'network' ? [networkError, medianError] : [medianError, networkError];
     expect(psnrOf(chosen)).toBeGreaterThan(psnrOf(other) - 1);
   }, 600_000);
+
+  it('gives a block the same planes whether it is run alone or in a tile of its whole group (up to float rounding)', async () => {
+    const model = await loadRepairModel();
+    // 7 x 5 blocks of 32 px, the last ones cut by the edge: the first 4 x 4 group is run as one tile.
+    const w = 210;
+    const h = 150;
+    const d = drawDamage(softScene(w, h), w, h, new Random(41), { perMegapixel: 400 });
+    const whole = networkPlanes(d.L, w, h, model);
+    let largest = { probability: 0, lightness: 0 };
+    for (let b = 0; b < 35; b++) {
+      const alone = networkPlanes(d.L, w, h, model, [b]);
+      const x0 = (b % 7) * 32;
+      const y0 = Math.floor(b / 7) * 32;
+      for (let y = y0; y < Math.min(h, y0 + 32); y++) {
+        for (let x = x0; x < Math.min(w, x0 + 32); x++) {
+          const i = y * w + x;
+          largest = {
+            probability: Math.max(largest.probability, Math.abs(alone.probability[i]! - whole.probability[i]!)),
+            lightness: Math.max(largest.lightness, Math.abs(alone.lightness[i]! - whole.lightness[i]!)),
+          };
+        }
+      }
+    }
+    expect(largest.probability).toBeLessThan(1e-4);
+    expect(largest.lightness).toBeLessThan(1e-3);
+    // Blocks not asked for keep the input's L* and no damage.
+    const one = networkPlanes(d.L, w, h, model, [0]);
+    expect(one.probability[40 * w + 100]).toBe(0);
+    expect(one.lightness[40 * w + 100]).toBe(d.L[40 * w + 100]);
+  });
 });

@@ -166,6 +166,42 @@ describe('fit: resume', () => {
     expect(summary.heldOut.grey.ciede2000).toBeGreaterThan(0);
   });
 
+  it('--average-over saves the running average of the weights, which a resumed run continues bit for bit', async () => {
+    const photos = join(dir, 'scenes');
+    await writeScenes(photos, 8, 11);
+    const base = { ...TINY, photos: [photos], seed: 3, learningRate: 3e-3 };
+    const last = await fit({ ...base, out: join(dir, 'avg-last'), steps: 4 });
+    const averaged = await fit({ ...base, out: join(dir, 'avg-whole'), steps: 4, averageOver: 3 });
+    await fit({ ...base, out: join(dir, 'avg-split'), steps: 2, averageOver: 3 });
+    const resumed = await fit({ ...base, out: join(dir, 'avg-split'), steps: 4, resume: true });
+    expect(resumed.options.averageOver).toBe(3);
+    expect(last.options.averageOver).toBe(0);
+
+    // The optimiser's own weights are those of the run without averaging: averaging only reads them.
+    const plain = await weightsOf(join(dir, 'avg-last'));
+    const whole = await weightsOf(join(dir, 'avg-whole'));
+    const split = await weightsOf(join(dir, 'avg-split'));
+    whole.weights.forEach((w, i) => expect(Buffer.from(w.buffer).equals(Buffer.from(plain.weights[i]!.buffer))).toBe(true));
+    split.weights.forEach((w, i) => expect(Buffer.from(w.buffer).equals(Buffer.from(whole.weights[i]!.buffer))).toBe(true));
+    const saved = async (name: string) => {
+      const model = await loadModel(join(dir, name));
+      const values = model.network.getWeights().map((w) => w.dataSync() as Float32Array);
+      model.network.dispose();
+      return values;
+    };
+    const [savedLast, savedWhole, savedSplit] = [await saved('avg-last'), await saved('avg-whole'), await saved('avg-split')];
+    savedSplit.forEach((w, i) => expect(Buffer.from(w.buffer).equals(Buffer.from(savedWhole[i]!.buffer))).toBe(true));
+    // The saved model is the checkpoint's average of 4 steps, not the last weights (which the run without averaging saved).
+    const average = (
+      (await loadCheckpoint(join(dir, 'avg-whole', CHECKPOINT_FILE))) as { average: { values: Float32Array[]; updates: number } }
+    ).average;
+    expect(average.updates).toBe(4);
+    savedWhole.forEach((w, i) => expect(Buffer.from(w.buffer).equals(Buffer.from(average.values[i]!.buffer))).toBe(true));
+    savedLast.forEach((w, i) => expect(Buffer.from(w.buffer).equals(Buffer.from(whole.weights[i]!.buffer))).toBe(true));
+    expect(savedWhole.some((w, i) => !Buffer.from(w.buffer).equals(Buffer.from(savedLast[i]!.buffer)))).toBe(true);
+    expect(averaged.heldOut.after.ciede2000).toBeGreaterThan(0);
+  });
+
   it('a learning rate given on resume applies from the next step and is recorded', async () => {
     const photos = join(dir, 'scenes');
     const base = { ...TINY, photos: [photos], seed: 3, learningRate: 3e-3, evalEvery: 100 };
@@ -465,7 +501,7 @@ describe('fit: honest tuning', () => {
     expect(Math.abs(rebalanced.heldOut.after.ciede2000 - rebalanced.heldOut.before.ciede2000)).toBeLessThan(1e-4);
   }, 180_000);
 
-  it('a checkpoint from before the validation split resumes with the same photos and order, choosing on the held-out photos', async () => {
+  it('a checkpoint from before the validation split resumes with the same photos and order, choosing nothing on the held-out photos', async () => {
     const photos = join(dir, 'scenes');
     // validation 0 is how those runs split their photos; their checkpoints record no validation at all.
     const base = { ...TINY, photos: [photos], seed: 3, learningRate: 3e-3, validation: 0 };
@@ -480,9 +516,26 @@ describe('fit: honest tuning', () => {
     const events: FitEvent[] = [];
     const resumed = await fit({ ...TINY, photos: [photos], out, steps: 4, resume: true }, (e) => events.push(e));
     expect(resumed.photos.validation).toBe(0);
-    expect(events.some((e) => e.type === 'note' && /chooses its steps on the held-out photos/.test(e.message))).toBe(true);
+    // A train run keeps its last weights and never stops early: the held-out photos choose nothing.
+    expect(events.some((e) => e.type === 'note' && /nothing is chosen on them/.test(e.message))).toBe(true);
     const whole = await weightsOf(join(dir, 'old-whole'));
     const split = await weightsOf(out);
     whole.weights.forEach((w, i) => expect(Buffer.from(split.weights[i]!.buffer).equals(Buffer.from(w.buffer))).toBe(true));
+  });
+
+  it('--validation 0 trains on every photo not held out, and is refused where a step would be chosen', async () => {
+    const photos = join(dir, 'scenes');
+    const base = { ...TINY, photos: [photos], seed: 3, learningRate: 3e-3, validation: 0 };
+    const none = await fit({ ...base, out: join(dir, 'no-validation'), steps: 2 });
+    const split = await fit({ ...base, validation: 0.25, out: join(dir, 'with-validation'), steps: 2 });
+    expect(none.photos.validation).toBe(0);
+    expect(none.photos.train).toBe(split.photos.train + split.photos.validation);
+    expect(none.photos.holdout).toBe(split.photos.holdout);
+    await expect(fit({ ...base, out: join(dir, 'no-validation-patience'), steps: 2, patience: 3 })).rejects.toMatchObject({
+      message: expect.stringMatching(/--validation 0 leaves no photos to choose/),
+    });
+    await expect(
+      fit({ ...base, mode: 'tune', from: DEFAULT_MODEL_DIR, out: join(dir, 'no-validation-tune'), steps: 2 }),
+    ).rejects.toMatchObject({ message: expect.stringMatching(/--validation 0 leaves no photos to choose/) });
   });
 });

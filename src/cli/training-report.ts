@@ -114,6 +114,8 @@ export async function runWithProgress(options: Omit<FitOptions, 'signal'>): Prom
     controller.abort();
     release();
   });
+  /** The photos evaluated along the way: the held-out ones in a run without validation photos. */
+  let evaluated = 'validation';
   const onEvent = (event: FitEvent): void => {
     switch (event.type) {
       case 'reading':
@@ -135,6 +137,7 @@ export async function runWithProgress(options: Omit<FitOptions, 'signal'>): Prom
             (event.unreadable.length ? `; ${event.unreadable.length} unreadable skipped` : ''),
         );
         for (const u of event.unreadable) progress.log(`  skipped ${u.file}: ${u.reason}`);
+        evaluated = event.validation ? 'validation' : 'held-out';
         break;
       case 'resumed':
         progress.log(`resuming at step ${event.step} (${formatDuration(event.seconds)} trained so far)`);
@@ -149,7 +152,7 @@ export async function runWithProgress(options: Omit<FitOptions, 'signal'>): Prom
         break;
       case 'baseline':
         progress.log(
-          `at start, on the ${event.validation.start.photos} validation photos: CIEDE2000 grey ${event.validation.grey.ciede2000.toFixed(2)}, ` +
+          `at start, on the ${event.validation.start.photos} ${evaluated} photos: CIEDE2000 grey ${event.validation.grey.ciede2000.toFixed(2)}, ` +
             `model ${event.validation.start.ciede2000.toFixed(2)} (${hueFigures(event.validation.start)})`,
         );
         break;
@@ -157,14 +160,14 @@ export async function runWithProgress(options: Omit<FitOptions, 'signal'>): Prom
         progress.update(
           event.fraction,
           `step ${event.step}  loss ${event.loss.toFixed(3)}` +
-            (event.last ? `  validation CIEDE2000 ${atStep(event.last)}` : '') +
+            (event.last ? `  ${evaluated} CIEDE2000 ${atStep(event.last)}` : '') +
             (event.best ? `  best ${atStep(event.best)}` : '') +
             `  ${formatDuration(event.secondsLeft)} left`,
         );
         break;
       case 'evaluation':
         progress.log(
-          `step ${event.step}: ${event.loss === null ? '' : `loss ${event.loss.toFixed(3)}, `}validation CIEDE2000 ${event.evaluation.ciede2000.toFixed(2)} ` +
+          `step ${event.step}: ${event.loss === null ? '' : `loss ${event.loss.toFixed(3)}, `}${evaluated} CIEDE2000 ${event.evaluation.ciede2000.toFixed(2)} ` +
             `(${event.evaluation.photos} photos), PSNR ${event.evaluation.psnr.toFixed(2)} dB, colourfulness ${event.evaluation.colourfulness.toFixed(1)}, ${hueFigures(event.evaluation)}` +
             (event.best ? ' (best so far)' : `; best ${atStep(event.bestSoFar)}`),
         );
@@ -229,12 +232,17 @@ export function summaryTable(result: FitResult): string {
     `CIEDE2000 ${choiceFigures(validation.before)} at start, ` +
     `best ${atStep({ step: validation.bestStep, ...validation.best })} (grey ${validation.grey.ciede2000.toFixed(2)}; ` +
     `chosen by CIEDE2000 less right hue / ${RIGHT_HUE_PER_CIEDE2000})`;
+  const kept = result.options.averageOver
+    ? `the weights averaged over about ${result.options.averageOver} steps are kept (--average-over)`
+    : 'the last weights are kept';
   const chosen =
     result.photos.validation === 0
-      ? 'steps chosen on the held-out photos (a run from before the validation split): the figures below are not independent'
+      ? result.options.keep === 'best' || result.options.patience
+        ? 'steps chosen on the held-out photos (a run from before the validation split): the figures below are not independent'
+        : `no validation photos: the held-out photos were measured along the way and nothing was chosen on them; ${kept}`
       : result.options.keep === 'best'
         ? `steps chosen on ${result.photos.validation} validation photos: ${onValidation}`
-        : `on the ${result.photos.validation} validation photos: ${onValidation}; the last weights are kept`;
+        : `on the ${result.photos.validation} validation photos: ${onValidation}; ${kept}`;
   const checkpoint = result.checkpointKept
     ? `; checkpoint kept${result.stoppedBy === 'interrupted' ? ' for --resume' : ' (--keep-checkpoint)'}`
     : '; checkpoint removed (a finished run; --keep-checkpoint keeps it)';

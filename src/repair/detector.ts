@@ -81,10 +81,14 @@ export function detectDamage(L: Float32Array, w: number, h: number, settings: De
   }
   const noise = noiseSigma(L, w, h);
   const smoothNoise = noise / 3;
-  const activity = boxMean(strength, w, h, settings.activityRadius);
   const threshold = new Float32Array(n);
   const base = Math.max(settings.minContrast, settings.noiseFactor * smoothNoise);
-  for (let i = 0; i < n; i++) threshold[i] = Math.max(base, settings.activityFactor * activity[i]!);
+  if (settings.activityFactor > 0) {
+    const activity = boxMean(strength, w, h, settings.activityRadius);
+    for (let i = 0; i < n; i++) threshold[i] = Math.max(base, settings.activityFactor * activity[i]!);
+  } else {
+    threshold.fill(base);
+  }
   const growFloor = settings.growNoise * smoothNoise;
   const mask = new Uint8Array(n);
   const stack: number[] = [];

@@ -30,7 +30,7 @@ export function keepUnmasked<T extends Float32Array | Uint8Array | Uint16Array>(
  *   const filled = medianFill(L, width, height, mask);
  */
 export function medianFill(L: Float32Array, w: number, h: number, mask: Uint8Array, radius = 2): Float32Array {
-  const out = Float32Array.from(L);
+  const out = L.slice();
   const known = new Uint8Array(mask.length);
   let count = 0;
   for (let i = 0; i < mask.length; i++) {

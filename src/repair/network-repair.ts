@@ -13,7 +13,7 @@ import type { RepairModel } from './repair-model.js';
 const BLOCK = 32;
 const CONTEXT = 16;
 const TILE = BLOCK + 2 * CONTEXT;
-/** Tiles per call of the network: about 130 thousand pixels. */
+/** Block tiles per call of the network. */
 const CHUNK = 32;
 
 /** The candidate pass: faint details too (the network sorts them), texture not held against them. */
@@ -67,7 +67,7 @@ export function networkRepair(
   }
   const planes = networkPlanes(L, w, h, model, blocks);
   const mask = new Uint8Array(w * h);
-  const filled = Float32Array.from(L);
+  const filled = L.slice();
   for (let i = 0; i < mask.length; i++) {
     if (planes.probability[i]! > threshold && near[i]) {
       mask[i] = 1;
@@ -78,8 +78,54 @@ export function networkRepair(
 }
 
 /**
+ * Blocks per side of a group: where enough of a group's blocks hold candidates, one tile of the whole
+ * group (with the same context) costs less than a tile per block, since the context is paid once.
+ */
+const GROUP = 4;
+/** A group is run whole from this many of its blocks on: its tile's pixels against the blocks' tiles'. */
+const GROUP_FROM = Math.ceil(((GROUP * BLOCK + 2 * CONTEXT) / TILE) ** 2);
+/** Tile pixels per call of the network: about 130 thousand. */
+const CALL_PIXELS = CHUNK * TILE * TILE;
+
+/** A square of the plane the network runs on: its core (where its output is used) and the blocks written from it. */
+interface Tile {
+  x0: number;
+  y0: number;
+  /** Side of the core, in pixels; the tile adds CONTEXT on each side. */
+  core: number;
+  blocks: number[];
+}
+
+/**
+ * The tiles that cover the given blocks: a group's tile where GROUP_FROM or more of its blocks are given,
+ * else a tile per block. Every tile starts CONTEXT pixels before a multiple of BLOCK, so the network's
+ * strided layers see each pixel at the same phase whichever tile holds it.
+ */
+function tilesFor(blocks: readonly number[], bw: number): Tile[] {
+  const groups = new Map<number, number[]>();
+  const gw = Math.ceil(bw / GROUP);
+  for (const b of blocks) {
+    const g = Math.floor(Math.floor(b / bw) / GROUP) * gw + Math.floor((b % bw) / GROUP);
+    const members = groups.get(g);
+    if (members) members.push(b);
+    else groups.set(g, [b]);
+  }
+  const tiles: Tile[] = [];
+  for (const [g, members] of groups) {
+    if (members.length >= GROUP_FROM) {
+      tiles.push({ x0: (g % gw) * GROUP * BLOCK, y0: Math.floor(g / gw) * GROUP * BLOCK, core: GROUP * BLOCK, blocks: members });
+    } else {
+      for (const b of members) tiles.push({ x0: (b % bw) * BLOCK, y0: Math.floor(b / bw) * BLOCK, core: BLOCK, blocks: [b] });
+    }
+  }
+  return tiles;
+}
+
+/**
  * The network's damage probability and undamaged L* on the given 32-pixel blocks (numbered row by row;
- * all blocks when none are given). Outside them: probability 0 and the input's L*.
+ * all blocks when none are given). Outside them: probability 0 and the input's L*. Each block is worked
+ * with CONTEXT pixels around it, more than the network's reach, so which tile holds a block changes its
+ * values only by float rounding.
  */
 export function networkPlanes(
   L: Float32Array,
@@ -91,35 +137,42 @@ export function networkPlanes(
   const bw = Math.ceil(w / BLOCK);
   const list = blocks ?? Array.from({ length: bw * Math.ceil(h / BLOCK) }, (_, i) => i);
   const probability = new Float32Array(w * h);
-  const lightness = Float32Array.from(L);
-  for (let c = 0; c < list.length; c += CHUNK) {
-    const chunk = list.slice(c, c + CHUNK);
-    const input = new Float32Array(chunk.length * TILE * TILE);
-    chunk.forEach((b, k) => {
-      const x0 = (b % bw) * BLOCK - CONTEXT;
-      const y0 = Math.floor(b / bw) * BLOCK - CONTEXT;
-      for (let ty = 0; ty < TILE; ty++) {
-        const y = reflect(y0 + ty, h);
-        for (let tx = 0; tx < TILE; tx++) input[(k * TILE + ty) * TILE + tx] = toRepairInput(L[y * w + reflect(x0 + tx, w)]!);
-      }
-    });
-    // On the runtime restore chose (ONNX Runtime when it loads). Read outside tf.tidy: tidy walks what it
-    // returns looking for tensors, a typed array index by index.
-    const result = tf.tidy(() => runNetwork(model.network, tf.tensor4d(input, [chunk.length, TILE, TILE, 1])));
-    const out = result.dataSync();
-    result.dispose();
-    chunk.forEach((b, k) => {
-      const x0 = (b % bw) * BLOCK;
-      const y0 = Math.floor(b / bw) * BLOCK;
-      for (let y = y0; y < Math.min(h, y0 + BLOCK); y++) {
-        for (let x = x0; x < Math.min(w, x0 + BLOCK); x++) {
-          const i = y * w + x;
-          const o = ((k * TILE + y - y0 + CONTEXT) * TILE + x - x0 + CONTEXT) * 2;
-          probability[i] = 1 / (1 + Math.exp(-out[o]!));
-          lightness[i] = Math.min(100, Math.max(0, L[i]! + 100 * out[o + 1]!));
+  const lightness = L.slice();
+  const tiles = tilesFor(list, bw);
+  for (const core of [BLOCK, GROUP * BLOCK]) {
+    const side = core + 2 * CONTEXT;
+    const sized = tiles.filter((t) => t.core === core);
+    const perCall = Math.max(1, Math.floor(CALL_PIXELS / (side * side)));
+    for (let c = 0; c < sized.length; c += perCall) {
+      const chunk = sized.slice(c, c + perCall);
+      const input = new Float32Array(chunk.length * side * side);
+      chunk.forEach((tile, k) => {
+        for (let ty = 0; ty < side; ty++) {
+          const y = reflect(tile.y0 - CONTEXT + ty, h);
+          const row = (k * side + ty) * side;
+          for (let tx = 0; tx < side; tx++) input[row + tx] = toRepairInput(L[y * w + reflect(tile.x0 - CONTEXT + tx, w)]!);
         }
-      }
-    });
+      });
+      // On the runtime restore chose (ONNX Runtime when it loads). Read outside tf.tidy: tidy walks what it
+      // returns looking for tensors, a typed array index by index.
+      const result = tf.tidy(() => runNetwork(model.network, tf.tensor4d(input, [chunk.length, side, side, 1])));
+      const out = result.dataSync();
+      result.dispose();
+      chunk.forEach((tile, k) => {
+        for (const b of tile.blocks) {
+          const x0 = (b % bw) * BLOCK;
+          const y0 = Math.floor(b / bw) * BLOCK;
+          for (let y = y0; y < Math.min(h, y0 + BLOCK); y++) {
+            for (let x = x0; x < Math.min(w, x0 + BLOCK); x++) {
+              const i = y * w + x;
+              const o = ((k * side + y - tile.y0 + CONTEXT) * side + x - tile.x0 + CONTEXT) * 2;
+              probability[i] = 1 / (1 + Math.exp(-out[o]!));
+              lightness[i] = Math.min(100, Math.max(0, L[i]! + 100 * out[o + 1]!));
+            }
+          }
+        }
+      });
+    }
   }
   return { probability, lightness };
 }

@@ -82,6 +82,11 @@ export interface FitOptions {
    * Given with `resume` and different from the checkpoint's, it applies from the next step and is recorded.
    */
   workers?: number;
+  /**
+   * Keep a running average of the weights over about this many steps and evaluate and save it instead of
+   * the last weights (weight-average.ts); 0: none. Default 0.
+   */
+  averageOver?: number;
   /** Stops the run cleanly (a checkpoint is written) after the current step. */
   signal?: AbortSignal;
 }
@@ -178,6 +183,8 @@ export interface FitResult {
      * from there on the weights differ (by float rounding, then more) from those of a run never stopped.
      */
     workerChanges?: { step: number; previous: number; workers: number }[];
+    /** Steps the saved weights are averaged over (absent or 0: the weights of one step). */
+    averageOver?: number;
   };
 }
 
@@ -271,9 +278,11 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
     key: 'validation',
     type: 'number',
     verbs: BOTH,
-    describe: 'fraction of the photos that choose the step kept and when to stop (at least 2 photos)',
+    describe:
+      'fraction of the photos that choose the step kept and when to stop (at least 2 photos); 0 sets none aside, for a train run that keeps its last step and never stops early',
     defaults: { train: 0.1, tune: 0.1 },
-    ...FRACTION,
+    rule: `0 or ${FRACTION.rule}`,
+    valid: (v) => v === 0 || FRACTION.valid(v),
   },
   {
     key: 'learningRate',
@@ -343,6 +352,15 @@ export const FIT_OPTIONS: readonly FitOptionSpec[] = [
     defaults: { train: false, tune: false },
   },
   {
+    key: 'averageOver',
+    type: 'number',
+    verbs: BOTH,
+    describe: 'evaluate and save a running average of the weights over about this many steps (0: the last weights)',
+    defaults: { train: 0, tune: 0 },
+    rule: '0 or a whole number of at least 2',
+    valid: (v) => v === 0 || whole(2)(v),
+  },
+  {
     key: 'workers',
     type: 'number',
     verbs: BOTH,
@@ -386,6 +404,7 @@ export function resolveSettings(options: FitOptions, mode: FitMode, backbone: bo
     freezeEncoder: options.freezeEncoder ?? false,
     keep: options.keep ?? (mode === 'tune' ? 'best' : 'last'),
     patience: pick<number>('patience'),
+    averageOver: pick<number>('averageOver'),
     photoSize: options.photoSize ?? (backbone ? BACKBONE_PHOTO_SIZE : Math.max(DEFAULT_WORKING_SIZE, crop * 3)),
     backbone,
   };

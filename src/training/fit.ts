@@ -58,6 +58,7 @@ import { defaultWorkers, ParallelTrainer } from './parallel-trainer.js';
 import { loadPhotoSet, type Photo, type PhotoSet } from './photo-set.js';
 import { Random, type RandomState } from './random.js';
 import { appendTrainingLog, readTrainingLog, truncateTrainingLog } from './training-log.js';
+import { startAverage, updateAverage, weightValues, type WeightAverageState } from './weight-average.js';
 
 interface CheckpointState {
   kind: 'kinhue-training-checkpoint';
@@ -80,6 +81,8 @@ interface CheckpointState {
   /** The validation photos and their figures of grey and of the starting weights (absent in runs from before the split). */
   validation?: { files: string[]; grey: Evaluation; before: Evaluation };
   weights: Float32Array[];
+  /** The running average of the weights (runs with averageOver). */
+  average?: WeightAverageState;
   trainer: unknown;
 }
 
@@ -153,6 +156,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         rebalance: saved.options.rebalance ?? REBALANCE_LAMBDA,
         backbone: saved.options.backbone ?? false,
         validation: saved.options.validation ?? 0,
+        averageOver: saved.options.averageOver ?? 0,
         patience: options.patience ?? saved.options.patience ?? 0,
       }
     : resolveSettings(
@@ -162,6 +166,14 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         typeof baseRebalance === 'number' ? baseRebalance : undefined,
       );
   // (A learning rate given with --resume is the one setting that changes the weights: see FitOptions.learningRate.)
+  // Without validation photos nothing may be chosen: the held-out photos would choose, and their figures lie.
+  const chooses = settings.keep === 'best' || Boolean(settings.patience);
+  if (!saved && settings.validation === 0 && chooses) {
+    throw new UsageError(
+      `--validation 0 leaves no photos to choose the step kept${settings.patience ? ' and when to stop' : ''}`,
+      `give --validation above 0${mode === 'tune' ? ' (tune keeps its best step)' : ', or --patience 0'}.`,
+    );
+  }
   const maxSteps = options.steps ?? Infinity;
   const maxSeconds = options.hours === undefined ? Infinity : options.hours * 3600;
   if (maxSteps === Infinity && maxSeconds === Infinity) throw new UsageError('no budget given', 'pass --hours, --steps or both.');
@@ -199,8 +211,9 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   if (set.validation.length === 0) {
     onEvent({
       type: 'note',
-      message:
-        'this run was started before kinhue kept validation photos apart: it chooses its steps on the held-out photos, so their figures are not independent',
+      message: chooses
+        ? 'this run was started before kinhue kept validation photos apart: it chooses its steps on the held-out photos, so their figures are not independent'
+        : 'no validation photos: the held-out photos are measured along the way, but nothing is chosen on them (the last weights are kept)',
     });
   }
   if (saved) checkSameData(saved, set, checkpointFile);
@@ -274,6 +287,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   if (settings.freezeEncoder) freezeEncoder(network);
   const trainer = createTrainer(network, { learningRate: settings.learningRate, classWeights });
   const rng = new Random(settings.seed);
+  /** The weights' running average, which is evaluated and saved in place of the last weights. */
+  let average: WeightAverageState | undefined;
   let step = 0;
   let priorSeconds = 0;
   let lossSum = 0;
@@ -308,6 +323,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
 
   if (saved) {
     setWeights(network, saved.weights);
+    average = saved.average;
     trainer.setState(saved.trainer as TrainerState);
     if (options.learningRate !== undefined && options.learningRate !== settings.learningRate) {
       settings.learningRateChanges = [...(settings.learningRateChanges ?? []), { step: saved.step, learningRate: options.learningRate }];
@@ -337,6 +353,18 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
     await truncateTrainingLog(out, 0);
     if (settings.keep === 'best') best = { step: 0, evaluation: validation.before };
   }
+  if (settings.averageOver && !average) average = startAverage(network);
+  /** Runs `fn` with the averaged weights in the network (in a run that averages), then puts the last ones back. */
+  const withAverage = async <T>(fn: () => Promise<T>): Promise<T> => {
+    if (!average) return fn();
+    const last = weightValues(network);
+    setWeights(network, average.values);
+    try {
+      return await fn();
+    } finally {
+      setWeights(network, last);
+    }
+  };
   onEvent({ type: 'baseline', validation: { grey: validation.grey, start: validation.before }, heldOut: { grey, start: before } });
   const stalled = (): boolean => Boolean(settings.patience && best && sinceBest >= settings.patience);
 
@@ -402,6 +430,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       before,
       ...(set.validation.length > 0 ? { validation: { files: set.validation.map((p) => p.file), ...validation } } : {}),
       weights: network.getWeights().map((w) => w.dataSync() as Float32Array),
+      ...(average ? { average } : {}),
       trainer: await trainer.getState(),
     };
     await saveCheckpoint(checkpointFile, state as unknown as Record<string, unknown>);
@@ -410,45 +439,46 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   };
 
   /** Evaluates the current weights on the validation photos, logs the result, and saves the model when keeping the best. */
-  const recordEvaluation = async (): Promise<void> => {
-    const evaluation = await evaluate(validationSet);
-    lastEvaluation = { step, evaluation };
-    const improved = !best || choiceScore(evaluation) < choiceScore(best.evaluation) - MIN_IMPROVEMENT;
-    if (improved) {
-      best = { step, evaluation };
-      sinceBest = 0;
-      if (settings.keep === 'best') bestWeights = network.getWeights().map((w) => Float32Array.from(w.dataSync() as Float32Array));
-    } else {
-      sinceBest++;
-    }
-    const loss = lossCount > 0 ? lossSum / lossCount : null;
-    const { ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey } = evaluation;
-    await appendTrainingLog(out, {
-      step,
-      seconds: elapsed(),
-      loss,
-      ciede2000,
-      psnr,
-      colourfulness,
-      rightHue,
-      falseColour,
-      leftGrey,
-      best: improved,
-      photos: evaluation.photos,
-      time: new Date().toISOString(),
+  const recordEvaluation = (): Promise<void> =>
+    withAverage(async () => {
+      const evaluation = await evaluate(validationSet);
+      lastEvaluation = { step, evaluation };
+      const improved = !best || choiceScore(evaluation) < choiceScore(best.evaluation) - MIN_IMPROVEMENT;
+      if (improved) {
+        best = { step, evaluation };
+        sinceBest = 0;
+        if (settings.keep === 'best') bestWeights = network.getWeights().map((w) => Float32Array.from(w.dataSync() as Float32Array));
+      } else {
+        sinceBest++;
+      }
+      const loss = lossCount > 0 ? lossSum / lossCount : null;
+      const { ciede2000, psnr, colourfulness, rightHue, falseColour, leftGrey } = evaluation;
+      await appendTrainingLog(out, {
+        step,
+        seconds: elapsed(),
+        loss,
+        ciede2000,
+        psnr,
+        colourfulness,
+        rightHue,
+        falseColour,
+        leftGrey,
+        best: improved,
+        photos: evaluation.photos,
+        time: new Date().toISOString(),
+      });
+      onEvent({
+        type: 'evaluation',
+        step,
+        loss,
+        evaluation,
+        best: improved,
+        bestSoFar: figuresAt(best!),
+      });
+      lossSum = 0;
+      lossCount = 0;
+      if (improved && settings.keep === 'best') await saveKept(step, elapsed());
     });
-    onEvent({
-      type: 'evaluation',
-      step,
-      loss,
-      evaluation,
-      best: improved,
-      bestSoFar: figuresAt(best!),
-    });
-    lossSum = 0;
-    lossCount = 0;
-    if (improved && settings.keep === 'best') await saveKept(step, elapsed());
-  };
 
   onEvent({ type: 'workers', workers, step, ...(previousWorkers !== undefined ? { previous: previousWorkers } : {}) });
   if (stalled()) {
@@ -491,6 +521,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
       }
       step++;
+      if (average) average = updateAverage(average, weightValues(network), settings.averageOver!);
       lossSum += loss;
       lossCount++;
       const seconds = elapsed();
@@ -517,7 +548,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       }
       if (Date.now() - lastCheckpoint >= checkpointMs) {
         await writeCheckpoint();
-        if (settings.keep === 'last') await saveKept(step, elapsed());
+        if (settings.keep === 'last') await withAverage(() => saveKept(step, elapsed()));
       }
     }
   } finally {
@@ -534,6 +565,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
   if (settings.keep === 'best' && best && best.step !== step) {
     keptStep = best.step;
     setWeights(network, bestWeights ?? (await keptWeights(out)));
+  } else if (average) {
+    setWeights(network, average.values);
   }
   const after = await evaluate(set.holdout);
   const finished = stoppedBy !== 'interrupted';

@@ -7,5 +7,6 @@ export * from './checkpoint.js';
 export * from './training-log.js';
 export * from './fit-options.js';
 export * from './fit.js';
+export * from './weight-average.js';
 export * from './parallel-trainer.js';
 export * from './gradient-protocol.js';
