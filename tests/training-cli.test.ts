@@ -84,7 +84,9 @@ describe('train and tune command lines', () => {
       [{ workers: 0 }, /--workers/],
       [{ workers: 1.5 }, /--workers/],
       [{ workers: 17 }, /--workers 17 is more than the 16 crops/],
-      [{ validation: 0 }, /--validation must be a fraction above 0/],
+      [{ validation: 0.7 }, /--validation must be 0 or a fraction above 0 and at most 0.5, got 0.7/],
+      [{ validation: -0.1 }, /--validation must be 0 or a fraction/],
+      [{ 'average-over': 1 }, /--average-over must be 0 or a whole number of at least 2/],
       [{ patience: -1 }, /--patience must be a whole number of 0 or more/],
       [{ steps: Number.NaN }, /--steps must be a whole number of at least 1, got NaN/],
     ];
