@@ -3,6 +3,7 @@ import type { Pixels } from '../src/image/index.js';
 import {
   addGrain,
   changeFigures,
+  closing,
   detectDamage,
   detectionFigures,
   drawDamage,
@@ -10,13 +11,13 @@ import {
   MASK_DELTA,
   maskedSquaredError,
   medianFill,
+  opening,
   psnrOf,
   repairScan,
   softScene,
   squareFilter,
 } from '../src/repair/index.js';
 import { onnxRuntimeVersion } from '../src/model/onnx-runtime.js';
-import { closing, opening } from '../src/repair/morphology.js';
 import { openingAndClosingOnRuntime } from '../src/repair/onnx-morphology.js';
 import { Random } from '../src/training/index.js';
 

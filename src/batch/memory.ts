@@ -52,8 +52,8 @@ export async function readMemoryPhotos(folder: string, workSize: number, maxPixe
   if (files.length === 0) throw refuse(dir, 'the memory folder holds no images', 'put colour photographs (JPEG, PNG, TIFF, WebP) in it');
   const digest = createHash('sha256');
   const photos: MemoryPhotos['photos'] = [];
-  for (const file of paths) {
-    digest.update(`${basename(file)}\0${await fileSha256(file)}\n`);
+  for (const [k, file] of paths.entries()) {
+    digest.update(`${files[k]}\0${await fileSha256(file)}\n`);
     const { pixels } = await decodeImage(file, { maxPixels });
     const ws = workingSize(pixels.width, pixels.height, workSize);
     const lab = workingLab(pixels, ws.width, ws.height);

@@ -71,19 +71,18 @@ export function detectDamage(L: Float32Array, w: number, h: number, settings: De
   const smooth = boxMean(L, w, h, 1);
   const { open, close } = openingAndClosing(smooth, w, h, settings.radius);
   const response = new Float32Array(n);
-  const strength = new Float32Array(n);
   for (let i = 0; i < n; i++) {
     const bright = smooth[i]! - open[i]!;
     const dark = close[i]! - smooth[i]!;
     response[i] = bright >= dark ? bright : -dark;
-    // Texture measure: capped, so one strong speck raises its own neighbourhood's threshold little.
-    strength[i] = Math.min(Math.abs(response[i]!), settings.activityCap);
   }
   const noise = noiseSigma(L, w, h);
   const smoothNoise = noise / 3;
   const threshold = new Float32Array(n);
   const base = Math.max(settings.minContrast, settings.noiseFactor * smoothNoise);
   if (settings.activityFactor > 0) {
+    // Texture measure: capped, so one strong speck raises its own neighbourhood's threshold little.
+    const strength = response.map((r) => Math.min(Math.abs(r), settings.activityCap));
     const activity = boxMean(strength, w, h, settings.activityRadius);
     for (let i = 0; i < n; i++) threshold[i] = Math.max(base, settings.activityFactor * activity[i]!);
   } else {

@@ -13,8 +13,6 @@ import type { RepairModel } from './repair-model.js';
 const BLOCK = 32;
 const CONTEXT = 16;
 const TILE = BLOCK + 2 * CONTEXT;
-/** Block tiles per call of the network. */
-const CHUNK = 32;
 
 /** The candidate pass: faint details too (the network sorts them), texture not held against them. */
 export const CANDIDATE_SETTINGS: DetectorSettings = { ...DETECTOR_SETTINGS, minContrast: 4, activityFactor: 0, growRatio: 0.5, margin: 2 };
@@ -84,8 +82,8 @@ export function networkRepair(
 const GROUP = 4;
 /** A group is run whole from this many of its blocks on: its tile's pixels against the blocks' tiles'. */
 const GROUP_FROM = Math.ceil(((GROUP * BLOCK + 2 * CONTEXT) / TILE) ** 2);
-/** Tile pixels per call of the network: about 130 thousand. */
-const CALL_PIXELS = CHUNK * TILE * TILE;
+/** Tile pixels per call of the network: about 130 thousand (32 block tiles). */
+const CALL_PIXELS = 32 * TILE * TILE;
 
 /** A square of the plane the network runs on: its core (where its output is used) and the blocks written from it. */
 interface Tile {
