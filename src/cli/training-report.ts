@@ -5,6 +5,7 @@
 import type { Argv } from 'yargs';
 import { UsageError } from '../errors.js';
 import {
+  choosesStep,
   fit,
   FIT_OPTIONS,
   fitDefault,
@@ -237,7 +238,7 @@ export function summaryTable(result: FitResult): string {
     : 'the last weights are kept';
   const chosen =
     result.photos.validation === 0
-      ? result.options.keep === 'best' || result.options.patience
+      ? choosesStep(result.options)
         ? 'steps chosen on the held-out photos (a run from before the validation split): the figures below are not independent'
         : `no validation photos: the held-out photos were measured along the way and nothing was chosen on them; ${kept}`
       : result.options.keep === 'best'

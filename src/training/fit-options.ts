@@ -194,6 +194,11 @@ export const SUMMARY_FILE = 'training-summary.json';
 /** The settings a run is made with; a resumed run keeps those of its checkpoint. */
 export type FitSettings = FitResult['options'];
 
+/** Whether a run chooses anything on its evaluations: the step kept (keep best) or when to stop (patience). */
+export function choosesStep(settings: Pick<FitSettings, 'keep' | 'patience'>): boolean {
+  return settings.keep === 'best' || Boolean(settings.patience);
+}
+
 /** A value the command line can give. */
 type OptionValue = number | boolean | string;
 

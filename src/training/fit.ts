@@ -43,6 +43,7 @@ import { CHECKPOINT_FILE, loadCheckpoint, saveCheckpoint } from './checkpoint.js
 import { type CropDraw, CropSampler, type PhotoFeatures, type SamplerState } from './crop-sampler.js';
 import { choiceScore, evaluatePhotos, type Evaluation } from './evaluation.js';
 import {
+  choosesStep,
   fitDefault,
   SUMMARY_FILE,
   resolveSettings,
@@ -167,7 +168,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       );
   // (A learning rate given with --resume is the one setting that changes the weights: see FitOptions.learningRate.)
   // Without validation photos nothing may be chosen: the held-out photos would choose, and their figures lie.
-  const chooses = settings.keep === 'best' || Boolean(settings.patience);
+  const chooses = choosesStep(settings);
   if (!saved && settings.validation === 0 && chooses) {
     throw new UsageError(
       `--validation 0 leaves no photos to choose the step kept${settings.patience ? ' and when to stop' : ''}`,
@@ -447,7 +448,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       if (improved) {
         best = { step, evaluation };
         sinceBest = 0;
-        if (settings.keep === 'best') bestWeights = network.getWeights().map((w) => Float32Array.from(w.dataSync() as Float32Array));
+        if (settings.keep === 'best') bestWeights = weightValues(network);
       } else {
         sinceBest++;
       }
@@ -521,7 +522,8 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
       }
       step++;
-      if (average) average = updateAverage(average, weightValues(network), settings.averageOver!);
+      // updateAverage keeps nothing of what it is given, so the weights are read without a copy.
+      if (average) average = updateAverage(average, network.getWeights().map((w) => w.dataSync() as Float32Array), settings.averageOver!);
       lossSum += loss;
       lossCount++;
       const seconds = elapsed();
@@ -629,7 +631,7 @@ function figuresAt(at: { step: number; evaluation: Evaluation }): BestSoFar {
 /** The weights of the model folder `dir` (the best kept so far, written when it was reached). */
 async function keptWeights(dir: string): Promise<Float32Array[]> {
   const model = await loadModel(dir);
-  const weights = model.network.getWeights().map((w) => Float32Array.from(w.dataSync() as Float32Array));
+  const weights = weightValues(model.network);
   model.network.dispose();
   return weights;
 }
