@@ -523,7 +523,12 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       }
       step++;
       // updateAverage keeps nothing of what it is given, so the weights are read without a copy.
-      if (average) average = updateAverage(average, network.getWeights().map((w) => w.dataSync() as Float32Array), settings.averageOver!);
+      if (average)
+        average = updateAverage(
+          average,
+          network.getWeights().map((w) => w.dataSync() as Float32Array),
+          settings.averageOver!,
+        );
       lossSum += loss;
       lossCount++;
       const seconds = elapsed();
