@@ -59,7 +59,7 @@ import { defaultWorkers, ParallelTrainer } from './parallel-trainer.js';
 import { loadPhotoSet, type Photo, type PhotoSet } from './photo-set.js';
 import { Random, type RandomState } from './random.js';
 import { appendTrainingLog, readTrainingLog, truncateTrainingLog } from './training-log.js';
-import { startAverage, updateAverage, weightValues, type WeightAverageState } from './weight-average.js';
+import { startAverage, updateAverage, weightValues, weightViews, type WeightAverageState } from './weight-average.js';
 
 interface CheckpointState {
   kind: 'kinhue-training-checkpoint';
@@ -430,7 +430,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
       grey,
       before,
       ...(set.validation.length > 0 ? { validation: { files: set.validation.map((p) => p.file), ...validation } } : {}),
-      weights: network.getWeights().map((w) => w.dataSync() as Float32Array),
+      weights: weightViews(network),
       ...(average ? { average } : {}),
       trainer: await trainer.getState(),
     };
@@ -522,13 +522,7 @@ export async function fit(options: FitOptions, onEvent: (event: FitEvent) => voi
         loss = trainer.step(batch.L, batch.ab, batch.n, batch.size, batch.size, batch.borrowed);
       }
       step++;
-      // updateAverage keeps nothing of what it is given, so the weights are read without a copy.
-      if (average)
-        average = updateAverage(
-          average,
-          network.getWeights().map((w) => w.dataSync() as Float32Array),
-          settings.averageOver!,
-        );
+      if (average) average = updateAverage(average, weightViews(network), settings.averageOver!);
       lossSum += loss;
       lossCount++;
       const seconds = elapsed();

@@ -31,7 +31,7 @@ export function averageDecay(over: number, updates: number): number {
  * @example
  *   let average = startAverage(network);
  *   // after each optimiser step:
- *   average = updateAverage(average, network.getWeights().map((w) => w.dataSync() as Float32Array), 200);
+ *   average = updateAverage(average, weightViews(network), 200);
  */
 export function updateAverage(state: WeightAverageState, weights: readonly Float32Array[], over: number): WeightAverageState {
   if (weights.length !== state.values.length)
@@ -55,4 +55,9 @@ export function startAverage(network: tf.LayersModel): WeightAverageState {
 /** Copies of every weight of a network, in getWeights() order. */
 export function weightValues(network: tf.LayersModel): Float32Array[] {
   return network.getWeights().map((w) => (w.dataSync() as Float32Array).slice());
+}
+
+/** Every weight of a network as it is read, not copied: for a reader that keeps none of them. */
+export function weightViews(network: tf.LayersModel): Float32Array[] {
+  return network.getWeights().map((w) => w.dataSync() as Float32Array);
 }
